@@ -1,0 +1,103 @@
+"""assurance: plan a clinical trial when nobody knows the true treatment effect.
+
+Classical power at an assumed effect, assurance (probability of success) averaged over a
+prior on the effect, the ceiling no sample size can pass, the sample size that reaches a
+target, and a decision memo. Heavy modules load on first use, so the command line starts
+fast.
+
+Examples
+--------
+>>> import assurance as asr
+>>> design = asr.TrialDesign(asr.ContinuousEndpoint(sigma=10.0), asr.Normal(4.0, 2.0))
+>>> ds = asr.evaluate(design, [100, 200])
+>>> float(ds.assurance[1]) > float(ds.assurance[0])
+True
+"""
+
+from __future__ import annotations
+
+import importlib
+from typing import TYPE_CHECKING, Any
+
+__version__ = "0.1.0"
+
+# public name -> module that defines it
+_PUBLIC = {
+    "AssuranceInputError": "errors",
+    "AssuranceWarning": "errors",
+    "DesignFileError": "errors",
+    "Prior": "priors",
+    "Normal": "priors",
+    "StudentT": "priors",
+    "Uniform": "priors",
+    "TruncatedNormal": "priors",
+    "PointMass": "priors",
+    "Mixture": "priors",
+    "FromScipy": "priors",
+    "ScaledInvChiSquare": "priors",
+    "GammaPrecision": "priors",
+    "ContinuousEndpoint": "endpoints.continuous",
+    "Significance": "rules",
+    "TrialDesign": "design",
+    "evaluate": "planning",
+    "solve_sample_size": "planning",
+    "SampleSizeAnswer": "planning",
+    "show_versions": "versions",
+}
+
+__all__ = [
+    "__version__",
+    "AssuranceInputError",
+    "AssuranceWarning",
+    "DesignFileError",
+    "Prior",
+    "Normal",
+    "StudentT",
+    "Uniform",
+    "TruncatedNormal",
+    "PointMass",
+    "Mixture",
+    "FromScipy",
+    "ScaledInvChiSquare",
+    "GammaPrecision",
+    "ContinuousEndpoint",
+    "Significance",
+    "TrialDesign",
+    "evaluate",
+    "solve_sample_size",
+    "SampleSizeAnswer",
+    "show_versions",
+]
+
+if TYPE_CHECKING:  # pragma: no cover - for type checkers and editors only
+    from .design import TrialDesign
+    from .endpoints.continuous import ContinuousEndpoint
+    from .errors import AssuranceInputError, AssuranceWarning, DesignFileError
+    from .planning import SampleSizeAnswer, evaluate, solve_sample_size
+    from .priors import (
+        FromScipy,
+        GammaPrecision,
+        Mixture,
+        Normal,
+        PointMass,
+        Prior,
+        ScaledInvChiSquare,
+        StudentT,
+        TruncatedNormal,
+        Uniform,
+    )
+    from .rules import Significance
+    from .versions import show_versions
+
+
+def __getattr__(name: str) -> Any:
+    module = _PUBLIC.get(name)
+    if module is None:
+        raise AttributeError(f"module 'assurance' has no attribute {name!r}")
+    value = getattr(importlib.import_module(f".{module}", __name__), name)
+    globals()[name] = value
+    return value
+
+
+def __dir__() -> list[str]:
+    return sorted(__all__)

@@ -1,0 +1,157 @@
+"""A trial design: endpoint, success rule, design prior and the effects a planner cares about."""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Sequence
+from dataclasses import dataclass, field
+from typing import Any
+
+from ._validation import check_real
+from .endpoints.continuous import ContinuousEndpoint
+from .errors import AssuranceInputError
+from .priors import Prior, as_prior
+from .rules import Significance
+
+__all__ = ["TrialDesign"]
+
+
+@dataclass(frozen=True)
+class TrialDesign:
+    """Everything needed to compute power and assurance for one trial.
+
+    Parameters
+    ----------
+    endpoint
+        The outcome and how the trial is laid out (:class:`ContinuousEndpoint`).
+    design_prior
+        What we believe about the true effect (natural scale: treatment minus control, or
+        the mean change for one group). A number means a point mass.
+    rule
+        When the trial counts as a success (:class:`Significance`, one-sided 0.025 default).
+    assumed_effect
+        The single effect classical power is computed at; defaults to the prior mean.
+    relevant_effect
+        Smallest effect that matters clinically (natural scale). Enables
+        P(success and effect relevant), conditional assurance and P(miss a relevant effect).
+    sigma_prior
+        Optional prior on the outcome SD (e.g. :class:`ScaledInvChiSquare` from a pilot);
+        assurance then integrates over it by Monte Carlo. Classical power keeps
+        ``endpoint.sigma``.
+    power_effects
+        Further effects (natural scale) at which to report classical power.
+    title
+        Name of the trial for the memo.
+
+    Examples
+    --------
+    >>> from assurance import ContinuousEndpoint, Normal, TrialDesign
+    >>> d = TrialDesign(ContinuousEndpoint(sigma=10.0), Normal(4.0, 2.0), relevant_effect=3.0)
+    >>> d.assumed_effect
+    4.0
+    """
+
+    endpoint: ContinuousEndpoint
+    design_prior: Prior
+    rule: Significance = field(default_factory=Significance)
+    assumed_effect: float | None = None
+    relevant_effect: float | None = None
+    sigma_prior: Prior | None = None
+    power_effects: Sequence[float] = ()
+    title: str = "Untitled trial"
+
+    def __post_init__(self) -> None:
+        owner = "TrialDesign"
+        if not isinstance(self.endpoint, ContinuousEndpoint):
+            raise AssuranceInputError(
+                f"The 'endpoint' parameter of {owner} must be a ContinuousEndpoint. "
+                f"Got {self.endpoint!r} instead."
+            )
+        if not isinstance(self.rule, Significance):
+            raise AssuranceInputError(
+                f"The 'rule' parameter of {owner} must be a Significance rule. "
+                f"Got {self.rule!r} instead."
+            )
+        prior = as_prior(self.design_prior, "design_prior", owner)
+        object.__setattr__(self, "design_prior", prior)
+        if self.assumed_effect is None:
+            object.__setattr__(self, "assumed_effect", float(prior.mean()))
+        else:
+            object.__setattr__(self, "assumed_effect",
+                               check_real(self.assumed_effect, "assumed_effect", owner))
+        if self.relevant_effect is not None:
+            rel = check_real(self.relevant_effect, "relevant_effect", owner)
+            object.__setattr__(self, "relevant_effect", rel)
+            mass = self.benefit_prior.prob_above(self.endpoint.to_benefit(rel), inclusive=True)
+            if mass <= 0.0:
+                word = ">=" if self.endpoint.better == "higher" else "<="
+                raise AssuranceInputError(
+                    f"The 'relevant_effect' parameter of {owner} must leave some prior "
+                    f"probability on effects {word} it; the design prior "
+                    f"{prior.describe()} gives {mass:g} to effects {word} {rel:g}."
+                )
+        if self.sigma_prior is not None:
+            sp = as_prior(self.sigma_prior, "sigma_prior", owner)
+            lo, _ = sp.support()
+            if lo < 0 or float(sp.cdf(0.0)) > 0 or any(loc <= 0 for loc, _ in sp.atoms()):
+                raise AssuranceInputError(
+                    f"The 'sigma_prior' parameter of {owner} must put all its mass on "
+                    f"sigma > 0. Got {sp.describe()} instead."
+                )
+            object.__setattr__(self, "sigma_prior", sp)
+        effects = tuple(check_real(e, "power_effects", owner) for e in self.power_effects)
+        object.__setattr__(self, "power_effects", effects)
+        if not isinstance(self.title, str) or not self.title.strip():
+            raise AssuranceInputError(
+                f"The 'title' parameter of {owner} must be a non-empty string. "
+                f"Got {self.title!r} instead."
+            )
+
+    # ---- the benefit scale (larger is better) used by all computations ---------------------
+    @property
+    def benefit_prior(self) -> Prior:
+        return self.design_prior if self.endpoint.sign > 0 else self.design_prior.negated()
+
+    @property
+    def benefit_rule(self) -> Significance:
+        return self.rule if self.endpoint.sign > 0 else self.rule.flipped()
+
+    def ceiling(self) -> float:
+        """Prior probability of the effects at which the rule can be passed (n -> infinity)."""
+        lowest = self.benefit_rule.lowest_passable_effect()
+        return 1.0 if lowest == -math.inf else self.benefit_prior.prob_above(lowest)
+
+    def prob_benefit(self) -> float:
+        """Prior probability that the treatment is better at all (effect beyond 0)."""
+        return self.benefit_prior.prob_above(0.0)
+
+    def prob_relevant(self) -> float | None:
+        """Prior probability that the effect is at least the relevant value."""
+        if self.relevant_effect is None:
+            return None
+        return self.benefit_prior.prob_above(self.endpoint.to_benefit(self.relevant_effect),
+                                             inclusive=True)
+
+    def curve_effects(self) -> tuple[float, ...]:
+        """Effects (natural scale) for the power curve: assumed, relevant and requested."""
+        values = {float(self.assumed_effect), *self.power_effects}
+        if self.relevant_effect is not None:
+            values.add(float(self.relevant_effect))
+        return tuple(sorted(values))
+
+    def to_dict(self) -> dict[str, Any]:
+        """Plain description of every input, for results and memos."""
+        ep = self.endpoint
+        return {
+            "title": self.title,
+            "endpoint": {"kind": "continuous", "sigma": ep.sigma, "layout": ep.layout,
+                         "allocation": ep.allocation, "analysis": ep.analysis,
+                         "better": ep.better},
+            "rule": {"kind": "significance", "alpha": self.rule.alpha, "sided": self.rule.sided,
+                     "margin": self.rule.margin, "min_estimate": self.rule.min_estimate},
+            "design_prior": self.design_prior.to_dict(),
+            "sigma_prior": None if self.sigma_prior is None else self.sigma_prior.to_dict(),
+            "assumed_effect": self.assumed_effect,
+            "relevant_effect": self.relevant_effect,
+            "power_effects": list(self.power_effects),
+        }

@@ -1,0 +1,387 @@
+"""Evaluate a design over a grid of sample sizes, and solve for the n that reaches a target.
+
+:func:`evaluate` returns an :class:`xarray.Dataset` with dimension ``n`` (total patients) and
+an ``effect`` dimension for the power curve; :func:`solve_sample_size` finds the smallest n
+for a target power, assurance or conditional assurance, and says plainly when a target lies
+above the ceiling that no sample size can pass.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+from collections.abc import Callable, Sequence
+from dataclasses import asdict, dataclass
+from typing import Any, Literal
+
+import numpy as np
+
+from ._validation import check_choice, check_int, check_real, check_real_array
+from .compute.normal_outcome import Cut, EffectDraws, exact_success, monte_carlo_success
+from .design import TrialDesign
+from .errors import AssuranceInputError
+from .priors import PointMass
+
+__all__ = ["evaluate", "solve_sample_size", "SampleSizeAnswer", "Quantity"]
+
+Quantity = Literal["power", "assurance", "conditional_assurance"]
+QUANTITIES: tuple[str, ...] = ("power", "assurance", "conditional_assurance")
+DEFAULT_DRAWS = 20_000
+ProgressCallback = Callable[[int, int], None]
+
+
+# ------------------------------------------------------------------------------------------
+# one engine for both evaluation and solving
+# ------------------------------------------------------------------------------------------
+class _Calculator:
+    """Computes every per-n quantity of a design for arrays of arm sizes."""
+
+    def __init__(self, design: TrialDesign, draws: int, seed: int | None):
+        self.design = design
+        self.endpoint = design.endpoint
+        self.rule = design.benefit_rule
+        self.prior = design.benefit_prior
+        self.relevant = (None if design.relevant_effect is None
+                         else float(self.endpoint.to_benefit(design.relevant_effect)))
+        self.cuts = [Cut(0.0)] + ([Cut(self.relevant, inclusive=True)]
+                                  if self.relevant is not None else [])
+        self.prob_relevant = design.prob_relevant()
+        self.monte_carlo = design.sigma_prior is not None
+        self.draws = (EffectDraws.draw(self.prior, design.sigma_prior, draws, seed)
+                      if self.monte_carlo else None)
+
+    def _geometry(self, n_t: np.ndarray, n_c: np.ndarray) -> dict[str, np.ndarray]:
+        ep = self.endpoint
+        return {"se_factor": ep.se_factor(n_t, n_c), "df": ep.degrees_of_freedom(n_t, n_c),
+                "analysis": ep.analysis}
+
+    def power(self, effect: float, n_t: np.ndarray, n_c: np.ndarray) -> np.ndarray:
+        """Classical power at one natural-scale effect, planning sigma."""
+        prior = PointMass(float(self.endpoint.to_benefit(effect)))
+        return exact_success(prior, self.rule, sigma=self.endpoint.sigma,
+                             **self._geometry(n_t, n_c)).success
+
+    def assurance(self, n_t: np.ndarray, n_c: np.ndarray) -> dict[str, np.ndarray]:
+        """Assurance and its decomposition (plus standard errors under Monte Carlo)."""
+        geo = self._geometry(n_t, n_c)
+        if self.monte_carlo:
+            res = monte_carlo_success(self.draws, self.rule, cuts=self.cuts, **geo)
+        else:
+            res = exact_success(self.prior, self.rule, sigma=self.endpoint.sigma,
+                                cuts=self.cuts, **geo)
+        out = {"assurance": res.success, "prob_success_and_benefit": res.joint[0]}
+        if res.success_mcse is not None:
+            out["assurance_mcse"] = res.success_mcse
+            out["prob_success_and_benefit_mcse"] = res.joint_mcse[0]
+        if self.relevant is not None:
+            joint = res.joint[1]
+            out["prob_success_and_relevant"] = joint
+            out["prob_miss_relevant"] = np.clip(self.prob_relevant - joint, 0.0, 1.0)
+            if self.monte_carlo:
+                out["conditional_assurance"] = res.conditional[1]
+                out["conditional_assurance_mcse"] = res.conditional_mcse[1]
+                out["prob_success_and_relevant_mcse"] = res.joint_mcse[1]
+                out["prob_miss_relevant_mcse"] = res.joint_mcse[1]
+            else:
+                out["conditional_assurance"] = np.clip(joint / self.prob_relevant, 0.0, 1.0)
+        return out
+
+    def quantity(self, name: str, n_t: np.ndarray, n_c: np.ndarray) -> np.ndarray:
+        if name == "power":
+            return self.power(self.design.assumed_effect, n_t, n_c)
+        return self.assurance(n_t, n_c)[name]
+
+
+# ------------------------------------------------------------------------------------------
+# evaluate over a grid
+# ------------------------------------------------------------------------------------------
+def _check_sizes(design: TrialDesign, sizes: Any) -> np.ndarray:
+    smallest = design.endpoint.smallest_total
+    arr = check_real_array(sizes, "sizes", "evaluate", low=smallest)
+    if np.any(arr != np.round(arr)):
+        raise AssuranceInputError(
+            f"The 'sizes' parameter of evaluate must hold whole numbers of patients. "
+            f"Got {sizes!r} instead."
+        )
+    return np.unique(arr.astype(int))
+
+
+def evaluate(
+    design: TrialDesign,
+    sizes: Sequence[int] | np.ndarray,
+    *,
+    draws: int = DEFAULT_DRAWS,
+    seed: int | None = 20260101,
+    progress: ProgressCallback | None = None,
+) -> Any:
+    """Power, assurance, ceiling and success decomposition for each total sample size.
+
+    Parameters
+    ----------
+    design
+        The trial (:class:`~assurance.TrialDesign`).
+    sizes
+        Total numbers of patients (all arms), whole numbers at or above the smallest size
+        the analysis allows. Arms are split by the allocation ratio.
+    draws
+        Monte Carlo draws, used only when the design has a prior on sigma.
+    seed
+        Seed for those draws; the same seed gives the same numbers.
+    progress
+        Optional callback ``progress(done, total)`` called as chunks of the grid finish.
+
+    Returns
+    -------
+    xarray.Dataset
+        Dimension ``n`` with coordinates ``n_treatment`` and ``n_control``; variables
+        ``power`` (at the assumed effect), ``power_curve`` (``effect`` x ``n``),
+        ``assurance``, ``prob_success_and_benefit`` and, with a relevant effect,
+        ``prob_success_and_relevant``, ``conditional_assurance``, ``prob_miss_relevant``;
+        ``*_mcse`` Monte Carlo standard errors when sigma is uncertain; scalars ``ceiling``,
+        ``prob_benefit``, ``prob_relevant``. ``attrs`` hold the design (JSON), seed, method
+        and package version.
+
+    Notes
+    -----
+    With a normal design prior ``N(m, v)`` and known sigma, assurance for the threshold
+    ``c(n)`` is ``Phi((m - c) / sqrt(v + se^2))`` (O'Hagan, Stevens & Campbell 2005); the
+    decomposition uses the bivariate normal of (effect, estimate).
+
+    Examples
+    --------
+    >>> from assurance import ContinuousEndpoint, Normal, TrialDesign, evaluate
+    >>> design = TrialDesign(ContinuousEndpoint(sigma=10.0), Normal(4.0, 2.0))
+    >>> ds = evaluate(design, [100, 200, 400])
+    >>> bool((ds.assurance <= ds.ceiling).all())
+    True
+    """
+    import xarray as xr
+
+    from . import __version__
+
+    if not isinstance(design, TrialDesign):
+        raise AssuranceInputError(
+            f"The 'design' parameter of evaluate must be a TrialDesign. Got {design!r} instead."
+        )
+    n = _check_sizes(design, sizes)
+    draws = check_int(draws, "draws", "evaluate", low=100)
+    if seed is not None:
+        seed = check_int(seed, "seed", "evaluate", low=0)
+    calc = _Calculator(design, draws, seed)
+    n_t, n_c = design.endpoint.arm_sizes(n)
+
+    chunks = np.array_split(np.arange(n.size), max(1, math.ceil(n.size / 25))) \
+        if calc.monte_carlo else [np.arange(n.size)]
+    parts: list[dict[str, np.ndarray]] = []
+    for done, idx in enumerate(chunks, start=1):
+        parts.append(calc.assurance(n_t[idx], n_c[idx]))
+        if progress is not None:
+            progress(done, len(chunks))
+    per_n = {key: np.concatenate([p[key] for p in parts]) for key in parts[0]}
+
+    effects = np.array(design.curve_effects())
+    curve = np.vstack([calc.power(e, n_t, n_c) for e in effects])
+    power = curve[int(np.flatnonzero(effects == design.assumed_effect)[0])]
+
+    data_vars: dict[str, Any] = {"power": ("n", power), "power_curve": (("effect", "n"), curve)}
+    data_vars.update({key: ("n", value) for key, value in per_n.items()})
+    data_vars["ceiling"] = ((), design.ceiling())
+    data_vars["prob_benefit"] = ((), design.prob_benefit())
+    if design.relevant_effect is not None:
+        data_vars["prob_relevant"] = ((), design.prob_relevant())
+    ds = xr.Dataset(
+        data_vars,
+        coords={"n": n, "n_treatment": ("n", n_t), "n_control": ("n", n_c), "effect": effects},
+        attrs={
+            "title": design.title,
+            "design": json.dumps(design.to_dict()),
+            "method": ("Monte Carlo over effect and sigma (Rao-Blackwellised)"
+                       if calc.monte_carlo else _exact_method(design)),
+            "draws": draws if calc.monte_carlo else 0,
+            "seed": -1 if seed is None else seed,
+            "package_version": __version__,
+        },
+    )
+    _label(ds)
+    return ds
+
+
+def _exact_method(design: TrialDesign) -> str:
+    kinds = {type(part).__name__ for _, part in design.benefit_prior.parts()}
+    closed = kinds <= {"Normal", "PointMass"}
+    base = "closed form" if closed else "adaptive quadrature over the prior"
+    if design.endpoint.analysis == "t":
+        base += "; Gauss-Hermite quadrature over the sample SD (t test)"
+    return base
+
+
+_LABELS = {
+    "power": "classical power at the assumed effect",
+    "power_curve": "classical power at each effect",
+    "assurance": "assurance: probability of success averaged over the design prior",
+    "prob_success_and_benefit": "P(success and the treatment is truly better)",
+    "prob_success_and_relevant": "P(success and the effect is clinically relevant)",
+    "conditional_assurance": "P(success | effect is clinically relevant)",
+    "prob_miss_relevant": "P(no success although the effect is clinically relevant)",
+    "ceiling": "highest assurance any sample size can reach",
+    "prob_benefit": "prior probability that the treatment is better",
+    "prob_relevant": "prior probability that the effect is clinically relevant",
+}
+
+
+def _label(ds: Any) -> None:
+    for name, var in ds.data_vars.items():
+        base = name.removesuffix("_mcse")
+        text = _LABELS.get(base, base)
+        var.attrs["long_name"] = f"Monte Carlo standard error of {text}" \
+            if name.endswith("_mcse") else text
+
+
+# ------------------------------------------------------------------------------------------
+# solve for n
+# ------------------------------------------------------------------------------------------
+@dataclass(frozen=True)
+class SampleSizeAnswer:
+    """The smallest sample size that reaches a target, or why none does."""
+
+    quantity: str
+    target: float
+    reached: bool
+    n_total: int | None
+    n_treatment: int | None
+    n_control: int | None
+    achieved: float | None
+    achieved_mcse: float | None
+    ceiling: float
+    message: str
+
+    def to_dict(self) -> dict[str, Any]:
+        return asdict(self)
+
+
+def _ceiling_for(calc: _Calculator, quantity: str) -> float:
+    design = calc.design
+    lowest = calc.rule.lowest_passable_effect()
+    if quantity == "power":
+        return 1.0 if float(design.endpoint.to_benefit(design.assumed_effect)) > lowest else 0.0
+    if quantity == "assurance":
+        return design.ceiling()
+    p_rel = calc.prob_relevant
+    both = calc.prior.prob_above(max(lowest, calc.relevant), inclusive=calc.relevant > lowest)
+    return min(both / p_rel, 1.0)
+
+
+def solve_sample_size(
+    design: TrialDesign,
+    target: float,
+    *,
+    quantity: Quantity = "assurance",
+    max_total: int = 1_000_000,
+    draws: int = DEFAULT_DRAWS,
+    seed: int | None = 20260101,
+) -> SampleSizeAnswer:
+    """Smallest sample size at which ``quantity`` reaches ``target``.
+
+    Sizes are searched on the control arm (whole patients), the treatment arm getting
+    ``ceil(allocation * n_control)``; for one group, on the whole sample. The search doubles
+    until the target is met, then bisects, and finally confirms that one patient fewer on
+    control falls short. The probabilities rise with n for these rules except in unusual
+    designs; the confirmation step guards the answer.
+
+    Parameters
+    ----------
+    design
+        The trial.
+    target
+        Required probability, in (0, 1).
+    quantity
+        ``"power"`` (at the assumed effect), ``"assurance"`` or ``"conditional_assurance"``
+        (mean power over the prior restricted to relevant effects; needs a relevant effect).
+    max_total
+        Largest total sample size considered.
+    draws, seed
+        Monte Carlo settings when sigma is uncertain (the same draws serve every n).
+
+    Returns
+    -------
+    SampleSizeAnswer
+        ``reached`` is False, with the reason in ``message``, when the target is at or above
+        the ceiling or needs more than ``max_total`` patients.
+
+    Examples
+    --------
+    >>> from assurance import ContinuousEndpoint, PointMass, TrialDesign, solve_sample_size
+    >>> d = TrialDesign(ContinuousEndpoint(sigma=1.0), PointMass(0.5))
+    >>> solve_sample_size(d, 0.8, quantity="power").n_control  # Cohen's table: 64 per group
+    64
+    """
+    owner = "solve_sample_size"
+    if not isinstance(design, TrialDesign):
+        raise AssuranceInputError(
+            f"The 'design' parameter of {owner} must be a TrialDesign. Got {design!r} instead."
+        )
+    target = check_real(target, "target", owner, low=0, high=1, low_open=True, high_open=True)
+    check_choice(quantity, "quantity", owner, QUANTITIES)
+    if quantity == "conditional_assurance" and design.relevant_effect is None:
+        raise AssuranceInputError(
+            f"The 'quantity' parameter of {owner} can be 'conditional_assurance' only when the "
+            "design has a relevant_effect. Got a design without one."
+        )
+    max_total = check_int(max_total, "max_total", owner, low=design.endpoint.smallest_total)
+    draws = check_int(draws, "draws", owner, low=100)
+    calc = _Calculator(design, draws, seed)
+    ceiling = _ceiling_for(calc, quantity)
+    label = quantity.replace("_", " ")
+
+    def answer(reached: bool, n_c: int | None, message: str) -> SampleSizeAnswer:
+        if n_c is None:
+            return SampleSizeAnswer(quantity, target, reached, None, None, None, None, None,
+                                    ceiling, message)
+        n_t_arr, n_c_arr = design.endpoint.sizes_from_control(np.array([n_c]))
+        value = calc.quantity(quantity, n_t_arr, n_c_arr)
+        mcse = None
+        if calc.monte_carlo and quantity != "power":
+            mcse = float(calc.assurance(n_t_arr, n_c_arr)[f"{quantity}_mcse"][0])
+        return SampleSizeAnswer(quantity, target, reached, int(n_t_arr[0] + n_c_arr[0]),
+                                int(n_t_arr[0]), int(n_c_arr[0]), float(value[0]), mcse,
+                                ceiling, message)
+
+    if target >= ceiling:
+        return answer(False, None,
+                      f"Target {label} {target:g} is not reachable: no sample size can pass "
+                      f"the ceiling of {ceiling:.3f} (the prior probability of effects at which "
+                      "the rule can be passed). Lower the target or revisit the design.")
+
+    def value_at(n_c: int) -> float:
+        n_t_arr, n_c_arr = design.endpoint.sizes_from_control(np.array([n_c]))
+        return float(calc.quantity(quantity, n_t_arr, n_c_arr)[0])
+
+    arms = design.endpoint.arms
+    low = max(1, math.ceil(design.endpoint.smallest_total / arms))
+    while int(np.sum(design.endpoint.sizes_from_control(np.array([low])))) < \
+            design.endpoint.smallest_total:
+        low += 1
+    if value_at(low) >= target:
+        return answer(True, low, "Reached at the smallest size the analysis allows.")
+    high = low
+    limit = _control_limit(design, max_total)
+    while value_at(high) < target:
+        if high >= limit:
+            return answer(False, None,
+                          f"Target {label} {target:g} needs more than {max_total} patients "
+                          f"(ceiling {ceiling:.3f}).")
+        low, high = high, min(2 * high, limit)
+    while high - low > 1:
+        mid = (low + high) // 2
+        if value_at(mid) >= target:
+            high = mid
+        else:
+            low = mid
+    return answer(True, high, f"Smallest size reaching {label} {target:g}.")
+
+
+def _control_limit(design: TrialDesign, max_total: int) -> int:
+    ep = design.endpoint
+    if ep.layout == "single_arm":
+        return max_total
+    return max(1, int(max_total / (1 + ep.allocation)))

@@ -1,0 +1,121 @@
+"""Success rules, each reduced to a threshold on the effect estimate.
+
+Every rule here is written on the *benefit scale* (larger is better; an endpoint where lower
+is better is flipped before it reaches the rule). A rule turns a standard error and a
+critical value into the threshold ``c`` the estimate must exceed; the computations in
+:mod:`assurance.compute` turn thresholds into probabilities. Later rules (posterior
+probability, go/consider/stop zones) plug in through the same two methods.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Any, Literal
+
+import numpy as np
+from scipy import stats
+
+from ._validation import check_choice, check_real
+
+__all__ = ["Significance"]
+
+
+@dataclass(frozen=True)
+class Significance:
+    """Success iff the one-sided test rejects "no benefit" at level alpha.
+
+    Parameters
+    ----------
+    alpha
+        Significance level. One-sided by default; with ``sided="two"`` the trial is judged
+        by a two-sided test at ``alpha`` and only a result in the favourable direction counts,
+        so the one-sided level used is ``alpha / 2``.
+    sided
+        ``"one"`` or ``"two"``.
+    margin
+        Non-inferiority margin (>= 0) on the effect scale. With ``margin = 0`` the null is
+        "no difference" (superiority); with ``margin > 0`` it is "worse by ``margin`` or more".
+    min_estimate
+        Optionally, the observed effect must also be at least this large (benefit scale) for
+        the trial to count as a success.
+
+    Notes
+    -----
+    With standard error ``se`` and critical value ``z``, success iff
+    ``d > max(-margin + z * se, min_estimate)``. As n grows the threshold tends to
+    ``max(-margin, min_estimate)``, the lowest true effect at which the rule can be passed;
+    the prior probability above it is the ceiling of assurance.
+
+    Examples
+    --------
+    >>> rule = Significance(alpha=0.05, sided="two")
+    >>> round(rule.one_sided_alpha, 3)
+    0.025
+    >>> round(float(rule.threshold(se=1.0, critical=rule.critical_z())), 4)
+    1.96
+    """
+
+    alpha: float = 0.025
+    sided: Literal["one", "two"] = "one"
+    margin: float = 0.0
+    min_estimate: float | None = None
+
+    def __post_init__(self) -> None:
+        check_choice(self.sided, "sided", "Significance", ["one", "two"])
+        high = 0.5 if self.sided == "one" else 1.0
+        alpha = check_real(self.alpha, "alpha", "Significance", low=0, high=high, low_open=True,
+                           high_open=self.sided == "two")
+        object.__setattr__(self, "alpha", alpha)
+        object.__setattr__(self, "margin", check_real(self.margin, "margin", "Significance",
+                                                      low=0))
+        if self.min_estimate is not None:
+            object.__setattr__(self, "min_estimate",
+                               check_real(self.min_estimate, "min_estimate", "Significance"))
+
+    @property
+    def one_sided_alpha(self) -> float:
+        """The one-sided level the favourable-direction test uses."""
+        return self.alpha if self.sided == "one" else self.alpha / 2
+
+    @property
+    def null_value(self) -> float:
+        """Effect under the null hypothesis on the benefit scale (``-margin``)."""
+        return -self.margin
+
+    def critical_z(self) -> float:
+        """Standard-normal critical value ``z_{1 - alpha}``."""
+        return float(stats.norm.isf(self.one_sided_alpha))
+
+    def critical_t(self, df: np.ndarray) -> np.ndarray:
+        """Student t critical values ``t_{1 - alpha, df}``."""
+        return stats.t.isf(self.one_sided_alpha, df)
+
+    def threshold(self, se: Any, critical: Any) -> np.ndarray:
+        """Threshold ``c`` the estimate must exceed, for standard error(s) ``se``."""
+        c = self.null_value + np.asarray(critical) * np.asarray(se)
+        if self.min_estimate is not None:
+            c = np.maximum(c, self.min_estimate)
+        return c
+
+    def lowest_passable_effect(self) -> float:
+        """Limit of the threshold as n grows: the rule's region is ``effect > this``."""
+        floor = -math.inf if self.min_estimate is None else self.min_estimate
+        return max(self.null_value, floor)
+
+    def flipped(self) -> Significance:
+        """The same rule for an endpoint read in the opposite direction."""
+        return Significance(self.alpha, self.sided, self.margin,
+                            None if self.min_estimate is None else -self.min_estimate)
+
+    def describe(self) -> str:
+        """Plain description for memos."""
+        kind = "non-inferiority" if self.margin > 0 else "superiority"
+        text = (f"one-sided test at {self.one_sided_alpha:g}"
+                + (f" (two-sided {self.alpha:g})" if self.sided == "two" else "")
+                + f", {kind}")
+        if self.margin > 0:
+            text += f" with margin {self.margin:g}"
+        if self.min_estimate is not None:
+            text += f"; observed effect must also reach {self.min_estimate:g}"
+        return text
