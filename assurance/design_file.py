@@ -1,0 +1,384 @@
+"""Read a TOML design file into a :class:`~assurance.TrialDesign` and run settings.
+
+The file format is this package's own, in plain words. A complete example::
+
+    title = "Invented example: pain score trial"
+
+    [endpoint]
+    type = "continuous"
+    sd = 10.0               # planning SD of the outcome
+    layout = "two_arm"      # or "single_arm"
+    allocation = 1.0        # treatment patients per control patient
+    analysis = "t"          # "t": SD estimated at the analysis; "z": SD known
+    better = "higher"       # or "lower"
+
+    [success]
+    alpha = 0.05
+    sided = "two"           # two-sided alpha, success only in the favourable direction
+    margin = 0.0            # > 0 for non-inferiority
+    # min_estimate = 2.0    # observed effect must also reach this
+
+    [effect]
+    assumed = 4.0           # classical power is computed here
+    relevant = 3.0          # smallest clinically relevant effect
+    also_power_at = [2.0, 5.0]
+
+    [design_prior]
+    family = "normal"
+    mean = 4.0
+    sd = 2.5
+
+    [sizes]                 # total patients; or: list = [100, 200, 300]
+    from = 20
+    to = 600
+    step = 20
+
+    [targets]
+    power = 0.9
+    assurance = 0.7
+    conditional_assurance = 0.8
+
+    [monte_carlo]           # used only with an [sd_prior]
+    draws = 20000
+    seed = 2026
+
+Every unknown key is an error naming the nearest known key.
+"""
+
+from __future__ import annotations
+
+import difflib
+import math
+import re
+import tomllib
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from .errors import AssuranceInputError, DesignFileError
+
+__all__ = ["DesignFile", "read_design_file", "parse_design", "prior_from_table"]
+
+_TOP = {"title", "endpoint", "success", "effect", "design_prior", "sd_prior", "sizes",
+        "targets", "monte_carlo"}
+_ENDPOINT = {"type", "sd", "layout", "allocation", "analysis", "better"}
+_SUCCESS = {"alpha", "sided", "margin", "min_estimate"}
+_EFFECT = {"assumed", "relevant", "also_power_at"}
+_SIZES = {"from", "to", "step", "list"}
+_TARGETS = {"power", "assurance", "conditional_assurance"}
+_MONTE_CARLO = {"draws", "seed"}
+_FAMILIES: dict[str, tuple[str, dict[str, str]]] = {
+    # family in file -> (class name, {file key: constructor argument})
+    "normal": ("Normal", {"mean": "mean", "sd": "sd"}),
+    "student_t": ("StudentT", {"df": "df", "location": "loc", "scale": "scale"}),
+    "uniform": ("Uniform", {"lower": "lower", "upper": "upper"}),
+    "truncated_normal": ("TruncatedNormal",
+                         {"mean": "mean", "sd": "sd", "lower": "lower", "upper": "upper"}),
+    "point_mass": ("PointMass", {"value": "value"}),
+    "scaled_inv_chi_square": ("ScaledInvChiSquare", {"df": "df", "scale": "scale"}),
+    "gamma_precision": ("GammaPrecision", {"shape": "shape", "rate": "rate"}),
+}
+_OPTIONAL = {"TruncatedNormal": {"lower", "upper"}, "StudentT": {"loc", "scale"}}
+
+
+@dataclass(frozen=True)
+class DesignFile:
+    """A parsed design file: the design plus what to compute."""
+
+    design: Any
+    sizes: np.ndarray | None
+    targets: dict[str, float] = field(default_factory=dict)
+    draws: int = 20_000
+    seed: int = 20260101
+    source: str = ""
+
+
+def read_design_file(path: str | Path) -> DesignFile:
+    """Read and check a TOML design file.
+
+    Raises
+    ------
+    DesignFileError
+        If the file is missing, is not valid TOML, has unknown keys or invalid values; the
+        message names the key, the value and what is allowed.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> text = '''title = "Demo"
+    ... [endpoint]
+    ... sd = 10
+    ... [design_prior]
+    ... family = "normal"
+    ... mean = 4
+    ... sd = 2
+    ... '''
+    >>> with tempfile.TemporaryDirectory() as tmp:
+    ...     path = pathlib.Path(tmp, "trial.toml")
+    ...     _ = path.write_text(text)
+    ...     spec = read_design_file(path)
+    >>> spec.design.endpoint.sigma
+    10.0
+    """
+    path = Path(path)
+    if not path.is_file():
+        raise DesignFileError(f"Design file not found: {str(path)!r}. Check the path.")
+    try:
+        raw = tomllib.loads(path.read_text(encoding="utf-8"))
+    except tomllib.TOMLDecodeError as exc:
+        raise DesignFileError(f"{path} is not valid TOML: {exc}.") from None
+    except UnicodeDecodeError:
+        raise DesignFileError(f"{path} is not a UTF-8 text file.") from None
+    return parse_design(raw, source=str(path))
+
+
+def parse_design(raw: dict[str, Any], *, source: str = "design") -> DesignFile:
+    """Build a :class:`DesignFile` from an already-parsed TOML mapping."""
+    from .design import TrialDesign
+    from .endpoints.continuous import ContinuousEndpoint
+    from .rules import Significance
+
+    _known(raw, _TOP, "", source)
+    for req in ("endpoint", "design_prior"):
+        if req not in raw:
+            raise DesignFileError(f"{source}: the [{req}] table is missing; it is required.")
+    endpoint_t = _table(raw, "endpoint", source)
+    _known(endpoint_t, _ENDPOINT, "endpoint", source)
+    kind = endpoint_t.get("type", "continuous")
+    if kind != "continuous":
+        raise DesignFileError(
+            f"{source}: 'endpoint.type' must be 'continuous' (other endpoints are not yet "
+            f"available). Got {kind!r}."
+        )
+    if "sd" not in endpoint_t:
+        raise DesignFileError(f"{source}: 'endpoint.sd' (the outcome's SD) is required.")
+    success_t = _table(raw, "success", source, required=False)
+    _known(success_t, _SUCCESS, "success", source)
+    effect_t = _table(raw, "effect", source, required=False)
+    _known(effect_t, _EFFECT, "effect", source)
+    sizes_t = _table(raw, "sizes", source, required=False)
+    _known(sizes_t, _SIZES, "sizes", source)
+    targets_t = _table(raw, "targets", source, required=False)
+    _known(targets_t, _TARGETS, "targets", source)
+    mc_t = _table(raw, "monte_carlo", source, required=False)
+    _known(mc_t, _MONTE_CARLO, "monte_carlo", source)
+
+    with _as_file_error(source, "endpoint"):
+        endpoint = ContinuousEndpoint(
+            sigma=endpoint_t["sd"],
+            layout=endpoint_t.get("layout", "two_arm"),
+            allocation=endpoint_t.get("allocation", 1.0),
+            analysis=endpoint_t.get("analysis", "t"),
+            better=endpoint_t.get("better", "higher"),
+        )
+    with _as_file_error(source, "success"):
+        rule = Significance(
+            alpha=success_t.get("alpha", 0.025),
+            sided=success_t.get("sided", "one"),
+            margin=success_t.get("margin", 0.0),
+            min_estimate=success_t.get("min_estimate"),
+        )
+    design_prior = prior_from_table(_table(raw, "design_prior", source), "design_prior", source)
+    sd_prior = None
+    if "sd_prior" in raw:
+        sd_prior = prior_from_table(_table(raw, "sd_prior", source), "sd_prior", source)
+    with _as_file_error(source, "effect"):
+        also = effect_t.get("also_power_at", [])
+        if not isinstance(also, list):
+            raise AssuranceInputError(
+                f"The 'also_power_at' key must be a list of numbers. Got {also!r} instead."
+            )
+    with _as_file_error(source, "top level"):
+        design = TrialDesign(
+            endpoint=endpoint,
+            design_prior=design_prior,
+            rule=rule,
+            assumed_effect=effect_t.get("assumed"),
+            relevant_effect=effect_t.get("relevant"),
+            sigma_prior=sd_prior,
+            power_effects=tuple(also),
+            title=raw.get("title", Path(source).stem or "Untitled trial"),
+        )
+    sizes = _sizes(sizes_t, source) if sizes_t else None
+    targets: dict[str, float] = {}
+    for key, value in targets_t.items():
+        if isinstance(value, bool) or not isinstance(value, int | float) or not 0 < value < 1:
+            raise DesignFileError(
+                f"{source}: 'targets.{key}' must be a probability strictly between 0 and 1. "
+                f"Got {value!r}."
+            )
+        targets[key] = float(value)
+    if "conditional_assurance" in targets and design.relevant_effect is None:
+        raise DesignFileError(
+            f"{source}: 'targets.conditional_assurance' needs 'effect.relevant' (the smallest "
+            "clinically relevant effect)."
+        )
+    draws = _whole(mc_t.get("draws", 20_000), "monte_carlo.draws", source, 100)
+    seed = _whole(mc_t.get("seed", 20260101), "monte_carlo.seed", source, 0)
+    return DesignFile(design=design, sizes=sizes, targets=targets, draws=draws, seed=seed,
+                      source=source)
+
+
+def prior_from_table(table: dict[str, Any], where: str, source: str = "design") -> Any:
+    """Build a prior from a design-file table such as ``{family = "normal", mean = 1, sd = 2}``.
+
+    Mixtures are written ``family = "mixture"`` with ``parts = [{weight = 0.3, family =
+    "point_mass", value = 0}, {weight = 0.7, family = "normal", mean = 3, sd = 1}]``.
+    Any continuous ``scipy.stats`` distribution: ``family = "scipy"``, ``name = "logistic"``,
+    ``parameters = {loc = 1, scale = 0.5}``.
+
+    Examples
+    --------
+    >>> prior_from_table({"family": "normal", "mean": 1.0, "sd": 2.0}, "design_prior")
+    normal(mean=1, sd=2)
+    """
+    from . import priors
+
+    if not isinstance(table, dict):
+        raise DesignFileError(f"{source}: [{where}] must be a table. Got {table!r}.")
+    family = table.get("family")
+    if family is None:
+        raise DesignFileError(f"{source}: '{where}.family' is required; choose one of "
+                              f"{', '.join(sorted([*_FAMILIES, 'mixture', 'scipy']))}.")
+    if family == "mixture":
+        _known(table, {"family", "parts"}, where, source)
+        parts = table.get("parts")
+        if not isinstance(parts, list) or not parts:
+            raise DesignFileError(f"{source}: '{where}.parts' must be a non-empty list of "
+                                  "tables, each with a weight and a family.")
+        comps, weights = [], []
+        for i, part in enumerate(parts):
+            if not isinstance(part, dict) or "weight" not in part:
+                raise DesignFileError(f"{source}: '{where}.parts[{i}]' needs a 'weight'.")
+            rest = {k: v for k, v in part.items() if k != "weight"}
+            comps.append(prior_from_table(rest, f"{where}.parts[{i}]", source))
+            weights.append(part["weight"])
+        with _as_file_error(source, where):
+            return priors.Mixture(comps, weights)
+    if family == "scipy":
+        _known(table, {"family", "name", "parameters"}, where, source)
+        return _scipy_prior(table, where, source)
+    if family not in _FAMILIES:
+        close = difflib.get_close_matches(str(family), [*_FAMILIES, "mixture", "scipy"], n=1)
+        hint = f" Did you mean {close[0]!r}?" if close else ""
+        raise DesignFileError(
+            f"{source}: '{where}.family' must be one of "
+            f"{', '.join(sorted([*_FAMILIES, 'mixture', 'scipy']))}. Got {family!r}.{hint}"
+        )
+    cls_name, mapping = _FAMILIES[family]
+    _known(table, {"family", *mapping}, where, source)
+    optional = _OPTIONAL.get(cls_name, set())
+    missing = [k for k, arg in mapping.items() if k not in table and arg not in optional]
+    if missing:
+        raise DesignFileError(f"{source}: '{where}' ({family}) needs "
+                              f"{', '.join(repr(m) for m in missing)}.")
+    kwargs = {mapping[k]: _number(v, f"{where}.{k}", source) for k, v in table.items()
+              if k != "family"}
+    with _as_file_error(source, where):
+        return getattr(priors, cls_name)(**kwargs)
+
+
+def _scipy_prior(table: dict[str, Any], where: str, source: str) -> Any:
+    from scipy import stats
+
+    from .priors import FromScipy
+
+    name = table.get("name")
+    params = table.get("parameters", {})
+    dist = getattr(stats, str(name), None)
+    if not isinstance(dist, stats.rv_continuous):
+        raise DesignFileError(f"{source}: '{where}.name' must name a continuous scipy.stats "
+                              f"distribution (e.g. 'logistic', 'gamma'). Got {name!r}.")
+    if not isinstance(params, dict):
+        raise DesignFileError(f"{source}: '{where}.parameters' must be a table. Got {params!r}.")
+    try:
+        frozen = dist(**{k: _number(v, f"{where}.parameters.{k}", source)
+                         for k, v in params.items()})
+        frozen.cdf(0.0)
+    except TypeError as exc:
+        raise DesignFileError(f"{source}: '{where}.parameters' do not fit scipy.stats.{name}: "
+                              f"{exc}.") from None
+    if not np.all(np.isfinite(frozen.support())) and not np.isfinite(frozen.mean()):
+        raise DesignFileError(f"{source}: scipy.stats.{name} with {params} has no finite mean.")
+    return FromScipy(frozen)
+
+
+def _sizes(t: dict[str, Any], source: str) -> np.ndarray:
+    if "list" in t:
+        if set(t) - {"list"}:
+            raise DesignFileError(f"{source}: give [sizes] either 'list' or 'from'/'to'/'step', "
+                                  "not both.")
+        values = t["list"]
+        if not isinstance(values, list) or not values:
+            raise DesignFileError(f"{source}: 'sizes.list' must be a non-empty list of whole "
+                                  f"numbers. Got {values!r}.")
+        return np.array([_whole(v, "sizes.list", source, 1) for v in values])
+    missing = [k for k in ("from", "to") if k not in t]
+    if missing:
+        raise DesignFileError(f"{source}: [sizes] needs {' and '.join(repr(m) for m in missing)}"
+                              " (or a 'list').")
+    lo = _whole(t["from"], "sizes.from", source, 1)
+    hi = _whole(t["to"], "sizes.to", source, lo)
+    step = _whole(t.get("step", max(1, (hi - lo) // 50)), "sizes.step", source, 1)
+    if (hi - lo) // step > 5000:
+        raise DesignFileError(f"{source}: [sizes] asks for {(hi - lo) // step + 1} sizes; "
+                              "use a larger 'step' (at most 5000 sizes).")
+    return np.arange(lo, hi + 1, step)
+
+
+def _whole(value: Any, key: str, source: str, low: int) -> int:
+    if isinstance(value, bool) or not isinstance(value, int) or value < low:
+        raise DesignFileError(f"{source}: '{key}' must be a whole number >= {low}. "
+                              f"Got {value!r}.")
+    return int(value)
+
+
+def _number(value: Any, key: str, source: str) -> float:
+    if isinstance(value, bool) or not isinstance(value, int | float) or not math.isfinite(value):
+        raise DesignFileError(f"{source}: '{key}' must be a finite number. Got {value!r}.")
+    return float(value)
+
+
+def _table(raw: dict[str, Any], key: str, source: str, required: bool = True) -> dict[str, Any]:
+    value = raw.get(key, None if required else {})
+    if not isinstance(value, dict):
+        raise DesignFileError(f"{source}: '{key}' must be a table ([{key}]). Got {value!r}.")
+    return value
+
+
+def _known(table: dict[str, Any], allowed: set[str], where: str, source: str) -> None:
+    for key in table:
+        if key not in allowed:
+            close = difflib.get_close_matches(key, sorted(allowed), n=1, cutoff=0.5)
+            hint = f" Did you mean {close[0]!r}?" if close else ""
+            place = f"[{where}]" if where else "the top level"
+            raise DesignFileError(
+                f"{source}: unknown key {key!r} in {place}.{hint} Known keys: "
+                f"{', '.join(sorted(allowed))}."
+            )
+
+
+_FILE_KEYS = {"sigma": "sd", "loc": "location", "assumed_effect": "effect.assumed",
+              "relevant_effect": "effect.relevant", "power_effects": "effect.also_power_at",
+              "sigma_prior": "sd_prior"}
+
+
+class _as_file_error:  # noqa: N801 - used as a context manager
+    """Re-raise an input error from a constructor as a design-file error naming the key."""
+
+    def __init__(self, source: str, where: str):
+        self.source, self.where = source, where
+
+    def __enter__(self) -> None:
+        return None
+
+    def __exit__(self, exc_type, exc, tb) -> bool:
+        if exc is not None and isinstance(exc, AssuranceInputError) and not isinstance(
+            exc, DesignFileError
+        ):
+            text = re.sub(r"The '(\w+)' parameter of \w+",
+                          lambda m: f"The '{_FILE_KEYS.get(m.group(1), m.group(1))}' key", str(exc))
+            raise DesignFileError(f"{self.source} [{self.where}]: {text}") from None
+        return False
