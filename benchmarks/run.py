@@ -1,0 +1,97 @@
+"""Speed benchmarks, run on demand (``make bench``); never part of the test suite.
+
+Measures, in one run on this machine:
+
+1. ``evaluate`` over a 100-point n grid (power, assurance, ceiling, decomposition) for a
+   normal design prior, z and t analyses, in process;
+2. ``statsmodels`` power over the same grid, one n at a time (the usual loop a planner
+   would write), and the ratio of the two;
+3. ``assurance --help`` wall time (it must import nothing heavy);
+4. the whole ``assurance plan`` command on the shipped closed-form case study, memo and
+   figures included;
+5. a Monte Carlo design (prior on sigma, 20,000 draws) over 50 sizes.
+
+Targets (from the issue that introduced them): (1) under 2 ms, at least 5 times faster than
+(2); (3) under 0.3 s; (4) under 3 s.
+"""
+
+from __future__ import annotations
+
+import statistics
+import subprocess
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+import numpy as np
+
+ROOT = Path(__file__).resolve().parents[1]
+BIN = Path(sys.executable).parent
+
+
+def best_of(func, repeat: int = 7, number: int = 20) -> float:
+    """Best mean time per call in seconds over ``repeat`` batches of ``number`` calls."""
+    times = []
+    for _ in range(repeat):
+        start = time.perf_counter()
+        for _ in range(number):
+            func()
+        times.append((time.perf_counter() - start) / number)
+    return min(times)
+
+
+def wall(cmd: list[str], repeat: int = 5) -> float:
+    times = []
+    for _ in range(repeat):
+        start = time.perf_counter()
+        subprocess.run(cmd, check=True, capture_output=True)
+        times.append(time.perf_counter() - start)
+    return statistics.median(times)
+
+
+def main() -> None:
+    import assurance as asr
+    from statsmodels.stats.power import NormalIndPower, TTestIndPower
+
+    n_total = np.arange(20, 2020, 20)  # 100 sizes
+    sigma, mean, sd = 10.0, 4.0, 3.0
+    rows = []
+    for analysis, sm in (("z", NormalIndPower()), ("t", TTestIndPower())):
+        design = asr.TrialDesign(asr.ContinuousEndpoint(sigma=sigma, analysis=analysis),
+                                 asr.Normal(mean, sd), relevant_effect=3.0)
+        asr.evaluate(design, n_total)
+        ours = best_of(lambda d=design: asr.evaluate(d, n_total))
+
+        def loop(sm=sm):
+            for n in n_total:
+                sm.power(effect_size=mean / sigma, nobs1=n // 2, alpha=0.025, ratio=1.0,
+                         alternative="larger")
+
+        theirs = best_of(loop, repeat=3, number=2)
+        rows.append((analysis, ours, theirs))
+    print("1-2. 100-point grid, normal prior (power + assurance + ceiling + decomposition)")
+    for analysis, ours, theirs in rows:
+        print(f"     {analysis} analysis: assurance.evaluate {ours * 1e3:7.2f} ms | statsmodels "
+              f"power alone, one n at a time {theirs * 1e3:7.2f} ms | ratio {theirs / ours:5.1f}x")
+
+    helpt = wall([str(BIN / "assurance"), "--help"])
+    print(f"3.   assurance --help: {helpt:.3f} s wall (median of 5)")
+
+    with tempfile.TemporaryDirectory() as tmp:
+        design_file = ROOT / "case_studies" / "knee_pain" / "design.toml"
+        cmd = [str(BIN / "assurance"), "plan", str(design_file), "--out", f"{tmp}/o", "--quiet",
+               "--overwrite"]
+        plant = wall(cmd, repeat=3)
+    print(f"4.   assurance plan (knee pain case study, memo + figures): {plant:.2f} s wall "
+          "(median of 3)")
+
+    design = asr.TrialDesign(asr.ContinuousEndpoint(sigma=sigma), asr.Normal(mean, sd),
+                             sigma_prior=asr.ScaledInvChiSquare(30, sigma), relevant_effect=3.0)
+    sizes = np.arange(40, 2040, 40)
+    mc = best_of(lambda: asr.evaluate(design, sizes, draws=20_000), repeat=2, number=1)
+    print(f"5.   Monte Carlo (sigma prior, 20,000 draws, 50 sizes): {mc:.2f} s")
+
+
+if __name__ == "__main__":
+    main()
