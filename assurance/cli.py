@@ -99,10 +99,16 @@ class _Progress:
                   flush=True)
 
     def chunks(self, label: str):
+        live = sys.stderr.isatty()
+
         def report(done: int, total: int) -> None:
-            if not self.quiet and total > 1:
+            if self.quiet or total < 2:
+                return
+            if live:
                 print(f"\r        {label}: {done}/{total}", end="" if done < total else "\n",
                       file=sys.stderr, flush=True)
+            elif done == total:
+                print(f"        {label}: {total} chunks done", file=sys.stderr, flush=True)
         return report
 
 
@@ -163,7 +169,9 @@ def run_plan(spec: Any, progress: _Progress | None = None) -> dict[str, Any]:
 
 
 def _default_sizes(spec: Any, answers: list[Any]) -> Any:
-    """About 50 sizes from the smallest allowed to 1.5 times the largest solved n."""
+    """About 50 evenly spaced round sizes up to 1.5 times the largest solved n."""
+    import math
+
     import numpy as np
 
     from .planning import solve_sample_size
@@ -173,9 +181,13 @@ def _default_sizes(spec: Any, answers: list[Any]) -> Any:
     if not reached:
         fallback = solve_sample_size(design, 0.9, quantity="power")
         reached = [fallback.n_total] if fallback.reached else [1000]
-    low = design.endpoint.smallest_total
-    high = max(int(1.5 * max(reached)), low + 20)
-    return np.unique(np.round(np.linspace(low, high, 50)).astype(int))
+    high = max(1.5 * max(reached), 20.0)
+    raw_step = high / 50
+    magnitude = 10 ** math.floor(math.log10(raw_step))
+    step = next(m * magnitude for m in (1, 2, 5, 10) if m * magnitude >= raw_step)
+    step = max(int(step), 1)
+    grid = np.arange(step, high + step, step).astype(int)
+    return grid[grid >= design.endpoint.smallest_total]
 
 
 if __name__ == "__main__":  # pragma: no cover

@@ -15,6 +15,9 @@ from .rules import Significance
 
 __all__ = ["TrialDesign"]
 
+#: Smallest prior probability of the relevant region for which conditional figures are given.
+MIN_RELEVANT_MASS = 1e-6
+
 
 @dataclass(frozen=True)
 class TrialDesign:
@@ -83,12 +86,13 @@ class TrialDesign:
             rel = check_real(self.relevant_effect, "relevant_effect", owner)
             object.__setattr__(self, "relevant_effect", rel)
             mass = self.benefit_prior.prob_above(self.endpoint.to_benefit(rel), inclusive=True)
-            if mass <= 0.0:
+            if mass < MIN_RELEVANT_MASS:
                 word = ">=" if self.endpoint.better == "higher" else "<="
                 raise AssuranceInputError(
-                    f"The 'relevant_effect' parameter of {owner} must leave some prior "
-                    f"probability on effects {word} it; the design prior "
-                    f"{prior.describe()} gives {mass:g} to effects {word} {rel:g}."
+                    f"The 'relevant_effect' parameter of {owner} must leave a prior "
+                    f"probability of at least {MIN_RELEVANT_MASS:g} on effects {word} it; the "
+                    f"design prior {prior.describe()} gives {mass:.3g} to effects {word} "
+                    f"{rel:g}. Got {rel!r} instead."
                 )
         if self.sigma_prior is not None:
             sp = as_prior(self.sigma_prior, "sigma_prior", owner)

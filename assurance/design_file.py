@@ -202,6 +202,12 @@ def parse_design(raw: dict[str, Any], *, source: str = "design") -> DesignFile:
             title=raw.get("title", Path(source).stem or "Untitled trial"),
         )
     sizes = _sizes(sizes_t, source) if sizes_t else None
+    smallest = design.endpoint.smallest_total
+    if sizes is not None and sizes.min() < smallest:
+        raise DesignFileError(
+            f"{source}: every entry of 'sizes' must be >= {smallest} (the fewest patients this "
+            f"analysis allows). Got {int(sizes.min())}."
+        )
     targets: dict[str, float] = {}
     for key, value in targets_t.items():
         if isinstance(value, bool) or not isinstance(value, int | float) or not 0 < value < 1:

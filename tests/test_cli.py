@@ -1,0 +1,203 @@
+"""Command line: promised files, no silent overwrite, clear messages for bad input."""
+
+from __future__ import annotations
+
+import csv
+import hashlib
+import subprocess
+import sys
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from assurance.cli import main
+from assurance.design_file import read_design_file
+from assurance.planning import evaluate
+
+ROOT = Path(__file__).resolve().parents[1]
+CASE = ROOT / "case_studies" / "knee_pain" / "design.toml"
+
+PROMISED = [
+    "memo.html",
+    "results.csv",
+    "results.nc",
+    "sample_sizes.csv",
+    "design.json",
+    "figures/prior.png",
+    "figures/prior.svg",
+    "figures/power_and_assurance.png",
+    "figures/power_and_assurance.svg",
+]
+
+GOOD = """\
+title = "Test design"
+[endpoint]
+sd = 10.0
+analysis = "z"
+[success]
+alpha = 0.025
+[effect]
+assumed = 4.0
+relevant = 3.0
+[design_prior]
+family = "normal"
+mean = 4.0
+sd = 2.0
+[sizes]
+list = [50, 100, 200]
+[targets]
+assurance = 0.6
+"""
+
+
+def _tree_digest(folder: Path) -> str:
+    h = hashlib.sha256()
+    for path in sorted(folder.rglob("*")):
+        h.update(str(path.relative_to(folder)).encode())
+        if path.is_file():
+            h.update(path.read_bytes())
+    return h.hexdigest()
+
+
+@pytest.fixture(scope="module")
+def case_output(tmp_path_factory):
+    out = tmp_path_factory.mktemp("case") / "plan"
+    assert main(["plan", str(CASE), "--out", str(out), "--quiet"]) == 0
+    return out
+
+
+def test_plan_writes_every_promised_file(case_output):
+    for name in PROMISED:
+        path = case_output / name
+        assert path.is_file(), name
+        assert path.stat().st_size > 0, name
+    # nothing half-written is left beside the folder
+    leftovers = [p for p in case_output.parent.iterdir() if p.name.startswith(".")]
+    assert leftovers == []
+
+
+def test_results_files_hold_the_computed_numbers(case_output):
+    import xarray as xr
+
+    spec = read_design_file(CASE)
+    with xr.open_dataset(case_output / "results.nc", engine="scipy") as saved:
+        fresh = evaluate(spec.design, saved.n.values, seed=spec.seed)
+        np.testing.assert_allclose(saved.assurance.values, fresh.assurance.values, rtol=1e-12)
+        np.testing.assert_allclose(saved.power.values, fresh.power.values, rtol=1e-12)
+        assert saved.attrs["package_version"]
+    with open(case_output / "results.csv", newline="") as fh:
+        rows = list(csv.DictReader(fh))
+    assert [int(r["n"]) for r in rows] == [int(v) for v in fresh.n.values]
+    np.testing.assert_allclose([float(r["assurance"]) for r in rows], fresh.assurance.values,
+                               rtol=1e-5)  # CSV keeps 6 significant digits
+    with open(case_output / "sample_sizes.csv", newline="") as fh:
+        targets = {r["quantity"]: r for r in csv.DictReader(fh)}
+    assert set(targets) == set(spec.targets)
+
+
+def test_existing_output_is_not_overwritten(case_output, capsys):
+    before = _tree_digest(case_output)
+    code = main(["plan", str(CASE), "--out", str(case_output), "--quiet"])
+    err = capsys.readouterr().err
+    assert code == 2
+    assert "already exists" in err and "--overwrite" in err
+    assert _tree_digest(case_output) == before
+
+
+def test_overwrite_replaces_the_folder(tmp_path):
+    design = tmp_path / "d.toml"
+    design.write_text(GOOD)
+    out = tmp_path / "out"
+    assert main(["plan", str(design), "--out", str(out), "--quiet"]) == 0
+    (out / "memo.html").write_text("stale")
+    assert main(["plan", str(design), "--out", str(out), "--quiet", "--overwrite"]) == 0
+    assert (out / "memo.html").read_text() != "stale"
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["d.toml", "out"]
+
+
+BAD_CASES = [
+    # (replacement in GOOD, words the message must contain)
+    (("sd = 10.0", "sd = -1.0"), ["'sd'", "-1.0", "> 0"]),
+    (("sd = 10.0", "sd = nan"), ["'sd'", "nan"]),
+    (("sd = 10.0", "sd = inf"), ["'sd'", "inf"]),
+    (("alpha = 0.025", "alpha = 0.7"), ["'alpha'", "0.7", "(0, 0.5]"]),
+    (("analysis = \"z\"", "analysis = \"z\"\nallocation = 0"), ["'allocation'", "0"]),
+    (("[effect]", "[effect]\nasumed = 3"), ["asumed", "Did you mean 'assumed'"]),
+    (("family = \"normal\"", "family = \"normall\""), ["normall", "Did you mean 'normal'"]),
+    (("list = [50, 100, 200]", "list = [1, 100]"), ["'sizes'", ">= 2"]),
+    (("assurance = 0.6", "assurance = 1.2"), ["targets.assurance", "1.2"]),
+    (("relevant = 3.0", "relevant = 30.0"), ["relevant", "30"]),
+    (
+        ("family = \"normal\"\nmean = 4.0\nsd = 2.0",
+         "family = \"mixture\"\nparts = [{weight = 0.5, family = \"point_mass\", value = 0.0},"
+         " {weight = 0.6, family = \"normal\", mean = 4.0, sd = 2.0}]"),
+        ["'weights'", "sum to 1"],
+    ),
+    (("[sizes]", "[sd_prior]\nfamily = \"normal\"\nmean = 1.0\nsd = 1.0\n[sizes]"),
+     ["sd_prior", "sigma > 0"]),
+    (("title = \"Test design\"", "title = \"Test design\"\ncolour = \"red\""),
+     ["unknown key 'colour'"]),
+    (("[design_prior]", "[design_prior"), ["not valid TOML"]),
+]
+
+
+@pytest.mark.parametrize(("change", "words"), BAD_CASES)
+def test_bad_design_gives_a_clear_message_and_no_output(tmp_path, capsys, change, words):
+    design = tmp_path / "bad.toml"
+    old, new = change
+    assert old in GOOD
+    design.write_text(GOOD.replace(old, new, 1))
+    out = tmp_path / "out"
+    code = main(["plan", str(design), "--out", str(out), "--quiet"])
+    err = capsys.readouterr().err
+    assert code == 2
+    for word in words:
+        assert word in err, (word, err)
+    assert "Traceback" not in err
+    assert not out.exists()
+
+
+def test_missing_design_file(tmp_path, capsys):
+    code = main(["check", str(tmp_path / "nope.toml")])
+    err = capsys.readouterr().err
+    assert code == 2
+    assert "not found" in err and "nope.toml" in err
+
+
+def test_check_accepts_the_case_study(capsys):
+    assert main(["check", str(CASE)]) == 0
+    assert "ok" in capsys.readouterr().out
+
+
+def test_real_process_exits_2_without_traceback(tmp_path):
+    design = tmp_path / "bad.toml"
+    design.write_text(GOOD.replace("sd = 10.0", "sd = 0"))
+    proc = subprocess.run([sys.executable, "-m", "assurance.cli", "plan", str(design), "--out",
+                           str(tmp_path / "o")], capture_output=True, text=True)
+    assert proc.returncode == 2
+    assert "Traceback" not in proc.stderr
+    assert "'sd'" in proc.stderr
+
+
+def test_help_imports_nothing_heavy():
+    code = ("import sys, assurance.cli as c\n"
+            "try:\n    c.main(['--help'])\nexcept SystemExit:\n    pass\n"
+            "heavy = [m for m in ('numpy', 'scipy', 'xarray', 'matplotlib', 'pymc')"
+            " if m in sys.modules]\n"
+            "print(','.join(heavy))")
+    proc = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                          check=True)
+    assert proc.stdout.strip().splitlines()[-1] == ""
+
+
+def test_monte_carlo_design_runs_and_reports_standard_errors(tmp_path):
+    design = tmp_path / "mc.toml"
+    design.write_text(GOOD.replace("[sizes]", "[sd_prior]\nfamily = \"scaled_inv_chi_square\"\n"
+                                   "df = 30\nscale = 10.0\n[monte_carlo]\ndraws = 2000\n"
+                                   "seed = 7\n[sizes]"))
+    out = tmp_path / "out"
+    assert main(["plan", str(design), "--out", str(out), "--quiet"]) == 0
+    with open(out / "results.csv", newline="") as fh:
+        rows = list(csv.DictReader(fh))
+    assert all(float(r["assurance_mcse"]) > 0 for r in rows)
