@@ -121,9 +121,45 @@ class TrialDesign:
         return self.rule if self.endpoint.sign > 0 else self.rule.flipped()
 
     def ceiling(self) -> float:
-        """Prior probability of the effects at which the rule can be passed (n -> infinity)."""
-        lowest = self.benefit_rule.lowest_passable_effect()
-        return 1.0 if lowest == -math.inf else self.benefit_prior.prob_above(lowest)
+        """The value assurance approaches as n grows: the most any sample size can give.
+
+        Notes
+        -----
+        With ``L`` the lowest effect at which the rule can be passed (0 for superiority,
+        ``-margin`` for non-inferiority, or the minimum observed effect), the ceiling is
+        ``P(effect > L)`` plus, for a point mass exactly at ``L`` (say "the drug does
+        nothing"), its weight times the success probability there in the limit (alpha at
+        the null). Only false positives, bounded by alpha, can lift a small trial's assurance
+        above it, and only where the ceiling itself is below alpha.
+        """
+        return self.success_limit()
+
+    def success_limit(self, *, effect_above: float | None = None,
+                      inclusive: bool = False) -> float:
+        """Limit as n grows of P(success and effect above a cut), benefit scale.
+
+        Examples
+        --------
+        >>> from assurance import ContinuousEndpoint, Mixture, Normal, PointMass, TrialDesign
+        >>> prior = Mixture([PointMass(0.0), Normal(3.0, 1e-3)], [0.2, 0.8])
+        >>> d = TrialDesign(ContinuousEndpoint(sigma=1.0), prior)
+        >>> round(d.success_limit(), 4)  # 0.8 + 0.2 * 0.025 (false positives at no effect)
+        0.805
+        """
+        rule, prior = self.benefit_rule, self.benefit_prior
+        lowest = rule.lowest_passable_effect()
+        if lowest == -math.inf:
+            return 1.0 if effect_above is None else prior.prob_above(effect_above,
+                                                                      inclusive=inclusive)
+        if effect_above is not None and effect_above > lowest:
+            return prior.prob_above(effect_above, inclusive=inclusive)
+        total = prior.prob_above(lowest)
+        in_region = effect_above is None or lowest > effect_above or (
+            inclusive and lowest == effect_above)
+        if in_region:
+            total += sum(w for loc, w in prior.atoms() if loc == lowest) \
+                * rule.limit_success_at(lowest)
+        return min(total, 1.0)
 
     def prob_benefit(self) -> float:
         """Prior probability that the treatment is better at all (effect beyond 0)."""

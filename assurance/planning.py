@@ -261,14 +261,12 @@ class SampleSizeAnswer:
 
 def _ceiling_for(calc: _Calculator, quantity: str) -> float:
     design = calc.design
-    lowest = calc.rule.lowest_passable_effect()
     if quantity == "power":
-        return 1.0 if float(design.endpoint.to_benefit(design.assumed_effect)) > lowest else 0.0
+        return calc.rule.limit_success_at(float(design.endpoint.to_benefit(design.assumed_effect)))
     if quantity == "assurance":
         return design.ceiling()
-    p_rel = calc.prob_relevant
-    both = calc.prior.prob_above(max(lowest, calc.relevant), inclusive=calc.relevant > lowest)
-    return min(both / p_rel, 1.0)
+    limit = design.success_limit(effect_above=calc.relevant, inclusive=True)
+    return min(limit / calc.prob_relevant, 1.0)
 
 
 def solve_sample_size(

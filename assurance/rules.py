@@ -103,6 +103,20 @@ class Significance:
         floor = -math.inf if self.min_estimate is None else self.min_estimate
         return max(self.null_value, floor)
 
+    def limit_success_at(self, effect: float) -> float:
+        """Probability of success at a true ``effect`` as n grows without bound.
+
+        1 beyond :meth:`lowest_passable_effect`, 0 below it; exactly at it, the level
+        ``alpha`` when it is the null value (the test keeps its size at every n) and 1/2
+        when it is the minimum observed effect (the estimate falls either side of it).
+        """
+        lowest = self.lowest_passable_effect()
+        if effect > lowest:
+            return 1.0
+        if effect < lowest:
+            return 0.0
+        return self.one_sided_alpha if lowest == self.null_value else 0.5
+
     def flipped(self) -> Significance:
         """The same rule for an endpoint read in the opposite direction."""
         return Significance(self.alpha, self.sided, self.margin,

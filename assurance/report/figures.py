@@ -1,0 +1,574 @@
+"""Figures for a planning memo: the design prior, and power beside assurance by sample size.
+
+Every function draws into a given matplotlib ``Axes`` or, without one, into a new figure
+on the off-screen Agg canvas (no window is ever opened and the global backend is left
+alone). matplotlib is imported only when a figure is drawn, so importing this module is
+cheap.
+
+Colours come from the Okabe-Ito palette, which stays distinguishable for the common forms
+of colour blindness; line styles differ as well, so the figures also read in grey.
+"""
+
+from __future__ import annotations
+
+import io
+import json
+import math
+import os
+from collections.abc import Sequence
+from pathlib import Path
+from typing import TYPE_CHECKING, Any
+
+import numpy as np
+
+from ..errors import AssuranceInputError
+from ._files import check_target, write_atomic
+
+if TYPE_CHECKING:  # pragma: no cover
+    from matplotlib.axes import Axes
+    from matplotlib.figure import Figure
+
+    from ..design import TrialDesign
+    from ..planning import SampleSizeAnswer
+
+__all__ = [
+    "plot_prior",
+    "plot_power_and_assurance",
+    "plot_decomposition",
+    "save_figure",
+    "figure_bytes",
+]
+
+# Okabe-Ito colours
+_BLACK = "#000000"
+_ORANGE = "#E69F00"
+_SKY = "#56B4E9"
+_GREEN = "#009E73"
+_BLUE = "#0072B2"
+_VERMILLION = "#D55E00"
+_PURPLE = "#CC79A7"
+_GREY = "#7F7F7F"
+_LIGHT = "#E6E6E6"
+
+_QUANTITY_COLOUR = {"power": _BLUE, "assurance": _VERMILLION, "conditional_assurance": _GREEN}
+_QUANTITY_NAME = {
+    "power": "classical power",
+    "assurance": "assurance",
+    "conditional_assurance": "conditional assurance",
+}
+
+_FIGSIZE = (7.6, 4.6)
+_TEXT_BOX = {"boxstyle": "round,pad=0.15", "facecolor": "white", "edgecolor": "none",
+             "alpha": 0.85}
+_DPI = 150
+
+
+# ------------------------------------------------------------------------------------------
+# shared helpers
+# ------------------------------------------------------------------------------------------
+def _axes(ax: Axes | None, figsize: tuple[float, float] = _FIGSIZE) -> Axes:
+    """``ax`` itself, or the axes of a new off-screen figure."""
+    if ax is not None:
+        return ax
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+    from matplotlib.figure import Figure
+
+    fig = Figure(figsize=figsize, layout="constrained")
+    FigureCanvasAgg(fig)
+    return fig.add_subplot()
+
+
+def _style(ax: Axes) -> None:
+    """Plain look: light horizontal grid, no top or right frame, readable sizes."""
+    ax.spines[["top", "right"]].set_visible(False)
+    ax.spines[["left", "bottom"]].set_color("#4D4D4D")
+    ax.tick_params(labelsize=9.5, colors="#333333")
+    ax.grid(axis="y", color="#DDDDDD", linewidth=0.7)
+    ax.set_axisbelow(True)
+
+
+def _legend(ax: Axes, **kwargs: Any) -> None:
+    kwargs.setdefault("fontsize", 8.8)
+    kwargs.setdefault("frameon", True)
+    legend = ax.legend(**kwargs)
+    frame = legend.get_frame()
+    frame.set_edgecolor("#CCCCCC")
+    frame.set_facecolor("white")
+    frame.set_alpha(0.92)
+
+
+def _design_dict(ds: Any) -> dict[str, Any]:
+    try:
+        return json.loads(ds.attrs["design"])
+    except (KeyError, TypeError, ValueError):
+        return {}
+
+
+def _check_dataset(ds: Any, owner: str, needed: Sequence[str] = ("power", "assurance")) -> None:
+    missing = [name for name in needed if not hasattr(ds, "data_vars") or name not in ds]
+    if missing or "n" not in getattr(ds, "dims", ()):
+        raise AssuranceInputError(
+            f"The 'ds' parameter of {owner} must be the dataset returned by "
+            f"assurance.evaluate (dimension 'n' and variables {', '.join(needed)}). "
+            f"Got {type(ds).__name__} instead."
+        )
+
+
+def _effect_word(endpoint: dict[str, Any] | Any) -> str:
+    layout = endpoint.get("layout") if isinstance(endpoint, dict) else endpoint.layout
+    better = endpoint.get("better") if isinstance(endpoint, dict) else endpoint.better
+    base = "true mean change" if layout == "single_arm" else \
+        "true effect (treatment minus control)"
+    return base + ("; lower is better" if better == "lower" else "")
+
+
+# ------------------------------------------------------------------------------------------
+# the design prior
+# ------------------------------------------------------------------------------------------
+def _quantile(prior: Any, q: float) -> float | None:
+    try:
+        value = float(prior.ppf(q))
+    except (ArithmeticError, ValueError, RuntimeError):
+        return None
+    return value if math.isfinite(value) else None
+
+
+def _plot_range(design: TrialDesign, marks: Sequence[float]) -> tuple[float, float]:
+    """x range: central 99.8% of the prior (heavy tails trimmed), widened to the marks."""
+    prior = design.design_prior
+    lo, hi = _quantile(prior, 0.001), _quantile(prior, 0.999)
+    if lo is None or hi is None:  # e.g. a mixture whose mean is undefined: use the parts
+        ends = [(_quantile(c, 0.001), _quantile(c, 0.999)) for _, c in prior.parts()]
+        lows = [a for a, _ in ends if a is not None]
+        highs = [b for _, b in ends if b is not None]
+        lo = min(lows) if lows else min(marks)
+        hi = max(highs) if highs else max(marks)
+    q1, q3 = _quantile(prior, 0.25), _quantile(prior, 0.75)
+    if q1 is not None and q3 is not None and q3 > q1:
+        lo, hi = max(lo, q1 - 6 * (q3 - q1)), min(hi, q3 + 6 * (q3 - q1))
+    lo, hi = min(lo, *marks), max(hi, *marks)
+    span = hi - lo
+    if span <= 0:
+        span = max(1.0, abs(lo))
+        lo, hi = lo - span / 2, hi + span / 2
+    return lo - 0.06 * span, hi + 0.06 * span
+
+
+def plot_prior(design: TrialDesign, ax: Axes | None = None) -> Axes:
+    """Draw the design prior over the true effect, with the values the plan depends on.
+
+    The continuous part is drawn as a density; each point mass as a vertical spike labelled
+    with its probability (spike heights are proportional to probability but, next to a
+    density, not on the density's scale). Vertical lines mark the assumed effect, the
+    clinically relevant effect (if any) and no effect. The shaded side holds the effects at
+    which the success rule can be passed once the trial is large enough; its prior
+    probability is the ceiling of assurance.
+
+    Parameters
+    ----------
+    design
+        The trial (:class:`~assurance.TrialDesign`). Effects are shown on their natural
+        scale; for an endpoint where lower is better the shaded side is on the left.
+    ax
+        Axes to draw into. Without one, a new figure is made on the off-screen canvas.
+
+    Returns
+    -------
+    matplotlib.axes.Axes
+        The axes drawn into (``ax.figure`` is the figure).
+
+    Examples
+    --------
+    >>> import assurance as asr
+    >>> from assurance.report import plot_prior
+    >>> design = asr.TrialDesign(asr.ContinuousEndpoint(sigma=10.0),
+    ...                          asr.Mixture([asr.PointMass(0.0), asr.Normal(4.0, 2.5)],
+    ...                                      [0.25, 0.75]), relevant_effect=3.0)
+    >>> ax = plot_prior(design)
+    >>> ax.get_xlabel()
+    'true effect (treatment minus control)'
+    """
+    from ..design import TrialDesign
+
+    if not isinstance(design, TrialDesign):
+        raise AssuranceInputError(
+            f"The 'design' parameter of plot_prior must be a TrialDesign. Got {design!r} "
+            "instead."
+        )
+    ax = _axes(ax)
+    _style(ax)
+    prior = design.design_prior
+    sign = design.endpoint.sign
+    threshold = sign * design.benefit_rule.lowest_passable_effect()
+    ceiling = design.ceiling()
+    atoms = [(loc, p) for loc, p in prior.atoms() if p > 0]
+    marks = [0.0, float(design.assumed_effect), threshold, *(loc for loc, _ in atoms)]
+    if design.relevant_effect is not None:
+        marks.append(float(design.relevant_effect))
+    lo, hi = _plot_range(design, marks)
+
+    # passable side of the threshold
+    def passable(x: np.ndarray | float) -> np.ndarray:
+        return np.asarray(x) > threshold if sign > 0 else np.asarray(x) < threshold
+
+    side = (threshold, hi) if sign > 0 else (lo, threshold)
+    ax.axvspan(*side, color=_SKY, alpha=0.13, linewidth=0, zorder=0,
+               label=f"effects the rule can pass with enough patients\n"
+                     f"(prior probability {ceiling:.3f} = ceiling of assurance)")
+
+    x = np.union1d(np.linspace(lo, hi, 801), [threshold])
+    dens = np.nan_to_num(np.asarray(prior.pdf(x), dtype=float), nan=0.0, posinf=0.0)
+    continuous_weight = 1.0 - sum(p for _, p in atoms)
+    peak = float(dens.max()) if continuous_weight > 1e-12 and dens.size else 0.0
+    if peak > 0:
+        ax.plot(x, dens, color="#333333", linewidth=1.6, label="design prior (density)")
+        yes = x >= threshold if sign > 0 else x <= threshold
+        ax.fill_between(x[yes], dens[yes], color=_SKY, alpha=0.55, linewidth=0)
+        ax.fill_between(x[~yes | (x == threshold)], dens[~yes | (x == threshold)],
+                        color=_LIGHT, alpha=0.9, linewidth=0)
+        ax.set_ylabel("prior density", fontsize=10.5)
+    else:
+        ax.set_ylabel("prior probability", fontsize=10.5)
+
+    if atoms:
+        biggest = max(p for _, p in atoms)
+        scale = 0.8 * peak / biggest if peak > 0 else 1.0
+        for k, (loc, p) in enumerate(atoms):
+            h = p * scale
+            colour = _BLUE if passable(loc) else _PURPLE
+            ax.vlines(loc, 0, h, color=colour, linewidth=3.0, zorder=4,
+                      label="point mass (labelled with its probability)" if k == 0 else None)
+            ax.plot([loc], [h], marker="o", markersize=6, color=colour, zorder=5)
+            ax.annotate(f"P = {p:.3g}", (loc, h), xytext=(5, 4), textcoords="offset points",
+                        fontsize=9, color="#222222", zorder=6)
+        top = max(peak, biggest * scale)
+    else:
+        top = peak
+    top = top if top > 0 else 1.0
+
+    ax.axvline(0.0, color=_BLACK, linewidth=1.0, zorder=3, label="no effect (0)")
+    same = design.relevant_effect is not None and math.isclose(
+        design.relevant_effect, design.assumed_effect, rel_tol=1e-9, abs_tol=1e-12)
+    # when the two coincide, their dashes interleave so both colours stay visible
+    ax.axvline(design.assumed_effect, color=_BLUE, linewidth=1.6,
+               linestyle=(0, (4, 4)) if same else (0, (5, 3)), zorder=3,
+               label=f"assumed effect for classical power ({design.assumed_effect:g})")
+    if design.relevant_effect is not None:
+        ax.axvline(design.relevant_effect, color=_GREEN, linewidth=1.6,
+                   linestyle=(4, (4, 4)) if same else (0, (6, 2, 1.5, 2)), zorder=3,
+                   label=f"clinically relevant effect ({design.relevant_effect:g})")
+
+    ax.set_xlim(lo, hi)
+    ax.set_ylim(0, top * 1.55)  # head room for the legend
+    ax.set_xlabel(_effect_word(design.endpoint), fontsize=10.5)
+    ax.set_title(f"{design.title}: design prior for the true effect", fontsize=11.5,
+                 loc="left")
+    _legend(ax, loc="upper left" if sign > 0 else "upper right", ncol=1)
+    return ax
+
+
+# ------------------------------------------------------------------------------------------
+# power and assurance against n
+# ------------------------------------------------------------------------------------------
+def _band(ax: Axes, n: np.ndarray, value: np.ndarray, se: np.ndarray, colour: str,
+          label: str | None) -> None:
+    ax.fill_between(n, np.clip(value - 2 * se, 0, 1), np.clip(value + 2 * se, 0, 1),
+                    color=colour, alpha=0.25, linewidth=0, label=label)
+
+
+def plot_power_and_assurance(
+    ds: Any,
+    ax: Axes | None = None,
+    *,
+    answers: Sequence[SampleSizeAnswer] = (),
+) -> Axes:
+    """Draw classical power and assurance against the total number of patients.
+
+    Also drawn: conditional assurance (when the design has a relevant effect), a band of
+    two Monte Carlo standard errors around assurance (when sigma has a prior), and the
+    ceiling that assurance cannot pass, as a dashed line labelled with its value.
+
+    Parameters
+    ----------
+    ds
+        The dataset from :func:`assurance.evaluate`.
+    ax
+        Axes to draw into. Without one, a new figure is made on the off-screen canvas.
+    answers
+        Solved sample sizes (:class:`~assurance.SampleSizeAnswer`) to mark; those not
+        reached, or outside the range of ``ds``, are left out.
+
+    Returns
+    -------
+    matplotlib.axes.Axes
+        The axes drawn into.
+
+    Examples
+    --------
+    >>> import assurance as asr
+    >>> from assurance.report import plot_power_and_assurance
+    >>> design = asr.TrialDesign(asr.ContinuousEndpoint(sigma=10.0), asr.Normal(4.0, 2.5))
+    >>> ds = asr.evaluate(design, range(20, 401, 20))
+    >>> answer = asr.solve_sample_size(design, 0.5)
+    >>> ax = plot_power_and_assurance(ds, answers=[answer])
+    >>> ax.get_ylim()
+    (0.0, 1.0)
+    """
+    _check_dataset(ds, "plot_power_and_assurance")
+    ax = _axes(ax)
+    _style(ax)
+    info = _design_dict(ds)
+    n = np.asarray(ds["n"].values, dtype=float)
+    assumed = info.get("assumed_effect")
+    power_label = "classical power at the assumed effect" + (
+        f" ({assumed:g})" if isinstance(assumed, int | float) else "")
+
+    ax.plot(n, ds["power"].values, color=_BLUE, linewidth=2.0, label=power_label)
+    ax.plot(n, ds["assurance"].values, color=_VERMILLION, linewidth=2.4,
+            label="assurance (averaged over the design prior)")
+    if "assurance_mcse" in ds:
+        _band(ax, n, ds["assurance"].values, ds["assurance_mcse"].values, _VERMILLION,
+              "assurance \u00b1 2 Monte Carlo standard errors")
+    if "conditional_assurance" in ds:
+        relevant = info.get("relevant_effect")
+        lower = info.get("endpoint", {}).get("better") == "lower"
+        sign_text = "\u2264" if lower else "\u2265"
+        given = (f"an effect {sign_text} {relevant:g}"
+                 if isinstance(relevant, int | float) else "a relevant effect")
+        ax.plot(n, ds["conditional_assurance"].values, color=_GREEN, linewidth=1.9,
+                linestyle=(0, (6, 2, 1.5, 2)), label=f"conditional assurance (given {given})")
+        if "conditional_assurance_mcse" in ds:
+            _band(ax, n, ds["conditional_assurance"].values,
+                  ds["conditional_assurance_mcse"].values, _GREEN, None)
+
+    ceiling = float(ds["ceiling"])
+    ax.axhline(ceiling, color=_BLACK, linewidth=1.2, linestyle=(0, (4, 3)), zorder=2,
+               label=f"ceiling of assurance ({ceiling:.3f})")
+    above = ceiling < 0.9
+    ax.annotate(f"ceiling {ceiling:.3f}", (1.0, ceiling), xycoords=("axes fraction", "data"),
+                xytext=(-4, 4 if above else -5), textcoords="offset points", fontsize=9,
+                ha="right", va="bottom" if above else "top", color=_BLACK, bbox=_TEXT_BOX,
+                zorder=6)
+
+    lo, hi = float(n.min()), float(n.max())
+    for answer in answers:
+        if not answer.reached or answer.n_total is None or answer.achieved is None:
+            continue
+        if not lo <= answer.n_total <= hi:
+            continue
+        colour = _QUANTITY_COLOUR.get(answer.quantity, _GREY)
+        ax.vlines(answer.n_total, 0, answer.achieved, color=colour, linewidth=1.0,
+                  linestyle=":", zorder=3)
+        ax.plot([answer.n_total], [answer.achieved], marker="o", markersize=7,
+                markerfacecolor=colour, markeredgecolor=_BLACK, zorder=5)
+        name = _QUANTITY_NAME.get(answer.quantity, answer.quantity)
+        ax.annotate(f"n = {answer.n_total}\n({name} {answer.target:g})",
+                    (answer.n_total, answer.achieved), xytext=(6, -26),
+                    textcoords="offset points", fontsize=8.5, color="#222222", zorder=6,
+                    bbox=_TEXT_BOX)
+
+    ax.set_xlim(lo, hi if hi > lo else lo + 1)
+    ax.set_ylim(0.0, 1.0)
+    ax.set_xlabel("total number of patients (all arms)", fontsize=10.5)
+    ax.set_ylabel("probability", fontsize=10.5)
+    title = ds.attrs.get("title", "")
+    ax.set_title(f"{title}: chance of success by sample size" if title
+                 else "Chance of success by sample size", fontsize=11.5, loc="left")
+    _legend(ax, loc="lower right")
+    return ax
+
+
+# ------------------------------------------------------------------------------------------
+# decomposition of success
+# ------------------------------------------------------------------------------------------
+def plot_decomposition(ds: Any, ax: Axes | None = None) -> Axes:
+    """Split each trial size's outcomes by success and by whether the effect matters.
+
+    Stacked from the bottom: success with a relevant effect; no success although the
+    effect is relevant (the two together are the prior probability of a relevant effect,
+    drawn as a line); success although the effect is not relevant. The rest is no success
+    with an effect that is not relevant. A design without a relevant effect is split by
+    "treatment truly better" instead.
+
+    Parameters
+    ----------
+    ds
+        The dataset from :func:`assurance.evaluate`.
+    ax
+        Axes to draw into. Without one, a new figure is made on the off-screen canvas.
+
+    Returns
+    -------
+    matplotlib.axes.Axes
+        The axes drawn into.
+
+    Examples
+    --------
+    >>> import assurance as asr
+    >>> from assurance.report import plot_decomposition
+    >>> design = asr.TrialDesign(asr.ContinuousEndpoint(sigma=10.0), asr.Normal(4.0, 2.5),
+    ...                          relevant_effect=3.0)
+    >>> ax = plot_decomposition(asr.evaluate(design, range(20, 401, 20)))
+    >>> len(ax.collections) >= 3
+    True
+    """
+    _check_dataset(ds, "plot_decomposition")
+    own = ax is None
+    ax = _axes(ax, (7.6, 5.4))
+    _style(ax)
+    n = np.asarray(ds["n"].values, dtype=float)
+    success = np.asarray(ds["assurance"].values, dtype=float)
+    if "prob_success_and_relevant" in ds and "prob_relevant" in ds:
+        info = _design_dict(ds)
+        rel = info.get("relevant_effect")
+        lower = info.get("endpoint", {}).get("better") == "lower"
+        sign_text = "\u2264" if lower else "\u2265"
+        where = f" ({sign_text} {rel:g})" if isinstance(rel, int | float) else ""
+        both = np.asarray(ds["prob_success_and_relevant"].values, dtype=float)
+        p_good = float(ds["prob_relevant"])
+        names = (f"success, and the effect is relevant{where}",
+                 "no success, though the effect is relevant",
+                 "success, but the effect is not relevant",
+                 "no success, and the effect is not relevant")
+        line_label = f"prior probability of a relevant effect ({p_good:.3f})"
+    else:
+        both = np.asarray(ds["prob_success_and_benefit"].values, dtype=float)
+        p_good = float(ds["prob_benefit"])
+        names = ("success, and the treatment is truly better",
+                 "no success, though the treatment is better",
+                 "success, but the treatment is not better",
+                 "no success, and the treatment is not better")
+        line_label = f"prior probability that the treatment is better ({p_good:.3f})"
+    miss = np.clip(p_good - both, 0, 1)
+    spurious = np.clip(success - both, 0, 1)
+    layers = [both, both + miss, np.minimum(both + miss + spurious, 1.0)]
+    colours = [_GREEN, _VERMILLION, _ORANGE]
+    bottom = np.zeros_like(n)
+    for top, colour, name in zip(layers, colours, names[:3], strict=True):
+        ax.fill_between(n, bottom, top, color=colour, alpha=0.75, linewidth=0, label=name)
+        bottom = top
+    ax.fill_between(n, bottom, 1.0, color=_LIGHT, alpha=0.8, linewidth=0, label=names[3])
+    ax.axhline(p_good, color=_BLACK, linewidth=1.1, linestyle=(0, (4, 3)), label=line_label)
+    ax.set_xlim(float(n.min()), float(n.max()) if n.max() > n.min() else float(n.min()) + 1)
+    ax.set_ylim(0.0, 1.0)
+    ax.set_xlabel("total number of patients (all arms)", fontsize=10.5)
+    ax.set_ylabel("probability", fontsize=10.5)
+    title = ds.attrs.get("title", "")
+    ax.set_title(f"{title}: what a success or a failure would mean" if title
+                 else "What a success or a failure would mean", fontsize=11.5, loc="left")
+    if own:  # room of our own: the legend goes under the plot
+        handles, labels = ax.get_legend_handles_labels()
+        legend = ax.figure.legend(handles, labels, loc="outside lower center", ncol=2,
+                                  fontsize=8.8, frameon=False)
+        legend.set_in_layout(True)
+    else:
+        _legend(ax, loc="upper left")
+    return ax
+
+
+# ------------------------------------------------------------------------------------------
+# saving
+# ------------------------------------------------------------------------------------------
+def figure_bytes(fig: Figure, fmt: str = "png", *, dpi: int = _DPI) -> bytes:
+    """Render a figure to PNG or SVG bytes, without file-system side effects.
+
+    Dates and software names are left out of the file, so the same figure gives the same
+    bytes on every run.
+
+    Parameters
+    ----------
+    fig
+        A matplotlib figure (``ax.figure`` for the axes the plot functions return).
+    fmt
+        ``"png"`` or ``"svg"``.
+    dpi
+        Resolution of a PNG.
+
+    Returns
+    -------
+    bytes
+        The encoded image.
+
+    Examples
+    --------
+    >>> import assurance as asr
+    >>> from assurance.report import figure_bytes, plot_prior
+    >>> ax = plot_prior(asr.TrialDesign(asr.ContinuousEndpoint(sigma=1.0), asr.Normal(0.4, 0.2)))
+    >>> figure_bytes(ax.figure, "png")[:4]
+    b'\\x89PNG'
+    """
+    import matplotlib
+
+    if fmt not in ("png", "svg"):
+        raise AssuranceInputError(
+            f"The 'fmt' parameter of figure_bytes must be one of 'png', 'svg'. Got {fmt!r} "
+            "instead."
+        )
+    if fig.canvas is None or type(fig.canvas).__name__ == "FigureCanvasBase":
+        from matplotlib.backends.backend_agg import FigureCanvasAgg
+
+        FigureCanvasAgg(fig)
+    buffer = io.BytesIO()
+    metadata: dict[str, Any] = {"Software": None} if fmt == "png" else {"Date": None}
+    with matplotlib.rc_context({"svg.hashsalt": "assurance-report"}):
+        fig.savefig(buffer, format=fmt, dpi=dpi, metadata=metadata, facecolor="white")
+    return buffer.getvalue()
+
+
+def save_figure(
+    fig: Figure,
+    path_without_suffix: str | os.PathLike[str],
+    overwrite: bool = False,
+    *,
+    dpi: int = _DPI,
+) -> tuple[Path, Path]:
+    """Write a figure as PNG and SVG next to each other.
+
+    Each file is written to a temporary file in the same folder and then moved into
+    place, so a reader never sees half a file. Nothing is written when either file
+    already exists and ``overwrite`` is False.
+
+    Parameters
+    ----------
+    fig
+        A matplotlib figure (``ax.figure`` for the axes the plot functions return).
+    path_without_suffix
+        Where to write, without suffix: ``out/prior`` gives ``out/prior.png`` and
+        ``out/prior.svg``. A trailing ``.png`` or ``.svg`` is dropped. The folder must
+        exist.
+    overwrite
+        Replace existing files. Off by default.
+    dpi
+        Resolution of the PNG.
+
+    Returns
+    -------
+    tuple of pathlib.Path
+        The PNG path and the SVG path.
+
+    Raises
+    ------
+    AssuranceInputError
+        When a file exists and ``overwrite`` is False, or the folder does not exist.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> import assurance as asr
+    >>> from assurance.report import plot_prior, save_figure
+    >>> ax = plot_prior(asr.TrialDesign(asr.ContinuousEndpoint(sigma=1.0), asr.Normal(0.4, 0.2)))
+    >>> with tempfile.TemporaryDirectory() as folder:
+    ...     png, svg = save_figure(ax.figure, pathlib.Path(folder) / "prior")
+    ...     print(png.name, svg.name, png.stat().st_size > 0)
+    prior.png prior.svg True
+    """
+    base = Path(path_without_suffix)
+    if base.suffix.lower() in (".png", ".svg"):
+        base = base.with_suffix("")
+    png, svg = base.parent / f"{base.name}.png", base.parent / f"{base.name}.svg"
+    for path in (png, svg):  # refuse before writing anything
+        check_target(path, "save_figure", overwrite)
+    write_atomic(png, figure_bytes(fig, "png", dpi=dpi), overwrite=overwrite,
+                 owner="save_figure")
+    write_atomic(svg, figure_bytes(fig, "svg"), overwrite=overwrite, owner="save_figure")
+    return png, svg
