@@ -468,7 +468,8 @@ class Mixture(Prior):
 
     def sample(self, size: int, seed: RandomLike = None) -> np.ndarray:
         rng = _rng(seed)
-        which = rng.choice(len(self._parts), size=size, p=np.array(self.weights) / sum(self.weights))
+        probs = np.array(self.weights) / sum(self.weights)
+        which = rng.choice(len(self._parts), size=size, p=probs)
         out = np.empty(size)
         for k, (_, comp) in enumerate(self._parts):
             idx = np.flatnonzero(which == k)
@@ -539,7 +540,8 @@ class ScaledInvChiSquare(_Continuous):
     def mean(self) -> float:
         # E[sigma] = scale * sqrt(df/2) * Gamma((df-1)/2) / Gamma(df/2)
         if self.df <= 1:
-            raise AssuranceInputError(f"ScaledInvChiSquare(df={self.df:g}) has no mean; use df > 1.")
+            raise AssuranceInputError(
+                f"ScaledInvChiSquare(df={self.df:g}) has no mean; use df > 1.")
         return float(self.scale * math.sqrt(self.df / 2)
                      * math.exp(special.gammaln((self.df - 1) / 2) - special.gammaln(self.df / 2)))
 

@@ -51,8 +51,9 @@ def wall(cmd: list[str], repeat: int = 5) -> float:
 
 
 def main() -> None:
-    import assurance as asr
     from statsmodels.stats.power import NormalIndPower, TTestIndPower
+
+    import assurance as asr
 
     n_total = np.arange(20, 2020, 20)  # 100 sizes
     sigma, mean, sd = 10.0, 4.0, 3.0
