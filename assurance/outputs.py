@@ -60,15 +60,14 @@ def write_outputs(out: str | Path, spec: Any, ds: Any, answers: Sequence[Any], *
         (tmp / "design.json").write_text(json.dumps(json.loads(ds.attrs["design"]), indent=2))
         figures = tmp / "figures"
         figures.mkdir()
-        import matplotlib.pyplot as plt
-
-        fig = plot_prior(spec.design).figure
-        save_figure(fig, figures / "prior")
-        plt.close(fig)
-        fig = plot_power_and_assurance(ds, answers=answers).figure
-        save_figure(fig, figures / "power_and_assurance")
-        plt.close(fig)
-        write_memo(spec.design, ds, answers, tmp / "memo.html")
+        rendered = {}
+        for name, draw in (("prior", lambda: plot_prior(spec.design)),
+                           ("power_and_assurance",
+                            lambda: plot_power_and_assurance(ds, answers=answers))):
+            fig = draw().figure
+            png, _svg = save_figure(fig, figures / name)
+            rendered[name] = png.read_bytes()
+        write_memo(spec.design, ds, answers, tmp / "memo.html", rendered=rendered)
         os.chmod(tmp, 0o755)
         _swap_into_place(tmp, out)
     except BaseException:

@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import json
 import math
+import warnings
 from collections.abc import Callable, Sequence
 from dataclasses import asdict, dataclass
 from typing import Any, Literal
@@ -19,7 +20,7 @@ import numpy as np
 from ._validation import check_choice, check_int, check_real, check_real_array
 from .compute.normal_outcome import Cut, EffectDraws, exact_success, monte_carlo_success
 from .design import TrialDesign
-from .errors import AssuranceInputError
+from .errors import AssuranceInputError, AssuranceWarning
 from .priors import PointMass
 
 __all__ = ["evaluate", "solve_sample_size", "SampleSizeAnswer", "Quantity"]
@@ -49,6 +50,14 @@ class _Calculator:
         self.monte_carlo = design.sigma_prior is not None
         self.draws = (EffectDraws.draw(self.prior, design.sigma_prior, draws, seed)
                       if self.monte_carlo else None)
+        if self.monte_carlo and self.prob_relevant is not None:
+            expected = self.prob_relevant * draws
+            if expected < 100:
+                warnings.warn(
+                    f"Only about {expected:.0f} of {draws} Monte Carlo draws fall where the "
+                    f"effect is relevant (prior probability {self.prob_relevant:.3g}); "
+                    "conditional assurance will be imprecise. Increase the draws.",
+                    AssuranceWarning, stacklevel=3)
 
     def _geometry(self, n_t: np.ndarray, n_c: np.ndarray) -> dict[str, np.ndarray]:
         ep = self.endpoint
@@ -74,16 +83,16 @@ class _Calculator:
             out["assurance_mcse"] = res.success_mcse
             out["prob_success_and_benefit_mcse"] = res.joint_mcse[0]
         if self.relevant is not None:
+            # P(relevant) is known exactly from the prior, so the conditional and the miss
+            # probability are exact transforms of the joint (and of its standard error).
             joint = res.joint[1]
             out["prob_success_and_relevant"] = joint
             out["prob_miss_relevant"] = np.clip(self.prob_relevant - joint, 0.0, 1.0)
+            out["conditional_assurance"] = np.clip(joint / self.prob_relevant, 0.0, 1.0)
             if self.monte_carlo:
-                out["conditional_assurance"] = res.conditional[1]
-                out["conditional_assurance_mcse"] = res.conditional_mcse[1]
                 out["prob_success_and_relevant_mcse"] = res.joint_mcse[1]
                 out["prob_miss_relevant_mcse"] = res.joint_mcse[1]
-            else:
-                out["conditional_assurance"] = np.clip(joint / self.prob_relevant, 0.0, 1.0)
+                out["conditional_assurance_mcse"] = res.joint_mcse[1] / self.prob_relevant
         return out
 
     def quantity(self, name: str, n_t: np.ndarray, n_c: np.ndarray) -> np.ndarray:

@@ -98,6 +98,15 @@ class Significance:
             c = np.maximum(c, self.min_estimate)
         return c
 
+    def kink_ratio(self, se: Any, critical: Any) -> np.ndarray | None:
+        """Multiplier ``r`` of ``se`` at which ``-margin + critical * se * r`` meets the
+        minimum observed effect (where the threshold bends), or None without one."""
+        if self.min_estimate is None:
+            return None
+        with np.errstate(divide="ignore", invalid="ignore"):
+            return (self.min_estimate - self.null_value) / (np.asarray(critical)
+                                                            * np.asarray(se))
+
     def lowest_passable_effect(self) -> float:
         """Limit of the threshold as n grows: the rule's region is ``effect > this``."""
         floor = -math.inf if self.min_estimate is None else self.min_estimate

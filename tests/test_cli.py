@@ -185,10 +185,10 @@ def test_help_imports_nothing_heavy():
             "try:\n    c.main(['--help'])\nexcept SystemExit:\n    pass\n"
             "heavy = [m for m in ('numpy', 'scipy', 'xarray', 'matplotlib', 'pymc')"
             " if m in sys.modules]\n"
-            "print(','.join(heavy))")
+            "print('heavy:' + ','.join(heavy))")
     proc = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
                           check=True)
-    assert proc.stdout.strip().splitlines()[-1] == ""
+    assert proc.stdout.strip().splitlines()[-1] == "heavy:"
 
 
 def test_monte_carlo_design_runs_and_reports_standard_errors(tmp_path):

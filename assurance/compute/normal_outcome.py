@@ -47,8 +47,6 @@ class SuccessProbabilities:
     joint: list[np.ndarray]
     success_mcse: np.ndarray | None = None
     joint_mcse: list[np.ndarray] | None = None
-    conditional: list[np.ndarray] | None = None
-    conditional_mcse: list[np.ndarray] | None = None
 
 
 def exact_success(
@@ -85,8 +83,8 @@ def exact_success(
     >>> from assurance.rules import Significance
     >>> p = exact_success(PointMass(0.5), Significance(0.025), sigma=1.0,
     ...                   se_factor=np.sqrt([2 / 64]), df=np.array([126.0]), analysis="z")
-    >>> round(float(p.success[0]), 4)  # Phi(0.5 / 0.25 - 1.96)
-    0.516
+    >>> round(float(p.success[0]), 4)  # Phi(0.5 / sqrt(2 / 64) - 1.96)
+    0.8074
     """
     se = sigma * np.asarray(se_factor, dtype=float)
     if analysis == "z":
@@ -96,8 +94,9 @@ def exact_success(
             return prob_estimate_above(prior, c, se, effect_above=None if cut is None
                                        else cut.value, inclusive=bool(cut and cut.inclusive))
     else:
-        ratio, weight = sd_ratio_nodes(df)
-        c = rule.threshold(se[None, :] * ratio, rule.critical_t(df)[None, :])
+        crit = rule.critical_t(df)
+        ratio, weight = sd_ratio_nodes(df, kink=rule.kink_ratio(se, crit))
+        c = rule.threshold(se[None, :] * ratio, crit[None, :])
 
         def prob(cut: Cut | None) -> np.ndarray:
             inner = prob_estimate_above(prior, c, se[None, :], effect_above=None if cut is None
@@ -144,9 +143,7 @@ def monte_carlo_success(
     """Success probabilities averaged over draws of (effect, sigma, sample SD).
 
     Each draw contributes ``P(success | effect, sigma, s)``, which is exact, so the Monte
-    Carlo error comes only from the prior draws. Returns standard errors for every figure;
-    the conditional probabilities ``P(success | effect in cut)`` are averages over the draws
-    inside each cut region.
+    Carlo error comes only from the prior draws. Returns standard errors for every figure.
 
     Examples
     --------
@@ -156,7 +153,7 @@ def monte_carlo_success(
     >>> d = EffectDraws.draw(Normal(0.5, 0.2), ScaledInvChiSquare(40, 1.0), 2000, seed=1)
     >>> p = monte_carlo_success(d, Significance(0.025), se_factor=np.sqrt([2 / 64]),
     ...                         df=np.array([126.0]), analysis="t")
-    >>> 0.3 < float(p.success[0]) < 0.7 and float(p.success_mcse[0]) < 0.02
+    >>> 0.65 < float(p.success[0]) < 0.8 and float(p.success_mcse[0]) < 0.01
     True
     """
     k = np.asarray(se_factor, dtype=float)
@@ -192,17 +189,10 @@ def monte_carlo_success(
         return mean, np.sqrt(var / max(count - 1, 1))
 
     success, success_se = mean_and_se(sums, squares, m)
-    joint, joint_se, cond, cond_se = [], [], [], []
-    for j, mask in enumerate(masks):
+    joint, joint_se = [], []
+    for j in range(len(masks)):
         mj, sj = mean_and_se(joint_sums[j], joint_squares[j], m)
         joint.append(mj)
         joint_se.append(sj)
-        inside = int(mask.sum())
-        if inside > 1:
-            cm, cs = mean_and_se(joint_sums[j], joint_squares[j], inside)
-        else:
-            cm, cs = np.full(k.size, np.nan), np.full(k.size, np.inf)
-        cond.append(cm)
-        cond_se.append(cs)
     return SuccessProbabilities(success=success, joint=joint, success_mcse=success_se,
-                                joint_mcse=joint_se, conditional=cond, conditional_mcse=cond_se)
+                                joint_mcse=joint_se)

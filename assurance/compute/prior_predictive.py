@@ -22,9 +22,6 @@ from ..priors import Normal, PointMass, Prior
 
 __all__ = ["prob_estimate_above", "upper_orthant_normal"]
 
-_TINY = 1e-300
-
-
 def upper_orthant_normal(h: np.ndarray, k: np.ndarray, rho: np.ndarray) -> np.ndarray:
     """P(Z1 > h, Z2 > k) for standard normals with correlation ``rho`` in (-1, 1).
 
@@ -44,20 +41,27 @@ def upper_orthant_normal(h: np.ndarray, k: np.ndarray, rho: np.ndarray) -> np.nd
     out[k_low] = special.ndtr(-h[k_low])
     out[k_high] = 0.0
     if finite.any():
-        # P(Z1 > h, Z2 > k) = Phi2(-h, -k; rho)
-        x = -h[finite]
-        y = -k[finite]
-        r = rho[finite]
-        x = np.where(x == 0.0, _TINY, x)
-        y = np.where(y == 0.0, _TINY, y)
-        root = np.sqrt(1.0 - r * r)
+        # P(Z1 > h, Z2 > k) = Phi2(-h, -k; rho), by Owen's T identity
+        out[finite] = _lower_orthant(-h[finite], -k[finite], rho[finite])
+    return out
+
+
+def _lower_orthant(x: np.ndarray, y: np.ndarray, r: np.ndarray) -> np.ndarray:
+    """Phi2(x, y; r) = 1/2 Phi(x) + 1/2 Phi(y) - T(x, a_x) - T(y, a_y) - beta (Owen 1956)."""
+    root = np.sqrt(1.0 - r * r)
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
         ax = (y - r * x) / (x * root)
         ay = (x - r * y) / (y * root)
-        beta = np.where(x * y > 0, 0.0, 0.5)
-        val = 0.5 * (special.ndtr(x) + special.ndtr(y)) - special.owens_t(x, ax) \
-            - special.owens_t(y, ay) - beta
-        out[finite] = np.clip(val, 0.0, 1.0)
-    return out
+        # at x = 0 the argument is +-infinity and T(0, +-inf) = +-1/4 (scipy's owens_t agrees)
+        ax = np.where(x == 0, np.sign(y - r * x) * np.inf, ax)
+        ay = np.where(y == 0, np.sign(x - r * y) * np.inf, ay)
+    sx, sy = np.sign(x), np.sign(y)
+    beta = np.where(sx * sy > 0, 0.0, np.where(sx * sy < 0, 0.5, np.where(x + y >= 0, 0.0, 0.5)))
+    val = 0.5 * (special.ndtr(x) + special.ndtr(y)) - special.owens_t(x, np.nan_to_num(ax)) \
+        - special.owens_t(y, np.nan_to_num(ay)) - beta
+    both_zero = (x == 0) & (y == 0)
+    val = np.where(both_zero, 0.25 + np.arcsin(r) / (2 * np.pi), val)
+    return np.clip(val, 0.0, 1.0)
 
 
 def prob_estimate_above(

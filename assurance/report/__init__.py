@@ -1,2 +1,39 @@
-"""Figures and a self-contained HTML decision memo for a planned trial."""
-from .figures import figure_bytes, plot_decomposition, plot_power_and_assurance, plot_prior, save_figure
+"""Figures and a self-contained HTML decision memo for a planned trial.
+
+matplotlib is imported only when a figure is drawn, so importing this package is cheap.
+
+Examples
+--------
+>>> import assurance as asr
+>>> from assurance.report import memo_text_summary
+>>> design = asr.TrialDesign(asr.ContinuousEndpoint(sigma=10.0), asr.Normal(4.0, 2.5),
+...                          title="Example")
+>>> ds = asr.evaluate(design, [100, 200, 400])
+>>> memo_text_summary(design, ds).splitlines()[0]
+'Example'
+"""
+
+from __future__ import annotations
+
+from .figures import (
+    figure_bytes,
+    passable_probability,
+    plot_decomposition,
+    plot_power_and_assurance,
+    plot_prior,
+    save_figure,
+)
+from .memo import DEFAULT_CAUTIONS, memo_html, memo_text_summary, write_memo
+
+__all__ = [
+    "plot_prior",
+    "plot_power_and_assurance",
+    "plot_decomposition",
+    "save_figure",
+    "figure_bytes",
+    "passable_probability",
+    "write_memo",
+    "memo_html",
+    "memo_text_summary",
+    "DEFAULT_CAUTIONS",
+]

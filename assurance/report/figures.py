@@ -37,6 +37,7 @@ __all__ = [
     "plot_decomposition",
     "save_figure",
     "figure_bytes",
+    "passable_probability",
 ]
 
 # Okabe-Ito colours
@@ -97,6 +98,21 @@ def _legend(ax: Axes, **kwargs: Any) -> None:
     frame.set_alpha(0.92)
 
 
+def _legend_below(ax: Axes) -> None:
+    """Legend in two columns under the plot, for a figure this module made itself."""
+    handles, labels = ax.get_legend_handles_labels()
+    ax.figure.legend(handles, labels, loc="outside lower center", ncol=2, fontsize=8.8,
+                     frameon=False)
+
+
+def _title(title: str, what: str) -> str:
+    """``title: what``, wrapped so a long trial name stays inside the figure."""
+    import textwrap
+
+    text = f"{title}: {what}" if title else what[:1].upper() + what[1:]
+    return "\n".join(textwrap.wrap(text, 78)) or text
+
+
 def _design_dict(ds: Any) -> dict[str, Any]:
     try:
         return json.loads(ds.attrs["design"])
@@ -126,11 +142,31 @@ def _effect_word(endpoint: dict[str, Any] | Any) -> str:
 # the design prior
 # ------------------------------------------------------------------------------------------
 def _quantile(prior: Any, q: float) -> float | None:
+    """``prior.ppf(q)``, or bisection on the cdf where ``ppf`` cannot answer."""
     try:
         value = float(prior.ppf(q))
+        return value if math.isfinite(value) else None
+    except (ArithmeticError, ValueError, RuntimeError):
+        pass
+    try:
+        lo, hi = -1.0, 1.0
+        for _ in range(200):
+            if float(prior.cdf(lo)) < q:
+                break
+            lo *= 2
+        for _ in range(200):
+            if float(prior.cdf(hi)) >= q:
+                break
+            hi *= 2
+        for _ in range(200):
+            mid = (lo + hi) / 2
+            if float(prior.cdf(mid)) >= q:
+                hi = mid
+            else:
+                lo = mid
+        return hi if math.isfinite(hi) else None
     except (ArithmeticError, ValueError, RuntimeError):
         return None
-    return value if math.isfinite(value) else None
 
 
 def _plot_range(design: TrialDesign, marks: Sequence[float]) -> tuple[float, float]:
@@ -152,6 +188,24 @@ def _plot_range(design: TrialDesign, marks: Sequence[float]) -> tuple[float, flo
         span = max(1.0, abs(lo))
         lo, hi = lo - span / 2, hi + span / 2
     return lo - 0.06 * span, hi + 0.06 * span
+
+
+def passable_probability(design: TrialDesign) -> float:
+    """Prior probability of the effects at which the rule can be passed with enough patients.
+
+    This is the ceiling of assurance except for a point mass exactly at the edge of that
+    region (typically "no effect" in a superiority trial), whose false positives the
+    ceiling also counts.
+
+    Examples
+    --------
+    >>> import assurance as asr
+    >>> prior = asr.Mixture([asr.PointMass(0.0), asr.Normal(4.0, 2.5)], [0.25, 0.75])
+    >>> design = asr.TrialDesign(asr.ContinuousEndpoint(sigma=10.0), prior)
+    >>> round(passable_probability(design), 4), round(design.ceiling(), 4)
+    (0.7089, 0.7152)
+    """
+    return design.benefit_prior.prob_above(design.benefit_rule.lowest_passable_effect())
 
 
 def plot_prior(design: TrialDesign, ax: Axes | None = None) -> Axes:
@@ -195,11 +249,12 @@ def plot_prior(design: TrialDesign, ax: Axes | None = None) -> Axes:
             f"The 'design' parameter of plot_prior must be a TrialDesign. Got {design!r} "
             "instead."
         )
-    ax = _axes(ax)
+    own = ax is None
+    ax = _axes(ax, (7.6, 5.6))
     _style(ax)
     prior = design.design_prior
     sign = design.endpoint.sign
-    threshold = sign * design.benefit_rule.lowest_passable_effect()
+    threshold = sign * design.benefit_rule.lowest_passable_effect() + 0.0  # no -0
     ceiling = design.ceiling()
     atoms = [(loc, p) for loc, p in prior.atoms() if p > 0]
     marks = [0.0, float(design.assumed_effect), threshold, *(loc for loc, _ in atoms)]
@@ -207,23 +262,25 @@ def plot_prior(design: TrialDesign, ax: Axes | None = None) -> Axes:
         marks.append(float(design.relevant_effect))
     lo, hi = _plot_range(design, marks)
 
-    # passable side of the threshold
-    def passable(x: np.ndarray | float) -> np.ndarray:
-        return np.asarray(x) > threshold if sign > 0 else np.asarray(x) < threshold
-
+    continuous_weight = 1.0 - sum(p for _, p in atoms)
+    region = passable_probability(design)
+    if abs(region - ceiling) < 5e-4:
+        region_label = f"(prior probability {region:.3f} = ceiling of assurance)"
+    else:
+        region_label = (f"(prior probability {region:.3f}; ceiling of assurance {ceiling:.3f},\n"
+                        f"which adds false positives at exactly {threshold:g})")
     side = (threshold, hi) if sign > 0 else (lo, threshold)
-    ax.axvspan(*side, color=_SKY, alpha=0.13, linewidth=0, zorder=0,
-               label=f"effects the rule can pass with enough patients\n"
-                     f"(prior probability {ceiling:.3f} = ceiling of assurance)")
-
+    region_label = "effects the rule can pass with enough patients\n" + region_label
     x = np.union1d(np.linspace(lo, hi, 801), [threshold])
     dens = np.nan_to_num(np.asarray(prior.pdf(x), dtype=float), nan=0.0, posinf=0.0)
-    continuous_weight = 1.0 - sum(p for _, p in atoms)
     peak = float(dens.max()) if continuous_weight > 1e-12 and dens.size else 0.0
+    ax.axvspan(*side, color=_SKY, alpha=0.13 if peak > 0 else 0.22, linewidth=0, zorder=0,
+               label=None if peak > 0 else region_label)
     if peak > 0:
         ax.plot(x, dens, color="#333333", linewidth=1.6, label="design prior (density)")
         yes = x >= threshold if sign > 0 else x <= threshold
-        ax.fill_between(x[yes], dens[yes], color=_SKY, alpha=0.55, linewidth=0)
+        ax.fill_between(x[yes], dens[yes], color=_SKY, alpha=0.55, linewidth=0,
+                        label=region_label)
         ax.fill_between(x[~yes | (x == threshold)], dens[~yes | (x == threshold)],
                         color=_LIGHT, alpha=0.9, linewidth=0)
         ax.set_ylabel("prior density", fontsize=10.5)
@@ -235,12 +292,14 @@ def plot_prior(design: TrialDesign, ax: Axes | None = None) -> Axes:
         scale = 0.8 * peak / biggest if peak > 0 else 1.0
         for k, (loc, p) in enumerate(atoms):
             h = p * scale
-            colour = _BLUE if passable(loc) else _PURPLE
+            colour = _PURPLE
             ax.vlines(loc, 0, h, color=colour, linewidth=3.0, zorder=4,
                       label="point mass (labelled with its probability)" if k == 0 else None)
             ax.plot([loc], [h], marker="o", markersize=6, color=colour, zorder=5)
-            ax.annotate(f"P = {p:.3g}", (loc, h), xytext=(5, 4), textcoords="offset points",
-                        fontsize=9, color="#222222", zorder=6)
+            right = loc > lo + 0.85 * (hi - lo)  # keep the label inside the axes
+            ax.annotate(f"P = {p:.3g}", (loc, h), xytext=(-5 if right else 5, 4),
+                        textcoords="offset points", ha="right" if right else "left",
+                        fontsize=9, color="#222222", zorder=6, bbox=_TEXT_BOX)
         top = max(peak, biggest * scale)
     else:
         top = peak
@@ -259,11 +318,15 @@ def plot_prior(design: TrialDesign, ax: Axes | None = None) -> Axes:
                    label=f"clinically relevant effect ({design.relevant_effect:g})")
 
     ax.set_xlim(lo, hi)
-    ax.set_ylim(0, top * 1.55)  # head room for the legend
     ax.set_xlabel(_effect_word(design.endpoint), fontsize=10.5)
-    ax.set_title(f"{design.title}: design prior for the true effect", fontsize=11.5,
+    ax.set_title(_title(design.title, "design prior for the true effect"), fontsize=11.5,
                  loc="left")
-    _legend(ax, loc="upper left" if sign > 0 else "upper right", ncol=1)
+    if own:
+        ax.set_ylim(0, top * 1.12)
+        _legend_below(ax)
+    else:
+        ax.set_ylim(0, top * 1.6)  # head room for the legend
+        _legend(ax, loc="upper left" if sign > 0 else "upper right", ncol=1)
     return ax
 
 
@@ -280,7 +343,7 @@ def plot_power_and_assurance(
     ds: Any,
     ax: Axes | None = None,
     *,
-    answers: Sequence[SampleSizeAnswer] = (),
+    answers: Sequence[SampleSizeAnswer] | None = (),
 ) -> Axes:
     """Draw classical power and assurance against the total number of patients.
 
@@ -311,8 +374,8 @@ def plot_power_and_assurance(
     >>> ds = asr.evaluate(design, range(20, 401, 20))
     >>> answer = asr.solve_sample_size(design, 0.5)
     >>> ax = plot_power_and_assurance(ds, answers=[answer])
-    >>> ax.get_ylim()
-    (0.0, 1.0)
+    >>> [float(v) for v in ax.get_ylim()]
+    [0.0, 1.0]
     """
     _check_dataset(ds, "plot_power_and_assurance")
     ax = _axes(ax)
@@ -323,8 +386,9 @@ def plot_power_and_assurance(
     power_label = "classical power at the assumed effect" + (
         f" ({assumed:g})" if isinstance(assumed, int | float) else "")
 
-    ax.plot(n, ds["power"].values, color=_BLUE, linewidth=2.0, label=power_label)
-    ax.plot(n, ds["assurance"].values, color=_VERMILLION, linewidth=2.4,
+    dot = "o" if n.size < 4 else None  # a line of one or two points needs markers
+    ax.plot(n, ds["power"].values, color=_BLUE, linewidth=2.0, marker=dot, label=power_label)
+    ax.plot(n, ds["assurance"].values, color=_VERMILLION, linewidth=2.4, marker=dot,
             label="assurance (averaged over the design prior)")
     if "assurance_mcse" in ds:
         _band(ax, n, ds["assurance"].values, ds["assurance_mcse"].values, _VERMILLION,
@@ -351,11 +415,15 @@ def plot_power_and_assurance(
                 zorder=6)
 
     lo, hi = float(n.min()), float(n.max())
-    for answer in answers:
-        if not answer.reached or answer.n_total is None or answer.achieved is None:
-            continue
-        if not lo <= answer.n_total <= hi:
-            continue
+    shown = sorted((a for a in answers or () if a.reached and a.n_total is not None
+                    and a.achieved is not None and lo <= a.n_total <= hi),
+                   key=lambda a: a.n_total)
+    last_x, last_y, depth = -np.inf, -np.inf, 0
+    for answer in shown:
+        # labels of nearby points are stacked downwards so they never overprint
+        near = answer.n_total - last_x < 0.15 * (hi - lo) and abs(answer.achieved - last_y) < 0.15
+        depth = depth + 1 if near else 0
+        last_x, last_y = answer.n_total, answer.achieved
         colour = _QUANTITY_COLOUR.get(answer.quantity, _GREY)
         ax.vlines(answer.n_total, 0, answer.achieved, color=colour, linewidth=1.0,
                   linestyle=":", zorder=3)
@@ -363,7 +431,7 @@ def plot_power_and_assurance(
                 markerfacecolor=colour, markeredgecolor=_BLACK, zorder=5)
         name = _QUANTITY_NAME.get(answer.quantity, answer.quantity)
         ax.annotate(f"n = {answer.n_total}\n({name} {answer.target:g})",
-                    (answer.n_total, answer.achieved), xytext=(6, -26),
+                    (answer.n_total, answer.achieved), xytext=(6, -26 - 30 * depth),
                     textcoords="offset points", fontsize=8.5, color="#222222", zorder=6,
                     bbox=_TEXT_BOX)
 
@@ -372,8 +440,7 @@ def plot_power_and_assurance(
     ax.set_xlabel("total number of patients (all arms)", fontsize=10.5)
     ax.set_ylabel("probability", fontsize=10.5)
     title = ds.attrs.get("title", "")
-    ax.set_title(f"{title}: chance of success by sample size" if title
-                 else "Chance of success by sample size", fontsize=11.5, loc="left")
+    ax.set_title(_title(title, "chance of success by sample size"), fontsize=11.5, loc="left")
     _legend(ax, loc="lower right")
     return ax
 
@@ -454,13 +521,10 @@ def plot_decomposition(ds: Any, ax: Axes | None = None) -> Axes:
     ax.set_xlabel("total number of patients (all arms)", fontsize=10.5)
     ax.set_ylabel("probability", fontsize=10.5)
     title = ds.attrs.get("title", "")
-    ax.set_title(f"{title}: what a success or a failure would mean" if title
-                 else "What a success or a failure would mean", fontsize=11.5, loc="left")
-    if own:  # room of our own: the legend goes under the plot
-        handles, labels = ax.get_legend_handles_labels()
-        legend = ax.figure.legend(handles, labels, loc="outside lower center", ncol=2,
-                                  fontsize=8.8, frameon=False)
-        legend.set_in_layout(True)
+    ax.set_title(_title(title, "what a success or a failure would mean"), fontsize=11.5,
+                 loc="left")
+    if own:
+        _legend_below(ax)
     else:
         _legend(ax, loc="upper left")
     return ax

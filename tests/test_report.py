@@ -1,0 +1,268 @@
+"""Figures and the HTML decision memo.
+
+Everything here checks what a reader of the output relies on: files are written whole and
+never replace an existing file unless asked; the memo is one self-contained file (no
+scripts, nothing fetched from elsewhere); user text is escaped; the numbers the memo
+promises (ceiling, Monte Carlo standard errors, unreachable targets) are printed with the
+stated formatting, taken from the dataset the memo was given. Grids and Monte Carlo draws
+are small so the file runs in a few seconds.
+"""
+
+from __future__ import annotations
+
+import datetime
+import html
+
+import numpy as np
+import pytest
+
+import assurance as asr
+from assurance.errors import AssuranceInputError
+from assurance.report import (
+    DEFAULT_CAUTIONS,
+    figure_bytes,
+    memo_html,
+    memo_text_summary,
+    passable_probability,
+    plot_decomposition,
+    plot_power_and_assurance,
+    plot_prior,
+    save_figure,
+    write_memo,
+)
+
+SIZES = range(20, 401, 40)
+DRAWS = 400
+DATE = datetime.date(2026, 1, 5)
+VERSIONS = "python 3.x\nassurance test-build"
+
+
+@pytest.fixture(scope="module")
+def exact():
+    design = asr.TrialDesign(
+        asr.ContinuousEndpoint(sigma=10.0),
+        asr.Mixture([asr.PointMass(0.0), asr.Normal(4.0, 2.5)], [0.25, 0.75]),
+        relevant_effect=3.0,
+        title="Trial <b>& friends",
+    )
+    ds = asr.evaluate(design, SIZES)
+    answers = [
+        asr.solve_sample_size(design, 0.5),
+        asr.solve_sample_size(design, 0.9, quantity="power"),
+        asr.solve_sample_size(design, 0.99),  # above the ceiling
+    ]
+    return design, ds, answers
+
+
+@pytest.fixture(scope="module")
+def monte_carlo():
+    design = asr.TrialDesign(
+        asr.ContinuousEndpoint(sigma=10.0, better="lower"),
+        asr.Normal(-4.0, 2.5),
+        relevant_effect=-3.0,
+        sigma_prior=asr.ScaledInvChiSquare(30, 10.0),
+        title="Uncertain SD, lower is better",
+    )
+    ds = asr.evaluate(design, SIZES, draws=DRAWS, seed=7)
+    answers = [asr.solve_sample_size(design, 0.5, draws=DRAWS, seed=7)]
+    return design, ds, answers
+
+
+# ------------------------------------------------------------------------------------------
+# figures
+# ------------------------------------------------------------------------------------------
+def test_each_figure_writes_non_empty_png_and_svg(tmp_path, exact):
+    design, ds, answers = exact
+    axes = {
+        "prior": plot_prior(design),
+        "power": plot_power_and_assurance(ds, answers=answers),
+        "split": plot_decomposition(ds),
+    }
+    for name, ax in axes.items():
+        png, svg = save_figure(ax.figure, tmp_path / name)
+        assert png == tmp_path / f"{name}.png" and svg == tmp_path / f"{name}.svg"
+        assert png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+        assert png.stat().st_size > 10_000
+        text = svg.read_text(encoding="utf-8")
+        assert "<svg" in text and "</svg>" in text
+    # nothing but the six figures: no temporary file is left behind
+    assert sorted(p.name for p in tmp_path.iterdir()) == sorted(
+        f"{n}.{ext}" for n in axes for ext in ("png", "svg"))
+
+
+def test_save_figure_drops_a_given_suffix(tmp_path, exact):
+    png, svg = save_figure(plot_prior(exact[0]).figure, tmp_path / "prior.png")
+    assert (png.name, svg.name) == ("prior.png", "prior.svg")
+
+
+def test_save_figure_refuses_to_overwrite_and_leaves_the_file_alone(tmp_path, exact):
+    fig = plot_prior(exact[0]).figure
+    existing = tmp_path / "prior.svg"
+    existing.write_text("keep me", encoding="utf-8")
+    with pytest.raises(AssuranceInputError, match="prior.svg"):
+        save_figure(fig, tmp_path / "prior")
+    assert existing.read_text(encoding="utf-8") == "keep me"
+    assert not (tmp_path / "prior.png").exists()  # refused before writing anything
+    png, svg = save_figure(fig, tmp_path / "prior", overwrite=True)
+    assert "<svg" in svg.read_text(encoding="utf-8") and png.exists()
+
+
+def test_save_figure_needs_an_existing_folder(tmp_path, exact):
+    with pytest.raises(AssuranceInputError, match="does not exist"):
+        save_figure(plot_prior(exact[0]).figure, tmp_path / "missing" / "prior")
+
+
+def test_figures_draw_into_given_axes(exact):
+    from matplotlib.figure import Figure
+
+    design, ds, _ = exact
+    fig = Figure()
+    grid = fig.subplots(1, 3)
+    assert plot_prior(design, ax=grid[0]) is grid[0]
+    assert plot_power_and_assurance(ds, ax=grid[1]) is grid[1]
+    assert plot_decomposition(ds, ax=grid[2]) is grid[2]
+    assert grid[1].get_ylim() == (0.0, 1.0)
+    assert figure_bytes(fig, "svg").startswith(b"<?xml")
+
+
+def test_power_figure_shows_the_ceiling_value(exact):
+    _, ds, _ = exact
+    ax = plot_power_and_assurance(ds)
+    texts = [t.get_text() for t in ax.texts] + [t.get_text() for t in ax.get_legend().texts]
+    assert any(f"{float(ds.ceiling):.3f}" in t for t in texts)
+
+
+def test_prior_figure_for_lower_is_better_covers_the_negative_effects(monte_carlo):
+    design = monte_carlo[0]
+    ax = plot_prior(design)
+    lo, hi = ax.get_xlim()
+    assert lo < design.design_prior.ppf(0.01) and hi > 0.0
+    assert "lower is better" in ax.get_xlabel()
+
+
+def test_passable_probability_leaves_out_the_null_point_mass(exact):
+    design = exact[0]
+    assert passable_probability(design) == pytest.approx(0.75 * 0.945200708300442, abs=1e-9)
+    assert design.ceiling() > passable_probability(design)
+
+
+def test_plots_reject_something_that_is_not_a_dataset(exact):
+    with pytest.raises(AssuranceInputError, match="assurance.evaluate"):
+        plot_power_and_assurance({"power": [0.5]})
+    with pytest.raises(AssuranceInputError, match="TrialDesign"):
+        plot_prior("design")
+
+
+# ------------------------------------------------------------------------------------------
+# memo
+# ------------------------------------------------------------------------------------------
+@pytest.fixture(scope="module")
+def exact_page(exact, tmp_path_factory):
+    design, ds, answers = exact
+    folder = tmp_path_factory.mktemp("memo")
+    path = write_memo(design, ds, answers, folder / "memo.html", date=DATE, versions=VERSIONS)
+    assert [p.name for p in folder.iterdir()] == ["memo.html"]
+    return path.read_text(encoding="utf-8")
+
+
+def test_memo_is_one_self_contained_file(exact_page):
+    page = exact_page.lower()
+    assert page.startswith("<!doctype html>")
+    for banned in ('src="http', "src='http", 'href="http', "href='http", "<script", "<link",
+                   "@import", "url("):
+        assert banned not in page
+    assert page.count('src="data:image/png;base64,') == 2
+
+
+def test_memo_carries_the_cautions(exact_page):
+    for sentence in DEFAULT_CAUTIONS:
+        assert html.escape(sentence) in exact_page
+    for words in ("qualified statistician", "ICH E9", "ethics committee",
+                  "how many patients receive an experimental treatment"):
+        assert words in exact_page
+
+
+def test_memo_escapes_the_title(exact_page):
+    assert "Trial &lt;b&gt;&amp; friends" in exact_page
+    assert "<b>&" not in exact_page
+
+
+def test_memo_shows_the_numbers_it_promises(exact, exact_page):
+    _, ds, answers = exact
+    assert f"{float(ds.ceiling):.3f}" in exact_page
+    assert f"{float(ds.prob_relevant):.3f}" in exact_page
+    reached = answers[0]
+    assert f"{reached.achieved:.3f}" in exact_page and f">{reached.n_total}<" in exact_page
+    # a row of the candidate table, exactly as in ds
+    j = int(np.flatnonzero(ds.n.values == 100)[0])
+    assert f">{float(ds.assurance[j]):.3f}<" in exact_page
+    assert f">{float(ds.power[j]):.3f}<" in exact_page
+    assert "2026-01-05" in exact_page and "assurance test-build" in exact_page
+
+
+def test_memo_reports_an_unreachable_target(exact, exact_page):
+    unreachable = exact[2][2]
+    assert not unreachable.reached
+    assert "not reachable" in exact_page
+    assert html.escape(unreachable.message) in exact_page
+    assert "Assurance 0.99 cannot be reached" in exact_page
+
+
+def test_memo_with_monte_carlo_shows_standard_errors(monte_carlo):
+    design, ds, answers = monte_carlo
+    page = memo_html(design, ds, answers, date=DATE, versions=VERSIONS, figures=False)
+    j = int(np.flatnonzero(ds.n.values == 100)[0])
+    value, se = float(ds.assurance[j]), float(ds.assurance_mcse[j])
+    assert f"{value:.3f} \u00b1 {se:.3f}" in page
+    assert f"{answers[0].achieved:.3f} \u00b1 {answers[0].achieved_mcse:.3f}" in page
+    assert f"{DRAWS} draws, seed 7" in page
+    assert "Monte Carlo standard error" in page
+
+
+def test_memo_is_reproducible_with_a_fixed_date(exact):
+    design, ds, answers = exact
+    first = memo_html(design, ds, answers, date=DATE, versions=VERSIONS)
+    assert memo_html(design, ds, answers, date=DATE, versions=VERSIONS) == first
+
+
+def test_write_memo_refuses_to_overwrite(tmp_path, exact):
+    design, ds, answers = exact
+    path = tmp_path / "memo.html"
+    path.write_text("earlier memo", encoding="utf-8")
+    with pytest.raises(AssuranceInputError, match="memo.html"):
+        write_memo(design, ds, answers, path, figures=False)
+    assert path.read_text(encoding="utf-8") == "earlier memo"
+    write_memo(design, ds, answers, path, overwrite=True, figures=False, date=DATE)
+    assert "2026-01-05" in path.read_text(encoding="utf-8")
+
+
+def test_memo_refuses_a_dataset_of_another_design(exact, monte_carlo):
+    with pytest.raises(AssuranceInputError, match="same design"):
+        memo_html(exact[0], monte_carlo[1], [], figures=False)
+
+
+def test_memo_without_targets_summarises_the_grid(exact):
+    design, ds, _ = exact
+    page = memo_html(design, ds, None, date=DATE, versions=VERSIONS, figures=False)
+    assert "No target was solved" in page
+    assert f"From {int(ds.n[0])} to {int(ds.n[-1])} patients" in page
+
+
+def test_custom_cautions_replace_the_default(exact):
+    design, ds, _ = exact
+    page = memo_html(design, ds, [], cautions=["Check <this>."], versions="-", date=DATE,
+                     figures=False)
+    assert "Check &lt;this&gt;." in page and DEFAULT_CAUTIONS[0] not in page
+
+
+def test_text_summary_gives_the_headline_and_each_target(exact, monte_carlo):
+    design, ds, answers = exact
+    text = memo_text_summary(design, ds, answers)
+    lines = text.splitlines()
+    assert lines[0] == design.title
+    assert f"{float(ds.ceiling):.3f}" in text
+    assert f"assurance 0.5: {answers[0].n_total} patients" in text
+    assert "assurance 0.99: not reachable" in text
+    assert max(len(line) for line in lines) <= 88
+    mc_text = memo_text_summary(*monte_carlo)
+    assert "\u00b1" in mc_text
