@@ -8,6 +8,7 @@ from dataclasses import dataclass, field
 from typing import Any
 
 from ._validation import check_real
+from .endpoints.base import Endpoint
 from .endpoints.continuous import ContinuousEndpoint
 from .errors import AssuranceInputError
 from .priors import Prior, as_prior
@@ -65,10 +66,10 @@ class TrialDesign:
 
     def __post_init__(self) -> None:
         owner = "TrialDesign"
-        if not isinstance(self.endpoint, ContinuousEndpoint):
+        if not isinstance(self.endpoint, Endpoint):
             raise AssuranceInputError(
-                f"The 'endpoint' parameter of {owner} must be a ContinuousEndpoint. "
-                f"Got {self.endpoint!r} instead."
+                f"The 'endpoint' parameter of {owner} must be an endpoint such as "
+                f"ContinuousEndpoint. Got {self.endpoint!r} instead."
             )
         if not isinstance(self.rule, Significance):
             raise AssuranceInputError(
@@ -95,6 +96,11 @@ class TrialDesign:
                     f"{rel:g}. Got {rel!r} instead."
                 )
         if self.sigma_prior is not None:
+            if not isinstance(self.endpoint, ContinuousEndpoint):
+                raise AssuranceInputError(
+                    f"The 'sigma_prior' parameter of {owner} applies to a ContinuousEndpoint "
+                    f"only. Got it with {type(self.endpoint).__name__}."
+                )
             sp = as_prior(self.sigma_prior, "sigma_prior", owner)
             lo, _ = sp.support()
             if lo < 0 or float(sp.cdf(0.0)) > 0 or any(loc <= 0 for loc, _ in sp.atoms()):
@@ -114,11 +120,13 @@ class TrialDesign:
     # ---- the benefit scale (larger is better) used by all computations ---------------------
     @property
     def benefit_prior(self) -> Prior:
-        return self.design_prior if self.endpoint.sign > 0 else self.design_prior.negated()
+        """The design prior on the benefit scale (larger is better)."""
+        return self.endpoint.benefit_prior(self.design_prior)
 
     @property
     def benefit_rule(self) -> Significance:
-        return self.rule if self.endpoint.sign > 0 else self.rule.flipped()
+        """The success rule on the benefit scale."""
+        return self.endpoint.benefit_rule(self.rule)
 
     def ceiling(self) -> float:
         """The value assurance approaches as n grows: the most any sample size can give.
@@ -181,12 +189,9 @@ class TrialDesign:
 
     def to_dict(self) -> dict[str, Any]:
         """Plain description of every input, for results and memos."""
-        ep = self.endpoint
         return {
             "title": self.title,
-            "endpoint": {"kind": "continuous", "sigma": ep.sigma, "layout": ep.layout,
-                         "allocation": ep.allocation, "analysis": ep.analysis,
-                         "better": ep.better},
+            "endpoint": self.endpoint.to_dict(),
             "rule": {"kind": "significance", "alpha": self.rule.alpha, "sided": self.rule.sided,
                      "margin": self.rule.margin, "min_estimate": self.rule.min_estimate},
             "design_prior": self.design_prior.to_dict(),

@@ -18,10 +18,9 @@ from typing import Any, Literal
 import numpy as np
 
 from ._validation import check_choice, check_int, check_real, check_real_array
-from .compute.normal_outcome import Cut, EffectDraws, exact_success, monte_carlo_success
+from .compute.normal_outcome import Cut
 from .design import TrialDesign
 from .errors import AssuranceInputError, AssuranceWarning
-from .priors import PointMass
 
 __all__ = ["evaluate", "solve_sample_size", "SampleSizeAnswer", "Quantity"]
 
@@ -47,9 +46,9 @@ class _Calculator:
         self.cuts = [Cut(0.0)] + ([Cut(self.relevant, inclusive=True)]
                                   if self.relevant is not None else [])
         self.prob_relevant = design.prob_relevant()
-        self.monte_carlo = design.sigma_prior is not None
-        self.draws = (EffectDraws.draw(self.prior, design.sigma_prior, draws, seed)
-                      if self.monte_carlo else None)
+        self.engine = design.endpoint.calculator(self.prior, self.rule, draws=draws, seed=seed,
+                                                 nuisance=design.sigma_prior)
+        self.monte_carlo = self.engine.monte_carlo
         if self.monte_carlo and self.prob_relevant is not None:
             expected = self.prob_relevant * draws
             if expected < 100:
@@ -59,25 +58,13 @@ class _Calculator:
                     "conditional assurance will be imprecise. Increase the draws.",
                     AssuranceWarning, stacklevel=3)
 
-    def _geometry(self, n_t: np.ndarray, n_c: np.ndarray) -> dict[str, np.ndarray]:
-        ep = self.endpoint
-        return {"se_factor": ep.se_factor(n_t, n_c), "df": ep.degrees_of_freedom(n_t, n_c),
-                "analysis": ep.analysis}
-
     def power(self, effect: float, n_t: np.ndarray, n_c: np.ndarray) -> np.ndarray:
-        """Classical power at one natural-scale effect, planning sigma."""
-        prior = PointMass(float(self.endpoint.to_benefit(effect)))
-        return exact_success(prior, self.rule, sigma=self.endpoint.sigma,
-                             **self._geometry(n_t, n_c)).success
+        """Classical power at one natural-scale effect, planning nuisance values."""
+        return self.engine.power(float(self.endpoint.to_benefit(effect)), n_t, n_c)
 
     def assurance(self, n_t: np.ndarray, n_c: np.ndarray) -> dict[str, np.ndarray]:
         """Assurance and its decomposition (plus standard errors under Monte Carlo)."""
-        geo = self._geometry(n_t, n_c)
-        if self.monte_carlo:
-            res = monte_carlo_success(self.draws, self.rule, cuts=self.cuts, **geo)
-        else:
-            res = exact_success(self.prior, self.rule, sigma=self.endpoint.sigma,
-                                cuts=self.cuts, **geo)
+        res = self.engine.success(n_t, n_c, self.cuts)
         out = {"assurance": res.success, "prob_success_and_benefit": res.joint[0]}
         if res.success_mcse is not None:
             out["assurance_mcse"] = res.success_mcse
@@ -198,14 +185,15 @@ def evaluate(
     data_vars["prob_benefit"] = ((), design.prob_benefit())
     if design.relevant_effect is not None:
         data_vars["prob_relevant"] = ((), design.prob_relevant())
+    coords = {"n": n, "n_treatment": ("n", n_t), "n_control": ("n", n_c), "effect": effects}
+    coords.update({k: ("n", v) for k, v in design.endpoint.extra_coords(n_t, n_c).items()})
     ds = xr.Dataset(
         data_vars,
-        coords={"n": n, "n_treatment": ("n", n_t), "n_control": ("n", n_c), "effect": effects},
+        coords=coords,
         attrs={
             "title": design.title,
             "design": json.dumps(design.to_dict()),
-            "method": ("Monte Carlo over effect and sigma (Rao-Blackwellised)"
-                       if calc.monte_carlo else _exact_method(design)),
+            "method": calc.engine.method(),
             "draws": draws if calc.monte_carlo else 0,
             "seed": -1 if seed is None else seed,
             "package_version": __version__,
@@ -213,15 +201,6 @@ def evaluate(
     )
     _label(ds)
     return ds
-
-
-def _exact_method(design: TrialDesign) -> str:
-    kinds = {type(part).__name__ for _, part in design.benefit_prior.parts()}
-    closed = kinds <= {"Normal", "PointMass"}
-    base = "closed form" if closed else "adaptive quadrature over the prior"
-    if design.endpoint.analysis == "t":
-        base += "; Gauss-Hermite quadrature over the sample SD (t test)"
-    return base
 
 
 _LABELS = {

@@ -14,6 +14,9 @@ from typing import Any, Literal
 import numpy as np
 
 from .._validation import check_choice, check_real
+from ..priors import Prior
+from ..rules import Significance
+from .base import Endpoint, SuccessCalculator
 
 __all__ = ["ContinuousEndpoint"]
 
@@ -21,7 +24,7 @@ Layout = Literal["two_arm", "single_arm"]
 
 
 @dataclass(frozen=True)
-class ContinuousEndpoint:
+class ContinuousEndpoint(Endpoint):
     """A normally distributed outcome with standard deviation ``sigma``.
 
     Parameters
@@ -67,10 +70,7 @@ class ContinuousEndpoint:
         check_choice(self.analysis, "analysis", owner, ["t", "z"])
         check_choice(self.better, "better", owner, ["higher", "lower"])
 
-    # ---- sizes ------------------------------------------------------------------------------
-    @property
-    def arms(self) -> int:
-        return 2 if self.layout == "two_arm" else 1
+    effect_name = "difference in means"
 
     @property
     def smallest_total(self) -> int:
@@ -78,31 +78,6 @@ class ContinuousEndpoint:
         if self.layout == "single_arm":
             return 2 if self.analysis == "t" else 1
         return 3 if self.analysis == "t" else 2
-
-    def arm_sizes(self, n_total: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-        """Split total sizes into (treatment, control) by the allocation ratio.
-
-        Treatment gets ``round(n * r / (1 + r))``, kept between 1 and ``n - 1``; for one
-        group the whole sample is "treatment" and control is 0.
-        """
-        n = np.asarray(n_total, dtype=int)
-        if self.layout == "single_arm":
-            return n.copy(), np.zeros_like(n)
-        r = self.allocation
-        treat = np.clip(np.floor(n * r / (1 + r) + 0.5).astype(int), 1, np.maximum(n - 1, 1))
-        return treat, n - treat
-
-    def sizes_from_control(self, n_control: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-        """(treatment, control) when the control arm has ``n_control`` patients.
-
-        Treatment gets ``ceil(allocation * n_control)`` (never fewer than the ratio asks);
-        for one group the argument is the whole sample.
-        """
-        n_c = np.asarray(n_control, dtype=int)
-        if self.layout == "single_arm":
-            return n_c.copy(), np.zeros_like(n_c)
-        treat = np.ceil(self.allocation * n_c - 1e-9).astype(int)
-        return np.maximum(treat, 1), n_c
 
     def se_factor(self, n_treatment: np.ndarray, n_control: np.ndarray) -> np.ndarray:
         """``k`` with standard error of the estimate ``= sigma * k``."""
@@ -116,26 +91,65 @@ class ContinuousEndpoint:
         n = np.asarray(n_treatment) + np.asarray(n_control)
         return (n - self.arms).astype(float)
 
-    # ---- direction -------------------------------------------------------------------------
-    @property
-    def sign(self) -> float:
-        """+1 if higher is better, -1 if lower is better."""
-        return 1.0 if self.better == "higher" else -1.0
-
-    def to_benefit(self, effect: Any) -> Any:
-        """Natural-scale effect(s) to the benefit scale (larger is better)."""
-        if effect is None:
-            return None
-        return self.sign * np.asarray(effect, dtype=float) if np.ndim(effect) else \
-            self.sign * float(effect)
-
     def describe(self) -> str:
         """Plain description for memos."""
         if self.layout == "two_arm":
-            shape = f"two parallel arms, {self.allocation:g}:1 (treatment:control)"
+            shape = self.layout_text()
         else:
             shape = "single arm / paired differences against a fixed reference"
         test = "t test (sigma estimated)" if self.analysis == "t" else "z test (sigma known)"
         return (f"continuous outcome, SD {self.sigma:g}; {shape}; {test}; "
                 f"{self.better} values are better")
+
+    def to_dict(self) -> dict[str, Any]:
+        return {"kind": "continuous", "sigma": self.sigma, "layout": self.layout,
+                "allocation": self.allocation, "analysis": self.analysis,
+                "better": self.better}
+
+    def calculator(self, prior_benefit: Prior, rule_benefit: Significance, *, draws: int,
+                   seed: int | None, nuisance: Prior | None = None) -> SuccessCalculator:
+        """Exact calculator, or Monte Carlo when ``nuisance`` (a prior on sigma) is given."""
+        return _ContinuousCalculator(self, prior_benefit, rule_benefit, nuisance, draws, seed)
+
+
+class _ContinuousCalculator(SuccessCalculator):
+    def __init__(self, endpoint: ContinuousEndpoint, prior: Prior, rule: Significance,
+                 sigma_prior: Prior | None, draws: int, seed: int | None):
+        from ..compute.normal_outcome import EffectDraws
+
+        self.endpoint, self.prior, self.rule = endpoint, prior, rule
+        self.monte_carlo = sigma_prior is not None
+        self.draws = (EffectDraws.draw(prior, sigma_prior, draws, seed)
+                      if self.monte_carlo else None)
+
+    def _geometry(self, n_t: np.ndarray, n_c: np.ndarray) -> dict[str, Any]:
+        ep = self.endpoint
+        return {"se_factor": ep.se_factor(n_t, n_c), "df": ep.degrees_of_freedom(n_t, n_c),
+                "analysis": ep.analysis}
+
+    def success(self, n_t, n_c, cuts):
+        from ..compute.normal_outcome import exact_success, monte_carlo_success
+
+        geo = self._geometry(n_t, n_c)
+        if self.monte_carlo:
+            return monte_carlo_success(self.draws, self.rule, cuts=cuts, **geo)
+        return exact_success(self.prior, self.rule, sigma=self.endpoint.sigma, cuts=cuts,
+                             **geo)
+
+    def power(self, effect_benefit, n_t, n_c):
+        from ..compute.normal_outcome import exact_success
+        from ..priors import PointMass
+
+        return exact_success(PointMass(float(effect_benefit)), self.rule,
+                             sigma=self.endpoint.sigma, **self._geometry(n_t, n_c)).success
+
+    def method(self) -> str:
+        if self.monte_carlo:
+            return "Monte Carlo over effect and sigma (Rao-Blackwellised)"
+        kinds = {type(part).__name__ for _, part in self.prior.parts()}
+        base = ("closed form" if kinds <= {"Normal", "PointMass"}
+                else "adaptive quadrature over the prior")
+        if self.endpoint.analysis == "t":
+            base += "; Gauss-Hermite quadrature over the sample SD (t test)"
+        return base
 
