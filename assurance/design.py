@@ -7,6 +7,8 @@ from collections.abc import Sequence
 from dataclasses import dataclass, field
 from typing import Any
 
+import numpy as np
+
 from ._validation import check_real
 from .endpoints.base import Endpoint
 from .endpoints.continuous import ContinuousEndpoint
@@ -29,12 +31,16 @@ class TrialDesign:
     endpoint
         The outcome and how the trial is laid out (:class:`ContinuousEndpoint`).
     design_prior
-        What we believe about the true effect (natural scale: treatment minus control, or
-        the mean change for one group). A number means a point mass.
+        What we believe about the true effect, on the endpoint's analysis scale: the
+        difference (treatment minus control, or the mean change for one group), or the log
+        of a ratio for ratio endpoints (log hazard ratio, log rate ratio). A number means a
+        point mass.
     rule
         When the trial counts as a success (:class:`Significance`, one-sided 0.025 default).
     assumed_effect
-        The single effect classical power is computed at; defaults to the prior mean.
+        The single effect classical power is computed at (natural scale: a difference, or a
+        ratio for ratio endpoints); defaults to the prior mean (for a ratio endpoint, the
+        ratio at the mean of the prior on the log scale).
     relevant_effect
         Smallest effect that matters clinically (natural scale). Enables
         P(success and effect relevant), conditional assurance and P(miss a relevant effect).
@@ -76,10 +82,29 @@ class TrialDesign:
                 f"The 'rule' parameter of {owner} must be a Significance rule. "
                 f"Got {self.rule!r} instead."
             )
+        if self.endpoint.ratio_scale:  # ratios must be positive before taking logs
+            for name, value in (("assumed_effect", self.assumed_effect),
+                                ("relevant_effect", self.relevant_effect),
+                                ("rule.min_estimate", self.rule.min_estimate),
+                                *(("power_effects", v) for v in np.atleast_1d(
+                                    np.asarray(self.power_effects, dtype=object)))):
+                if value is not None:
+                    check_real(value, name, owner, low=0, low_open=True)
         prior = as_prior(self.design_prior, "design_prior", owner)
         object.__setattr__(self, "design_prior", prior)
-        if self.assumed_effect is None:
-            object.__setattr__(self, "assumed_effect", float(prior.mean()))
+        if self.assumed_effect is None:  # the prior mean, on the endpoint's natural scale
+            ep = self.endpoint
+            why = ""
+            try:
+                mean = float(prior.mean())
+            except AssuranceInputError as exc:
+                mean, why = math.nan, f" ({exc})"
+            if not math.isfinite(mean):
+                raise AssuranceInputError(
+                    f"The 'assumed_effect' parameter of {owner} is needed: the design prior "
+                    f"{prior.describe()} has no finite mean to default to{why}. Got None."
+                )
+            object.__setattr__(self, "assumed_effect", float(ep.from_benefit(ep.sign * mean)))
         else:
             object.__setattr__(self, "assumed_effect",
                                check_real(self.assumed_effect, "assumed_effect", owner))
@@ -109,7 +134,15 @@ class TrialDesign:
                     f"sigma > 0. Got {sp.describe()} instead."
                 )
             object.__setattr__(self, "sigma_prior", sp)
-        effects = tuple(check_real(e, "power_effects", owner) for e in self.power_effects)
+        given = self.power_effects
+        if isinstance(given, int | float) and not isinstance(given, bool):
+            given = (given,)
+        if isinstance(given, str) or not hasattr(given, "__iter__"):
+            raise AssuranceInputError(
+                f"The 'power_effects' parameter of {owner} must be a list of effects. "
+                f"Got {self.power_effects!r} instead."
+            )
+        effects = tuple(check_real(e, "power_effects", owner) for e in given)
         object.__setattr__(self, "power_effects", effects)
         if not isinstance(self.title, str) or not self.title.strip():
             raise AssuranceInputError(
@@ -137,8 +170,9 @@ class TrialDesign:
         ``-margin`` for non-inferiority, or the minimum observed effect), the ceiling is
         ``P(effect > L)`` plus, for a point mass exactly at ``L`` (say "the drug does
         nothing"), its weight times the success probability there in the limit (alpha at
-        the null). Only false positives, bounded by alpha, can lift a small trial's assurance
-        above it, and only where the ceiling itself is below alpha.
+        the null). Only false positives (successes when the true effect is at or just below
+        ``L``) can lift assurance at a finite n above it, by at most about alpha times the
+        prior probability of such effects.
         """
         return self.success_limit()
 

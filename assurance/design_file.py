@@ -137,23 +137,15 @@ def read_design_file(path: str | Path) -> DesignFile:
 def parse_design(raw: dict[str, Any], *, source: str = "design") -> DesignFile:
     """Build a :class:`DesignFile` from an already-parsed TOML mapping."""
     from .design import TrialDesign
-    from .endpoints.continuous import ContinuousEndpoint
     from .rules import Significance
 
     _known(raw, _TOP, "", source)
     for req in ("endpoint", "design_prior"):
         if req not in raw:
             raise DesignFileError(f"{source}: the [{req}] table is missing; it is required.")
-    endpoint_t = _table(raw, "endpoint", source)
-    _known(endpoint_t, _ENDPOINT, "endpoint", source)
-    kind = endpoint_t.get("type", "continuous")
-    if kind != "continuous":
-        raise DesignFileError(
-            f"{source}: 'endpoint.type' must be 'continuous' (other endpoints are not yet "
-            f"available). Got {kind!r}."
-        )
-    if "sd" not in endpoint_t:
-        raise DesignFileError(f"{source}: 'endpoint.sd' (the outcome's SD) is required.")
+    endpoint = endpoint_from_table(_table(raw, "endpoint", source), source)
+    if "sd_prior" in raw and endpoint.to_dict().get("kind") != "continuous":
+        raise DesignFileError(f"{source}: [sd_prior] applies to continuous endpoints only.")
     success_t = _table(raw, "success", source, required=False)
     _known(success_t, _SUCCESS, "success", source)
     effect_t = _table(raw, "effect", source, required=False)
@@ -165,14 +157,6 @@ def parse_design(raw: dict[str, Any], *, source: str = "design") -> DesignFile:
     mc_t = _table(raw, "monte_carlo", source, required=False)
     _known(mc_t, _MONTE_CARLO, "monte_carlo", source)
 
-    with _as_file_error(source, "endpoint"):
-        endpoint = ContinuousEndpoint(
-            sigma=endpoint_t["sd"],
-            layout=endpoint_t.get("layout", "two_arm"),
-            allocation=endpoint_t.get("allocation", 1.0),
-            analysis=endpoint_t.get("analysis", "t"),
-            better=endpoint_t.get("better", "higher"),
-        )
     with _as_file_error(source, "success"):
         rule = Significance(
             alpha=success_t.get("alpha", 0.025),
@@ -180,7 +164,8 @@ def parse_design(raw: dict[str, Any], *, source: str = "design") -> DesignFile:
             margin=success_t.get("margin", 0.0),
             min_estimate=success_t.get("min_estimate"),
         )
-    design_prior = prior_from_table(_table(raw, "design_prior", source), "design_prior", source)
+    design_prior = prior_from_table(_table(raw, "design_prior", source), "design_prior", source,
+                                    ratio=endpoint.ratio_scale)
     sd_prior = None
     if "sd_prior" in raw:
         sd_prior = prior_from_table(_table(raw, "sd_prior", source), "sd_prior", source)
@@ -227,13 +212,70 @@ def parse_design(raw: dict[str, Any], *, source: str = "design") -> DesignFile:
                       source=source)
 
 
-def prior_from_table(table: dict[str, Any], where: str, source: str = "design") -> Any:
+#: endpoint type in a design file -> (module, class); each class has from_design_table
+ENDPOINT_TYPES: dict[str, tuple[str, str]] = {
+    "continuous": ("assurance.endpoints.continuous", "ContinuousEndpoint"),
+    "binary": ("assurance.endpoints.binary", "BinaryEndpoint"),
+    "time_to_event": ("assurance.endpoints.survival", "SurvivalEndpoint"),
+    "counts": ("assurance.endpoints.counts", "CountEndpoint"),
+}
+
+
+def endpoint_from_table(table: dict[str, Any], source: str = "design") -> Any:
+    """Build the endpoint named by ``type`` in an ``[endpoint]`` table.
+
+    Examples
+    --------
+    >>> endpoint_from_table({"type": "continuous", "sd": 4.0}).sigma
+    4.0
+    """
+    import importlib
+
+    kind = table.get("type", "continuous")
+    if kind not in ENDPOINT_TYPES:
+        close = difflib.get_close_matches(str(kind), list(ENDPOINT_TYPES), n=1)
+        hint = f" Did you mean {close[0]!r}?" if close else ""
+        raise DesignFileError(
+            f"{source}: 'endpoint.type' must be one of {', '.join(ENDPOINT_TYPES)}. "
+            f"Got {kind!r}.{hint}"
+        )
+    module_name, class_name = ENDPOINT_TYPES[kind]
+    try:
+        module = importlib.import_module(module_name)
+    except ModuleNotFoundError:
+        raise DesignFileError(f"{source}: endpoint type {kind!r} is not available in this "
+                              "version.") from None
+    return getattr(module, class_name).from_design_table(table, source)
+
+
+def continuous_from_table(table: dict[str, Any], source: str) -> Any:
+    """The ``[endpoint]`` table of a continuous endpoint (keys: ``sd``, ``layout``,
+    ``allocation``, ``analysis``, ``better``)."""
+    from .endpoints.continuous import ContinuousEndpoint
+
+    _known(table, _ENDPOINT, "endpoint", source)
+    if "sd" not in table:
+        raise DesignFileError(f"{source}: 'endpoint.sd' (the outcome's SD) is required.")
+    with _as_file_error(source, "endpoint"):
+        return ContinuousEndpoint(
+            sigma=table["sd"],
+            layout=table.get("layout", "two_arm"),
+            allocation=table.get("allocation", 1.0),
+            analysis=table.get("analysis", "t"),
+            better=table.get("better", "higher"),
+        )
+
+
+def prior_from_table(table: dict[str, Any], where: str, source: str = "design", *,
+                     ratio: bool = False) -> Any:
     """Build a prior from a design-file table such as ``{family = "normal", mean = 1, sd = 2}``.
 
     Mixtures are written ``family = "mixture"`` with ``parts = [{weight = 0.3, family =
     "point_mass", value = 0}, {weight = 0.7, family = "normal", mean = 3, sd = 1}]``.
     Any continuous ``scipy.stats`` distribution: ``family = "scipy"``, ``name = "logistic"``,
-    ``parameters = {loc = 1, scale = 0.5}``.
+    ``parameters = {loc = 1, scale = 0.5}``. For a ratio endpoint (``ratio=True``), whose
+    prior is on the log ratio, ``family = "log_normal"`` with ``median`` (a ratio) and
+    ``log_sd`` gives a normal prior on the log scale.
 
     Examples
     --------
@@ -247,7 +289,23 @@ def prior_from_table(table: dict[str, Any], where: str, source: str = "design") 
     family = table.get("family")
     if family is None:
         raise DesignFileError(f"{source}: '{where}.family' is required; choose one of "
-                              f"{', '.join(sorted([*_FAMILIES, 'mixture', 'scipy']))}.")
+                              f"{', '.join(_family_names(ratio))}.")
+    if family == "log_normal":
+        if not ratio:
+            raise DesignFileError(f"{source}: '{where}.family' = 'log_normal' is for ratio "
+                                  "endpoints (hazard, rate, risk or odds ratios) only.")
+        _known(table, {"family", "median", "log_sd"}, where, source)
+        missing = [k for k in ("median", "log_sd") if k not in table]
+        if missing:
+            raise DesignFileError(f"{source}: '{where}' (log_normal) needs "
+                                  f"{', '.join(repr(m) for m in missing)}.")
+        median = _number(table["median"], f"{where}.median", source)
+        if median <= 0:
+            raise DesignFileError(f"{source}: '{where}.median' must be a ratio > 0. "
+                                  f"Got {median!r}.")
+        with _as_file_error(source, where):
+            return priors.Normal(math.log(median), _number(table["log_sd"], f"{where}.log_sd",
+                                                           source))
     if family == "mixture":
         _known(table, {"family", "parts"}, where, source)
         parts = table.get("parts")
@@ -259,19 +317,21 @@ def prior_from_table(table: dict[str, Any], where: str, source: str = "design") 
             if not isinstance(part, dict) or "weight" not in part:
                 raise DesignFileError(f"{source}: '{where}.parts[{i}]' needs a 'weight'.")
             rest = {k: v for k, v in part.items() if k != "weight"}
-            comps.append(prior_from_table(rest, f"{where}.parts[{i}]", source))
+            comps.append(prior_from_table(rest, f"{where}.parts[{i}]", source, ratio=ratio))
             weights.append(part["weight"])
         with _as_file_error(source, where):
             return priors.Mixture(comps, weights)
     if family == "scipy":
         _known(table, {"family", "name", "parameters"}, where, source)
         return _scipy_prior(table, where, source)
+    if family in _EXTRA_FAMILIES:
+        return _EXTRA_FAMILIES[family](table, where, source)
     if family not in _FAMILIES:
-        close = difflib.get_close_matches(str(family), [*_FAMILIES, "mixture", "scipy"], n=1)
+        close = difflib.get_close_matches(str(family), _family_names(ratio), n=1)
         hint = f" Did you mean {close[0]!r}?" if close else ""
         raise DesignFileError(
             f"{source}: '{where}.family' must be one of "
-            f"{', '.join(sorted([*_FAMILIES, 'mixture', 'scipy']))}. Got {family!r}.{hint}"
+            f"{', '.join(_family_names(ratio))}. Got {family!r}.{hint}"
         )
     cls_name, mapping = _FAMILIES[family]
     _known(table, {"family", *mapping}, where, source)
@@ -284,6 +344,20 @@ def prior_from_table(table: dict[str, Any], where: str, source: str = "design") 
               if k != "family"}
     with _as_file_error(source, where):
         return getattr(priors, cls_name)(**kwargs)
+
+
+#: families added by endpoint modules: name -> reader(table, where, source)
+_EXTRA_FAMILIES: dict[str, Any] = {}
+
+
+def register_prior_family(name: str, reader: Any) -> None:
+    """Let an endpoint module add a design-file prior family (e.g. beta priors per arm)."""
+    _EXTRA_FAMILIES[name] = reader
+
+
+def _family_names(ratio: bool) -> list[str]:
+    names = [*_FAMILIES, "mixture", "scipy", *_EXTRA_FAMILIES]
+    return sorted(names + (["log_normal"] if ratio else []))
 
 
 def _scipy_prior(table: dict[str, Any], where: str, source: str) -> Any:

@@ -27,6 +27,8 @@ __all__ = ["evaluate", "solve_sample_size", "SampleSizeAnswer", "Quantity"]
 Quantity = Literal["power", "assurance", "conditional_assurance"]
 QUANTITIES: tuple[str, ...] = ("power", "assurance", "conditional_assurance")
 DEFAULT_DRAWS = 20_000
+#: Largest total sample size any function accepts (keeps integer arithmetic exact).
+MAX_TOTAL = 10**15
 ProgressCallback = Callable[[int, int], None]
 
 
@@ -93,7 +95,7 @@ class _Calculator:
 # ------------------------------------------------------------------------------------------
 def _check_sizes(design: TrialDesign, sizes: Any) -> np.ndarray:
     smallest = design.endpoint.smallest_total
-    arr = check_real_array(sizes, "sizes", "evaluate", low=smallest)
+    arr = check_real_array(sizes, "sizes", "evaluate", low=smallest, high=MAX_TOTAL)
     if np.any(arr != np.round(arr)):
         raise AssuranceInputError(
             f"The 'sizes' parameter of evaluate must hold whole numbers of patients. "
@@ -270,9 +272,15 @@ def solve_sample_size(
 
     Sizes are searched on the control arm (whole patients), the treatment arm getting
     ``ceil(allocation * n_control)``; for one group, on the whole sample. The search doubles
-    until the target is met, then bisects, and finally confirms that one patient fewer on
-    control falls short. The probabilities rise with n for these rules except in unusual
-    designs; the confirmation step guards the answer.
+    until the target is met, then bisects, so that one patient fewer on control falls short.
+    It assumes the probability rises with n, as it does for these rules in practical
+    designs. :func:`evaluate` splits the returned total into the same arms.
+
+    A target at or above the ceiling (the limit of the quantity as n grows) is reported as
+    not reachable. False positives (successes when the true effect is at or just below the
+    lowest passable effect) can lift assurance at moderate n slightly above that limit, by
+    at most about alpha times the prior probability of such effects; such a target is still
+    reported as not reachable, since no true effect supports it.
 
     Parameters
     ----------
@@ -313,7 +321,8 @@ def solve_sample_size(
             f"The 'quantity' parameter of {owner} can be 'conditional_assurance' only when the "
             "design has a relevant_effect. Got a design without one."
         )
-    max_total = check_int(max_total, "max_total", owner, low=design.endpoint.smallest_total)
+    max_total = check_int(max_total, "max_total", owner, low=design.endpoint.smallest_total,
+                          high=MAX_TOTAL)
     draws = check_int(draws, "draws", owner, low=100)
     calc = _Calculator(design, draws, seed)
     ceiling = _ceiling_for(calc, quantity)
@@ -335,8 +344,9 @@ def solve_sample_size(
     if target >= ceiling:
         return answer(False, None,
                       f"Target {label} {target:g} is not reachable: no sample size can pass "
-                      f"the ceiling of {ceiling:.3f} (the prior probability of effects at which "
-                      "the rule can be passed). Lower the target or revisit the design.")
+                      f"the ceiling of {ceiling:.3f} (the limit as n grows: the prior "
+                      "probability of effects at which the rule can be passed). Lower the "
+                      "target or revisit the design.")
 
     def value_at(n_c: int) -> float:
         n_t_arr, n_c_arr = design.endpoint.sizes_from_control(np.array([n_c]))

@@ -25,7 +25,7 @@ from typing import Any
 import numpy as np
 from scipy import special, stats
 
-from ._validation import check_real
+from ._validation import check_int, check_real
 from .errors import AssuranceInputError
 
 __all__ = [
@@ -47,6 +47,33 @@ RandomLike = int | np.random.Generator | None
 
 def _rng(seed: RandomLike) -> np.random.Generator:
     return seed if isinstance(seed, np.random.Generator) else np.random.default_rng(seed)
+
+
+def _size(size: object, owner: object) -> int:
+    return check_int(size, "size", f"{type(owner).__name__}.sample", low=0)
+
+
+def _q(q: object, owner: object) -> float:
+    return check_real(q, "q", f"{type(owner).__name__}.ppf", low=0, high=1, low_open=True,
+                      high_open=True)
+
+
+def _bound(value: object, name: str, default: float) -> float:
+    """A truncation bound: a finite number, or +-inf / None for no bound."""
+    if value is None:
+        return default
+    if isinstance(value, bool) or not isinstance(value, int | float | np.integer | np.floating):
+        raise AssuranceInputError(
+            f"The '{name}' parameter of TruncatedNormal must be a number (or None for no "
+            f"bound). Got {value!r} instead."
+        )
+    x = float(value)
+    if math.isnan(x):
+        raise AssuranceInputError(
+            f"The '{name}' parameter of TruncatedNormal must be a number, not NaN. "
+            f"Got {value!r} instead."
+        )
+    return x
 
 
 class Prior(ABC):
@@ -121,8 +148,7 @@ class Prior(ABC):
         bisection on the condition ``F(x) >= q`` finds the smallest such x, also where the
         distribution function is flat or jumps (point masses).
         """
-        q = check_real(q, "q", f"{type(self).__name__}.ppf", low=0, high=1, low_open=True,
-                       high_open=True)
+        q = _q(q, self)
         masses: dict[float, float] = {}
         for loc, w in self.atoms():
             masses[loc] = masses.get(loc, 0.0) + w
@@ -190,11 +216,11 @@ class _Continuous(Prior):
         return float(self._dist.sf(x))
 
     def ppf(self, q: float) -> float:
-        q = check_real(q, "q", f"{type(self).__name__}.ppf", low=0, high=1, low_open=True,
-                       high_open=True)
+        q = _q(q, self)
         return float(self._dist.ppf(q))
 
     def sample(self, size: int, seed: RandomLike = None) -> np.ndarray:
+        size = _size(size, self)
         return np.asarray(self._dist.rvs(size=size, random_state=_rng(seed)), dtype=float)
 
     def mean(self) -> float:
@@ -303,14 +329,14 @@ class TruncatedNormal(_Continuous):
                  upper: float = math.inf):
         self.mu = check_real(mean, "mean", "TruncatedNormal")
         self.sigma = check_real(sd, "sd", "TruncatedNormal", low=0, low_open=True)
-        lower = -math.inf if lower is None else lower
-        upper = math.inf if upper is None else upper
-        if not isinstance(lower, int | float) or math.isnan(lower) or lower == math.inf:
+        lower = _bound(lower, "lower", -math.inf)
+        upper = _bound(upper, "upper", math.inf)
+        if lower == math.inf:
             raise AssuranceInputError(
                 "The 'lower' parameter of TruncatedNormal must be a number or -inf. "
                 f"Got {lower!r} instead."
             )
-        if not isinstance(upper, int | float) or math.isnan(upper) or upper <= lower:
+        if upper <= lower:
             raise AssuranceInputError(
                 f"The 'upper' parameter of TruncatedNormal must be > lower={lower!r}. "
                 f"Got {upper!r} instead."
@@ -349,6 +375,7 @@ class PointMass(Prior):
         return np.where(np.asarray(x, dtype=float) >= self.value, 1.0, 0.0)
 
     def sample(self, size: int, seed: RandomLike = None) -> np.ndarray:
+        size = _size(size, self)
         return np.full(size, self.value)
 
     def mean(self) -> float:
@@ -364,6 +391,7 @@ class PointMass(Prior):
         return [(self.value, 1.0)]
 
     def ppf(self, q: float) -> float:
+        _q(q, self)
         return self.value
 
     def to_dict(self) -> dict[str, Any]:
@@ -409,9 +437,11 @@ class FromScipy(_Continuous):
         return float(self.sf(x))
 
     def ppf(self, q: float) -> float:
+        q = _q(q, self)
         return float(-self._dist.ppf(1 - q) if self._negate else self._dist.ppf(q))
 
     def sample(self, size: int, seed: RandomLike = None) -> np.ndarray:
+        size = _size(size, self)
         draws = np.asarray(self._dist.rvs(size=size, random_state=_rng(seed)), dtype=float)
         return -draws if self._negate else draws
 
@@ -485,6 +515,7 @@ class Mixture(Prior):
         return min(max(p, 0.0), 1.0)
 
     def sample(self, size: int, seed: RandomLike = None) -> np.ndarray:
+        size = _size(size, self)
         rng = _rng(seed)
         probs = np.array(self.weights) / sum(self.weights)
         which = rng.choice(len(self._parts), size=size, p=probs)
@@ -550,9 +581,10 @@ class ScaledInvChiSquare(_Continuous):
         return float(self.sf(x))
 
     def ppf(self, q: float) -> float:
-        return float(np.sqrt(self._var_dist.ppf(q)))
+        return float(np.sqrt(self._var_dist.ppf(_q(q, self))))
 
     def sample(self, size: int, seed: RandomLike = None) -> np.ndarray:
+        size = _size(size, self)
         return np.sqrt(self._var_dist.rvs(size=size, random_state=_rng(seed)))
 
     def mean(self) -> float:

@@ -38,17 +38,25 @@ class TwoArmSizing:
         return 2 if self.layout == "two_arm" else 1
 
     def arm_sizes(self, n_total: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-        """Split total sizes into (treatment, control) by the allocation ratio.
+        """Split total sizes into (treatment, control) by the allocation ratio ``r``.
 
-        Treatment gets ``round(n * r / (1 + r))``, kept between 1 and ``n - 1``; for one
-        group the whole sample is "treatment" and control is 0.
+        Control gets the largest ``m`` with ``m + ceil(r m) <= n`` and treatment the rest, so
+        a total produced by :meth:`sizes_from_control` splits back into the same arms (the
+        sample-size solver and the grid evaluation always agree). Each arm keeps at least
+        one patient. For one group the whole sample is "treatment" and control is 0.
         """
-        n = np.asarray(n_total, dtype=int)
+        n = np.asarray(n_total, dtype=np.int64)
         if self.layout == "single_arm":
             return n.copy(), np.zeros_like(n)
         r = self.allocation
-        treat = np.clip(np.floor(n * r / (1 + r) + 0.5).astype(int), 1, np.maximum(n - 1, 1))
-        return treat, n - treat
+        m = np.floor(n / (1 + r)).astype(np.int64) + 2
+        for _ in range(6):  # m + ceil(r m) is increasing in m: step down to the largest fit
+            too_big = m + np.ceil(r * m - 1e-9) > n
+            if not too_big.any():
+                break
+            m = np.where(too_big, m - 1, m)
+        control = np.clip(m, 1, np.maximum(n - 1, 1))
+        return n - control, control
 
     def sizes_from_control(self, n_control: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """(treatment, control) when the control arm has ``n_control`` patients.
