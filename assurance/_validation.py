@@ -88,7 +88,17 @@ def check_real_array(
     arr = np.atleast_1d(np.asarray(list(values) if not isinstance(values, np.ndarray) else values))
     if arr.ndim != 1 or arr.size < min_size:
         raise _fail(name, owner, f"a list of at least {min_size} number(s)", values)
-    for item in arr.tolist():
+    has_bool = not isinstance(values, np.ndarray) and any(isinstance(v, bool) for v in values)
+    if arr.dtype.kind in "iuf" and not has_bool:  # fast path: details only on failure
+        x = arr.astype(float)
+        ok = np.isfinite(x)
+        if low is not None:
+            ok &= (x > low) if low_open else (x >= low)
+        if high is not None:
+            ok &= (x < high) if high_open else (x <= high)
+        if ok.all():
+            return x
+    for item in (arr.tolist() if isinstance(values, np.ndarray) else list(values)):
         check_real(item, name, owner, low=low, high=high, low_open=low_open, high_open=high_open)
     return arr.astype(float)
 

@@ -14,7 +14,7 @@ from dataclasses import dataclass
 from typing import Any, Literal
 
 import numpy as np
-from scipy import stats
+from scipy import special, stats
 
 from ._validation import check_choice, check_real
 
@@ -85,7 +85,7 @@ class Significance:
 
     def critical_z(self) -> float:
         """Standard-normal critical value ``z_{1 - alpha}``."""
-        return float(stats.norm.isf(self.one_sided_alpha))
+        return float(-special.ndtri(self.one_sided_alpha))
 
     def critical_t(self, df: np.ndarray) -> np.ndarray:
         """Student t critical values ``t_{1 - alpha, df}``."""
