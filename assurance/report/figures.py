@@ -133,8 +133,12 @@ def _check_dataset(ds: Any, owner: str, needed: Sequence[str] = ("power", "assur
 def _effect_word(endpoint: dict[str, Any] | Any) -> str:
     layout = endpoint.get("layout") if isinstance(endpoint, dict) else endpoint.layout
     better = endpoint.get("better") if isinstance(endpoint, dict) else endpoint.better
-    base = "true mean change" if layout == "single_arm" else \
-        "true effect (treatment minus control)"
+    if getattr(endpoint, "ratio_scale", False):
+        base = f"true {endpoint.effect_name} (treatment / control, log scale)"
+    elif layout == "single_arm":
+        base = "true mean change"
+    else:
+        base = "true effect (treatment minus control)"
     return base + ("; lower is better" if better == "lower" else "")
 
 
@@ -254,12 +258,22 @@ def plot_prior(design: TrialDesign, ax: Axes | None = None) -> Axes:
     _style(ax)
     prior = design.design_prior
     sign = design.endpoint.sign
+    ratio = bool(getattr(design.endpoint, "ratio_scale", False))
+
+    def on_axis(value: float) -> float:  # natural effect -> the prior's scale (log for ratios)
+        return math.log(value) if ratio else float(value)
+
+    def shown(value: float) -> str:  # a position on the axis, in the natural unit
+        return f"{math.exp(value):.3g}" if ratio else f"{value:g}"
+
     threshold = sign * design.benefit_rule.lowest_passable_effect() + 0.0  # no -0
     ceiling = design.ceiling()
     atoms = [(loc, p) for loc, p in prior.atoms() if p > 0]
-    marks = [0.0, float(design.assumed_effect), threshold, *(loc for loc, _ in atoms)]
-    if design.relevant_effect is not None:
-        marks.append(float(design.relevant_effect))
+    assumed = on_axis(design.assumed_effect)
+    relevant = None if design.relevant_effect is None else on_axis(design.relevant_effect)
+    marks = [0.0, assumed, threshold, *(loc for loc, _ in atoms)]
+    if relevant is not None:
+        marks.append(relevant)
     lo, hi = _plot_range(design, marks)
 
     continuous_weight = 1.0 - sum(p for _, p in atoms)
@@ -268,7 +282,7 @@ def plot_prior(design: TrialDesign, ax: Axes | None = None) -> Axes:
         region_label = f"(prior probability {region:.3f} = ceiling of assurance)"
     else:
         region_label = (f"(prior probability {region:.3f}; ceiling of assurance {ceiling:.3f},\n"
-                        f"which adds false positives at exactly {threshold:g})")
+                        f"which adds false positives at exactly {shown(threshold)})")
     side = (threshold, hi) if sign > 0 else (lo, threshold)
     region_label = "effects the rule can pass with enough patients\n" + region_label
     x = np.union1d(np.linspace(lo, hi, 801), [threshold])
@@ -305,19 +319,31 @@ def plot_prior(design: TrialDesign, ax: Axes | None = None) -> Axes:
         top = peak
     top = top if top > 0 else 1.0
 
-    ax.axvline(0.0, color=_BLACK, linewidth=1.0, zorder=3, label="no effect (0)")
-    same = design.relevant_effect is not None and math.isclose(
-        design.relevant_effect, design.assumed_effect, rel_tol=1e-9, abs_tol=1e-12)
+    ax.axvline(0.0, color=_BLACK, linewidth=1.0, zorder=3,
+               label="no effect (ratio 1)" if ratio else "no effect (0)")
+    same = relevant is not None and math.isclose(relevant, assumed, rel_tol=1e-9,
+                                                 abs_tol=1e-12)
     # when the two coincide, their dashes interleave so both colours stay visible
-    ax.axvline(design.assumed_effect, color=_BLUE, linewidth=1.6,
+    ax.axvline(assumed, color=_BLUE, linewidth=1.6,
                linestyle=(0, (4, 4)) if same else (0, (5, 3)), zorder=3,
                label=f"assumed effect for classical power ({design.assumed_effect:g})")
-    if design.relevant_effect is not None:
-        ax.axvline(design.relevant_effect, color=_GREEN, linewidth=1.6,
+    if relevant is not None:
+        ax.axvline(relevant, color=_GREEN, linewidth=1.6,
                    linestyle=(4, (4, 4)) if same else (0, (6, 2, 1.5, 2)), zorder=3,
                    label=f"clinically relevant effect ({design.relevant_effect:g})")
 
     ax.set_xlim(lo, hi)
+    if ratio:  # the axis is the log ratio; its ticks are labelled with ratios
+        from matplotlib.ticker import FixedLocator, FuncFormatter
+
+        nice = np.array([0.05, 0.1, 0.2, 0.3, 0.4, 0.5, 0.6, 0.7, 0.8, 0.9, 1.0, 1.1, 1.25,
+                         1.5, 2.0, 3.0, 5.0, 10.0, 20.0])
+        ticks = np.log(nice[(np.log(nice) >= lo) & (np.log(nice) <= hi)])
+        if ticks.size > 9:
+            ticks = ticks[:: math.ceil(ticks.size / 9)]
+        if ticks.size >= 2:
+            ax.xaxis.set_major_locator(FixedLocator(ticks))
+        ax.xaxis.set_major_formatter(FuncFormatter(lambda v, _pos: shown(v)))
     ax.set_xlabel(_effect_word(design.endpoint), fontsize=10.5)
     ax.set_title(_title(design.title, "design prior for the true effect"), fontsize=11.5,
                  loc="left")
