@@ -305,16 +305,20 @@ def _e(text: Any) -> str:
 
 def _facts(design: TrialDesign, ds: Any) -> str:
     ep = design.endpoint
+    scale = " (on the log ratio scale)" if getattr(ep, "ratio_scale", False) else ""
     rows: list[tuple[str, str]] = [
         ("Outcome and layout", ep.describe()),
         ("Success rule", design.rule.describe()),
-        ("Design prior for the effect",
+        (f"Design prior for the effect{scale}",
          f"{design.design_prior.describe()}; probability that the treatment is better: "
          f"{_p(float(ds['prob_benefit']))}"),
-        ("Outcome SD",
-         f"uncertain, prior {design.sigma_prior.describe()}; classical power uses the "
-         f"planning value {ep.sigma:g}" if design.sigma_prior is not None
-         else f"fixed at {ep.sigma:g}"),
+    ]
+    if hasattr(ep, "sigma"):
+        rows.append(("Outcome SD",
+                     f"uncertain, prior {design.sigma_prior.describe()}; classical power uses "
+                     f"the planning value {ep.sigma:g}" if design.sigma_prior is not None
+                     else f"fixed at {ep.sigma:g}"))
+    rows += [
         ("Assumed effect (classical power)", f"{design.assumed_effect:g}"),
         ("Clinically relevant effect",
          "not set" if design.relevant_effect is None else
