@@ -37,6 +37,9 @@ _PUBLIC = {
     "ScaledInvChiSquare": "priors",
     "GammaPrecision": "priors",
     "ContinuousEndpoint": "endpoints.continuous",
+    "CountEndpoint": "endpoints.counts",
+    "sample_size_for_rate_ratio": "endpoints.counts",
+    "simulate_rejection_rate": "endpoints.counts",
     "Significance": "rules",
     "TrialDesign": "design",
     "evaluate": "planning",
@@ -61,6 +64,9 @@ __all__ = [
     "ScaledInvChiSquare",
     "GammaPrecision",
     "ContinuousEndpoint",
+    "CountEndpoint",
+    "sample_size_for_rate_ratio",
+    "simulate_rejection_rate",
     "Significance",
     "TrialDesign",
     "evaluate",
@@ -72,6 +78,7 @@ __all__ = [
 if TYPE_CHECKING:  # pragma: no cover - for type checkers and editors only
     from .design import TrialDesign
     from .endpoints.continuous import ContinuousEndpoint
+    from .endpoints.counts import CountEndpoint, sample_size_for_rate_ratio, simulate_rejection_rate
     from .errors import AssuranceInputError, AssuranceWarning, DesignFileError
     from .planning import SampleSizeAnswer, evaluate, solve_sample_size
     from .priors import (
