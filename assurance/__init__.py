@@ -38,6 +38,10 @@ _PUBLIC = {
     "GammaPrecision": "priors",
     "ContinuousEndpoint": "endpoints.continuous",
     "CountEndpoint": "endpoints.counts",
+    "SurvivalEndpoint": "endpoints.survival",
+    "events_needed": "endpoints.survival",
+    "simulate_trials": "compute.survival_sim",
+    "simulate_assurance": "compute.survival_sim",
     "sample_size_for_rate_ratio": "endpoints.counts",
     "simulate_rejection_rate": "endpoints.counts",
     "Significance": "rules",
@@ -65,6 +69,10 @@ __all__ = [
     "GammaPrecision",
     "ContinuousEndpoint",
     "CountEndpoint",
+    "SurvivalEndpoint",
+    "events_needed",
+    "simulate_trials",
+    "simulate_assurance",
     "sample_size_for_rate_ratio",
     "simulate_rejection_rate",
     "Significance",
@@ -76,9 +84,11 @@ __all__ = [
 ]
 
 if TYPE_CHECKING:  # pragma: no cover - for type checkers and editors only
+    from .compute.survival_sim import simulate_assurance, simulate_trials
     from .design import TrialDesign
     from .endpoints.continuous import ContinuousEndpoint
     from .endpoints.counts import CountEndpoint, sample_size_for_rate_ratio, simulate_rejection_rate
+    from .endpoints.survival import SurvivalEndpoint, events_needed
     from .errors import AssuranceInputError, AssuranceWarning, DesignFileError
     from .planning import SampleSizeAnswer, evaluate, solve_sample_size
     from .priors import (

@@ -143,7 +143,13 @@ def parse_design(raw: dict[str, Any], *, source: str = "design") -> DesignFile:
     for req in ("endpoint", "design_prior"):
         if req not in raw:
             raise DesignFileError(f"{source}: the [{req}] table is missing; it is required.")
-    endpoint = endpoint_from_table(_table(raw, "endpoint", source), source)
+    endpoint_t = dict(_table(raw, "endpoint", source))
+    effect_assumed = _table(raw, "effect", source, required=False).get("assumed")
+    planning_key = _PLANNING_KEYS.get(endpoint_t.get("type", "continuous"))
+    if planning_key and planning_key not in endpoint_t and effect_assumed is not None:
+        # the effect at which events / variances are planned defaults to [effect] assumed
+        endpoint_t[planning_key] = effect_assumed
+    endpoint = endpoint_from_table(endpoint_t, source)
     if "sd_prior" in raw and endpoint.to_dict().get("kind") != "continuous":
         raise DesignFileError(f"{source}: [sd_prior] applies to continuous endpoints only.")
     success_t = _table(raw, "success", source, required=False)
@@ -219,6 +225,10 @@ ENDPOINT_TYPES: dict[str, tuple[str, str]] = {
     "time_to_event": ("assurance.endpoints.survival", "SurvivalEndpoint"),
     "counts": ("assurance.endpoints.counts", "CountEndpoint"),
 }
+
+
+#: endpoint keys that default to ``[effect] assumed`` when absent
+_PLANNING_KEYS = {"time_to_event": "assumed_hazard_ratio"}
 
 
 def endpoint_from_table(table: dict[str, Any], source: str = "design") -> Any:
