@@ -94,16 +94,21 @@ def _swap_into_place(tmp: Path, out: Path) -> None:
 def write_results_csv(ds: Any, path: str | Path) -> None:
     """One row per total sample size: arm sizes, power, assurance and its decomposition.
 
-    Power at each extra effect is a column ``power_at_<effect>``.
+    Further per-size coordinates of the endpoint (expected events, say) follow the arm
+    sizes; power at each extra effect is a column ``power_at_<effect>``.
     """
     per_n = [name for name, var in ds.data_vars.items() if var.dims == ("n",)]
+    extra = [name for name, var in ds.coords.items()
+             if var.dims == ("n",) and name not in ("n", "n_treatment", "n_control")]
     effects = [float(e) for e in ds.effect.values]
-    header = ["n", "n_treatment", "n_control", *per_n] + [f"power_at_{e:g}" for e in effects]
+    header = ["n", "n_treatment", "n_control", *extra, *per_n] + \
+        [f"power_at_{e:g}" for e in effects]
     with open(path, "w", newline="", encoding="utf-8") as fh:
         writer = csv.writer(fh)
         writer.writerow(header)
         for i in range(ds.sizes["n"]):
             row = [int(ds.n[i]), int(ds.n_treatment[i]), int(ds.n_control[i])]
+            row += [_fmt(ds[name].values[i]) for name in extra]
             row += [_fmt(ds[name].values[i]) for name in per_n]
             row += [_fmt(ds.power_curve.values[j, i]) for j in range(len(effects))]
             writer.writerow(row)
