@@ -258,12 +258,23 @@ def endpoint_from_table(table: dict[str, Any], source: str = "design") -> Any:
     return getattr(module, class_name).from_design_table(table, source)
 
 
+def check_endpoint_table(table: Any, known: set[str], kind: str, source: str) -> None:
+    """Common checks of an ``[endpoint]`` table: a table, known keys only, the right type."""
+    if not isinstance(table, dict):
+        raise DesignFileError(f"{source}: [endpoint] must be a table. Got {table!r}.")
+    _known(table, known, "endpoint", source)
+    given = table.get("type", kind)
+    if given != kind:
+        raise DesignFileError(f"{source}: 'endpoint.type' must be {kind!r} for this endpoint. "
+                              f"Got {given!r}.")
+
+
 def continuous_from_table(table: dict[str, Any], source: str) -> Any:
     """The ``[endpoint]`` table of a continuous endpoint (keys: ``sd``, ``layout``,
     ``allocation``, ``analysis``, ``better``)."""
     from .endpoints.continuous import ContinuousEndpoint
 
-    _known(table, _ENDPOINT, "endpoint", source)
+    check_endpoint_table(table, _ENDPOINT, "continuous", source)
     if "sd" not in table:
         raise DesignFileError(f"{source}: 'endpoint.sd' (the outcome's SD) is required.")
     with _as_file_error(source, "endpoint"):

@@ -322,16 +322,10 @@ class CountEndpoint(Endpoint):
         >>> ep.mean_exposure
         2.0
         """
-        from ..design_file import _as_file_error, _known, prior_from_table
+        from ..design_file import _as_file_error, check_endpoint_table, prior_from_table
         from ..errors import DesignFileError
 
-        if not isinstance(table, dict):
-            raise DesignFileError(f"{source}: [endpoint] must be a table. Got {table!r}.")
-        _known(table, _FILE_KEYS, "endpoint", source)
-        kind = table.get("type", "counts")
-        if kind != "counts":
-            raise DesignFileError(f"{source}: 'endpoint.type' must be 'counts' for a count "
-                                  f"endpoint. Got {kind!r}.")
+        check_endpoint_table(table, _FILE_KEYS, "counts", source)
         for key, what in (("control_rate", "the control event rate per unit time"),
                           ("follow_up", "the planned follow-up per patient")):
             if key not in table:

@@ -679,15 +679,9 @@ class SurvivalEndpoint(Endpoint):
         >>> ep.analysis_time
         36.0
         """
-        from ..design_file import _as_file_error, _known, prior_from_table
+        from ..design_file import _as_file_error, check_endpoint_table, prior_from_table
 
-        if not isinstance(table, dict):
-            raise DesignFileError(f"{source}: [endpoint] must be a table. Got {table!r}.")
-        _known(table, _FILE_KEYS, "endpoint", source)
-        kind = table.get("type", "time_to_event")
-        if kind != "time_to_event":
-            raise DesignFileError(f"{source}: 'endpoint.type' must be 'time_to_event' for this "
-                                  f"endpoint. Got {kind!r}.")
+        check_endpoint_table(table, _FILE_KEYS, "time_to_event", source)
         for key in ("assumed_hazard_ratio", "accrual_time"):
             if key not in table:
                 raise DesignFileError(f"{source}: 'endpoint.{key}' is required for a "
