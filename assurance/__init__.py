@@ -45,6 +45,12 @@ _PUBLIC = {
     "sample_size_for_rate_ratio": "endpoints.counts",
     "simulate_rejection_rate": "endpoints.counts",
     "Significance": "rules",
+    "PosteriorProbability": "posterior_rules",
+    "AllOf": "posterior_rules",
+    "AnyOf": "posterior_rules",
+    "MinimumEstimate": "posterior_rules",
+    "GoConsiderStop": "zones",
+    "evaluate_zones": "zones",
     "TrialDesign": "design",
     "evaluate": "planning",
     "solve_sample_size": "planning",
@@ -76,6 +82,12 @@ __all__ = [
     "sample_size_for_rate_ratio",
     "simulate_rejection_rate",
     "Significance",
+    "PosteriorProbability",
+    "AllOf",
+    "AnyOf",
+    "MinimumEstimate",
+    "GoConsiderStop",
+    "evaluate_zones",
     "TrialDesign",
     "evaluate",
     "solve_sample_size",
@@ -91,6 +103,7 @@ if TYPE_CHECKING:  # pragma: no cover - for type checkers and editors only
     from .endpoints.survival import SurvivalEndpoint, events_needed
     from .errors import AssuranceInputError, AssuranceWarning, DesignFileError
     from .planning import SampleSizeAnswer, evaluate, solve_sample_size
+    from .posterior_rules import AllOf, AnyOf, MinimumEstimate, PosteriorProbability
     from .priors import (
         FromScipy,
         GammaPrecision,
@@ -105,6 +118,7 @@ if TYPE_CHECKING:  # pragma: no cover - for type checkers and editors only
     )
     from .rules import Significance
     from .versions import show_versions
+    from .zones import GoConsiderStop, evaluate_zones
 
 
 def __getattr__(name: str) -> Any:

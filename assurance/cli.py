@@ -165,6 +165,16 @@ def run_plan(spec: Any, progress: _Progress | None = None) -> dict[str, Any]:
     progress.say(f"evaluating {sizes.size} sample sizes")
     ds = evaluate(design, sizes, draws=spec.draws, seed=spec.seed,
                   progress=progress.chunks("Monte Carlo"))
+    if getattr(spec, "zones", None) is not None:
+        import xarray as xr
+
+        from .zones import evaluate_zones
+
+        progress.say("go / consider / stop probabilities")
+        zones = evaluate_zones(design, spec.zones, sizes, draws=spec.draws, seed=spec.seed)
+        attrs = dict(ds.attrs, zones=zones.attrs["zones"])
+        ds = xr.merge([ds, zones], combine_attrs="drop")
+        ds.attrs.update(attrs)
     return {"dataset": ds, "answers": answers}
 
 

@@ -36,7 +36,9 @@ class TrialDesign:
         of a ratio for ratio endpoints (log hazard ratio, log rate ratio). A number means a
         point mass.
     rule
-        When the trial counts as a success (:class:`Significance`, one-sided 0.025 default).
+        When the trial counts as a success: :class:`Significance` (one-sided 0.025 by
+        default), :class:`~assurance.PosteriorProbability`, or :class:`~assurance.AllOf`
+        several of them.
     assumed_effect
         The single effect classical power is computed at (natural scale: a difference, or a
         ratio for ratio endpoints); defaults to the prior mean (for a ratio endpoint, the
@@ -50,6 +52,10 @@ class TrialDesign:
         ``endpoint.sigma``.
     power_effects
         Further effects (natural scale) at which to report classical power.
+    analysis_prior
+        The prior the final analysis will use for posterior probabilities (on the same scale
+        as the design prior). None means flat. It never generates data: the design prior
+        does (O'Hagan & Stevens 2001; Wang & Gelfand 2002).
     title
         Name of the trial for the memo.
 
@@ -63,12 +69,13 @@ class TrialDesign:
 
     endpoint: ContinuousEndpoint
     design_prior: Prior
-    rule: Significance = field(default_factory=Significance)
+    rule: Any = field(default_factory=Significance)
     assumed_effect: float | None = None
     relevant_effect: float | None = None
     sigma_prior: Prior | None = None
     power_effects: Sequence[float] = ()
     title: str = "Untitled trial"
+    analysis_prior: Prior | None = None
 
     def __post_init__(self) -> None:
         owner = "TrialDesign"
@@ -77,15 +84,22 @@ class TrialDesign:
                 f"The 'endpoint' parameter of {owner} must be an endpoint such as "
                 f"ContinuousEndpoint. Got {self.endpoint!r} instead."
             )
-        if not isinstance(self.rule, Significance):
+        if not hasattr(self.rule, "on_benefit_scale") or not hasattr(self.rule, "threshold"):
             raise AssuranceInputError(
-                f"The 'rule' parameter of {owner} must be a Significance rule. "
+                f"The 'rule' parameter of {owner} must be a success rule such as "
+                f"Significance(alpha=0.025) or PosteriorProbability(0.975). "
                 f"Got {self.rule!r} instead."
             )
+        if self.analysis_prior is not None:
+            from .posterior_rules import _check_analysis_prior
+
+            object.__setattr__(self, "analysis_prior", _check_analysis_prior(
+                as_prior(self.analysis_prior, "analysis_prior", owner), owner))
         if self.endpoint.ratio_scale:  # ratios must be positive before taking logs
             for name, value in (("assumed_effect", self.assumed_effect),
                                 ("relevant_effect", self.relevant_effect),
-                                ("rule.min_estimate", self.rule.min_estimate),
+                                ("rule.min_estimate", getattr(self.rule, "min_estimate", None)),
+                                ("rule.beyond", getattr(self.rule, "beyond", None)),
                                 *(("power_effects", v) for v in np.atleast_1d(
                                     np.asarray(self.power_effects, dtype=object)))):
                 if value is not None:
@@ -157,9 +171,9 @@ class TrialDesign:
         return self.endpoint.benefit_prior(self.design_prior)
 
     @property
-    def benefit_rule(self) -> Significance:
-        """The success rule on the benefit scale."""
-        return self.endpoint.benefit_rule(self.rule)
+    def benefit_rule(self) -> Any:
+        """The success rule on the benefit scale, with the analysis prior attached."""
+        return self.endpoint.benefit_rule(self.rule, self.analysis_prior)
 
     def ceiling(self) -> float:
         """The value assurance approaches as n grows: the most any sample size can give.
@@ -226,8 +240,9 @@ class TrialDesign:
         return {
             "title": self.title,
             "endpoint": self.endpoint.to_dict(),
-            "rule": {"kind": "significance", "alpha": self.rule.alpha, "sided": self.rule.sided,
-                     "margin": self.rule.margin, "min_estimate": self.rule.min_estimate},
+            "rule": self.rule.to_dict(),
+            "analysis_prior": (None if self.analysis_prior is None
+                               else self.analysis_prior.to_dict()),
             "design_prior": self.design_prior.to_dict(),
             "sigma_prior": None if self.sigma_prior is None else self.sigma_prior.to_dict(),
             "assumed_effect": self.assumed_effect,

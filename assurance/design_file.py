@@ -62,9 +62,13 @@ from .errors import AssuranceInputError, DesignFileError
 __all__ = ["DesignFile", "read_design_file", "parse_design", "prior_from_table"]
 
 _TOP = {"title", "endpoint", "success", "effect", "design_prior", "sd_prior", "sizes",
+        "analysis_prior", "zones",
         "targets", "monte_carlo"}
 _ENDPOINT = {"type", "sd", "layout", "allocation", "analysis", "better"}
-_SUCCESS = {"alpha", "sided", "margin", "min_estimate"}
+_SUCCESS = {"rule", "alpha", "sided", "margin", "min_estimate", "level", "beyond"}
+_SUCCESS_BY_RULE = {"significance": {"rule", "alpha", "sided", "margin", "min_estimate"},
+                    "posterior_probability": {"rule", "level", "beyond", "min_estimate"}}
+_ZONES = {"min_acceptable", "target", "go_min_prob", "go_target_prob", "stop_target_prob"}
 _EFFECT = {"assumed", "relevant", "also_power_at"}
 _SIZES = {"from", "to", "step", "list"}
 _TARGETS = {"power", "assurance", "conditional_assurance"}
@@ -93,6 +97,7 @@ class DesignFile:
     draws: int = 20_000
     seed: int = 20260101
     source: str = ""
+    zones: Any = None
 
 
 def read_design_file(path: str | Path) -> DesignFile:
@@ -137,7 +142,6 @@ def read_design_file(path: str | Path) -> DesignFile:
 def parse_design(raw: dict[str, Any], *, source: str = "design") -> DesignFile:
     """Build a :class:`DesignFile` from an already-parsed TOML mapping."""
     from .design import TrialDesign
-    from .rules import Significance
 
     _known(raw, _TOP, "", source)
     for req in ("endpoint", "design_prior"):
@@ -163,13 +167,24 @@ def parse_design(raw: dict[str, Any], *, source: str = "design") -> DesignFile:
     mc_t = _table(raw, "monte_carlo", source, required=False)
     _known(mc_t, _MONTE_CARLO, "monte_carlo", source)
 
-    with _as_file_error(source, "success"):
-        rule = Significance(
-            alpha=success_t.get("alpha", 0.025),
-            sided=success_t.get("sided", "one"),
-            margin=success_t.get("margin", 0.0),
-            min_estimate=success_t.get("min_estimate"),
-        )
+    rule = _rule_from_table(success_t, source)
+    analysis_prior = None
+    if "analysis_prior" in raw:
+        analysis_prior = prior_from_table(_table(raw, "analysis_prior", source),
+                                          "analysis_prior", source, ratio=endpoint.ratio_scale)
+    zones = None
+    if "zones" in raw:
+        from .zones import GoConsiderStop
+
+        zones_t = _table(raw, "zones", source)
+        _known(zones_t, _ZONES, "zones", source)
+        missing = [k for k in ("min_acceptable", "target") if k not in zones_t]
+        if missing:
+            raise DesignFileError(f"{source}: [zones] needs "
+                                  f"{' and '.join(repr(m) for m in missing)}.")
+        with _as_file_error(source, "zones"):
+            zones = GoConsiderStop(**zones_t)
+            zones.check_direction(endpoint)
     design_prior = prior_from_table(_table(raw, "design_prior", source), "design_prior", source,
                                     ratio=endpoint.ratio_scale)
     sd_prior = None
@@ -189,6 +204,7 @@ def parse_design(raw: dict[str, Any], *, source: str = "design") -> DesignFile:
             assumed_effect=effect_t.get("assumed"),
             relevant_effect=effect_t.get("relevant"),
             sigma_prior=sd_prior,
+            analysis_prior=analysis_prior,
             power_effects=tuple(also),
             title=raw.get("title", Path(source).stem or "Untitled trial"),
         )
@@ -215,7 +231,28 @@ def parse_design(raw: dict[str, Any], *, source: str = "design") -> DesignFile:
     draws = _whole(mc_t.get("draws", 20_000), "monte_carlo.draws", source, 100)
     seed = _whole(mc_t.get("seed", 20260101), "monte_carlo.seed", source, 0)
     return DesignFile(design=design, sizes=sizes, targets=targets, draws=draws, seed=seed,
-                      source=source)
+                      source=source, zones=zones)
+
+
+def _rule_from_table(table: dict[str, Any], source: str) -> Any:
+    """``[success]``: ``rule = "significance"`` (default) or ``"posterior_probability"``."""
+    from .posterior_rules import AllOf, MinimumEstimate, PosteriorProbability
+    from .rules import Significance
+
+    kind = table.get("rule", "significance")
+    if kind not in _SUCCESS_BY_RULE:
+        raise DesignFileError(f"{source}: 'success.rule' must be one of "
+                              f"{', '.join(_SUCCESS_BY_RULE)}. Got {kind!r}.")
+    _known(table, _SUCCESS_BY_RULE[kind], "success", source)
+    with _as_file_error(source, "success"):
+        if kind == "significance":
+            return Significance(alpha=table.get("alpha", 0.025), sided=table.get("sided", "one"),
+                                margin=table.get("margin", 0.0),
+                                min_estimate=table.get("min_estimate"))
+        rule = PosteriorProbability(level=table.get("level", 0.975), beyond=table.get("beyond"))
+        if table.get("min_estimate") is not None:
+            rule = AllOf((rule, MinimumEstimate(table["min_estimate"])))
+        return rule
 
 
 #: endpoint type in a design file -> (module, class); each class has from_design_table

@@ -133,6 +133,8 @@ def evaluate(
     xarray.Dataset
         Dimension ``n`` with coordinates ``n_treatment`` and ``n_control``; variables
         ``power`` (at the assumed effect), ``power_curve`` (``effect`` x ``n``),
+        ``type_one_error`` (success probability at the rule's null value: no effect, the
+        non-inferiority margin, or a posterior rule's reference value),
         ``assurance``, ``prob_success_and_benefit`` and, with a relevant effect,
         ``prob_success_and_relevant``, ``conditional_assurance``, ``prob_miss_relevant``;
         ``*_mcse`` Monte Carlo standard errors when sigma is uncertain; scalars ``ceiling``,
@@ -181,7 +183,9 @@ def evaluate(
     curve = np.vstack([calc.power(e, n_t, n_c) for e in effects])
     power = curve[int(np.flatnonzero(effects == design.assumed_effect)[0])]
 
-    data_vars: dict[str, Any] = {"power": ("n", power), "power_curve": (("effect", "n"), curve)}
+    type_one = calc.engine.power(float(calc.rule.null_value), n_t, n_c)
+    data_vars: dict[str, Any] = {"power": ("n", power), "power_curve": (("effect", "n"), curve),
+                                 "type_one_error": ("n", type_one)}
     data_vars.update({key: ("n", value) for key, value in per_n.items()})
     data_vars["ceiling"] = ((), design.ceiling())
     data_vars["prob_benefit"] = ((), design.prob_benefit())
@@ -208,6 +212,7 @@ def evaluate(
 _LABELS = {
     "power": "classical power at the assumed effect",
     "power_curve": "classical power at each effect",
+    "type_one_error": "P(success) when the true effect is the null value (type I error)",
     "assurance": "assurance: probability of success averaged over the design prior",
     "prob_success_and_benefit": "P(success and the treatment is truly better)",
     "prob_success_and_relevant": "P(success and the effect is clinically relevant)",

@@ -126,6 +126,24 @@ class Significance:
             return 0.0
         return self.one_sided_alpha if lowest == self.null_value else 0.5
 
+    def on_benefit_scale(self, endpoint: Any, analysis_prior: Any = None) -> Significance:
+        """The rule with its minimum observed effect and margin on the benefit scale.
+
+        A ratio endpoint states a non-inferiority margin as a ratio (say 1.3 for a hazard
+        ratio, lower better), which becomes ``|log 1.3|``. The analysis prior plays no part
+        in a significance test.
+        """
+        margin = self.margin
+        if getattr(endpoint, "ratio_scale", False) and margin:
+            margin = abs(math.log(margin))
+        min_estimate = (None if self.min_estimate is None
+                        else float(endpoint.to_benefit(self.min_estimate)))
+        return Significance(self.alpha, self.sided, margin, min_estimate)
+
+    def to_dict(self) -> dict[str, Any]:
+        return {"kind": "significance", "alpha": self.alpha, "sided": self.sided,
+                "margin": self.margin, "min_estimate": self.min_estimate}
+
     def flipped(self) -> Significance:
         """The same rule for an endpoint read in the opposite direction."""
         return Significance(self.alpha, self.sided, self.margin,

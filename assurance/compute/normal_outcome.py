@@ -94,9 +94,9 @@ def exact_success(
             return prob_estimate_above(prior, c, se, effect_above=None if cut is None
                                        else cut.value, inclusive=bool(cut and cut.inclusive))
     else:
-        crit = rule.critical_t(df)
-        ratio, weight = sd_ratio_nodes(df, kink=rule.kink_ratio(se, crit))
-        c = rule.threshold(se[None, :] * ratio, crit[None, :])
+        kink = rule.kink_ratio(se, rule.critical_t(df))
+        ratio, weight = sd_ratio_nodes(df, kink=kink)
+        c = rule.threshold(se[None, :] * ratio, rule.critical_t(df[None, :]))
 
         def prob(cut: Cut | None) -> np.ndarray:
             inner = prob_estimate_above(prior, c, se[None, :], effect_above=None if cut is None
@@ -164,7 +164,7 @@ def monte_carlo_success(
     squares = np.zeros(k.size)
     joint_sums = [np.zeros(k.size) for _ in cuts]
     joint_squares = [np.zeros(k.size) for _ in cuts]
-    crit = rule.critical_t(df) if analysis == "t" else np.full(k.size, rule.critical_z())
+    crit = rule.critical_t(df[None, :]) if analysis == "t" else rule.critical_z()
     for start in range(0, m, chunk):
         sl = slice(start, min(start + chunk, m))
         effect = draws.effect[sl, None]
@@ -172,9 +172,9 @@ def monte_carlo_success(
         se = sigma * k[None, :]
         if analysis == "t":
             ratio = np.sqrt(special.chdtri(df[None, :], draws.uniform[sl, None]) / df[None, :])
-            c = rule.threshold(se * ratio, crit[None, :])
+            c = rule.threshold(se * ratio, crit)
         else:
-            c = rule.threshold(se, crit[None, :])
+            c = rule.threshold(se, crit)
         p = special.ndtr((effect - c) / se)
         sums += p.sum(axis=0)
         squares += (p * p).sum(axis=0)

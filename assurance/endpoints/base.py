@@ -9,7 +9,6 @@ can hold fixed Monte Carlo draws so that every sample size sees the same draws.
 
 from __future__ import annotations
 
-import math
 from abc import ABC, abstractmethod
 from collections.abc import Sequence
 from typing import Any
@@ -143,17 +142,13 @@ class Endpoint(TwoArmSizing, ABC):
         """
         return design_prior if self.sign > 0 else design_prior.negated()
 
-    def benefit_rule(self, rule: Significance) -> Significance:
-        """The rule with its minimum observed effect and margin on the benefit scale.
+    def benefit_rule(self, rule: Any, analysis_prior: Prior | None = None) -> Any:
+        """The rule on the benefit scale (see each rule's ``on_benefit_scale``).
 
         A ratio endpoint states a non-inferiority margin as a ratio (say 1.3 for a hazard
         ratio, lower better), which becomes ``|log 1.3|`` on the benefit scale.
         """
-        margin = rule.margin
-        if self.ratio_scale and margin:
-            margin = abs(math.log(margin))
-        min_estimate = None if rule.min_estimate is None else self.to_benefit(rule.min_estimate)
-        return Significance(rule.alpha, rule.sided, margin, min_estimate)
+        return rule.on_benefit_scale(self, analysis_prior)
 
     @abstractmethod
     def calculator(self, prior_benefit: Prior, rule_benefit: Significance, *, draws: int,

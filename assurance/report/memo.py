@@ -318,6 +318,14 @@ def _facts(design: TrialDesign, ds: Any) -> str:
                      f"uncertain, prior {design.sigma_prior.describe()}; classical power uses "
                      f"the planning value {ep.sigma:g}" if design.sigma_prior is not None
                      else f"fixed at {ep.sigma:g}"))
+    if getattr(design, "analysis_prior", None) is not None:
+        rows.append(("Analysis prior (used by the final analysis)",
+                     design.analysis_prior.describe()))
+    if "type_one_error" in ds:
+        t1 = ds["type_one_error"].values
+        rows.append(("Type I error (success probability at the null value)",
+                     f"{_p(float(t1.min()))} to {_p(float(t1.max()))} across the sizes shown"
+                     if float(t1.max()) - float(t1.min()) > 5e-4 else _p(float(t1.mean()))))
     rows += [
         ("Assumed effect (classical power)", f"{design.assumed_effect:g}"),
         ("Clinically relevant effect",
@@ -445,6 +453,32 @@ def _figures(design: TrialDesign, ds: Any, answers: Sequence[SampleSizeAnswer],
     return "".join(parts)
 
 
+def _zones_section(ds: Any, answers: Sequence[SampleSizeAnswer]) -> str:
+    """Go / consider / stop probabilities at the candidate sizes, when the results have them."""
+    if "prob_go" not in ds:
+        return ""
+    rows, _ = _pick_rows(ds, answers)
+    mc = "prob_go_mcse" in ds
+    head = ("<tr><th class=\"num\" scope=\"col\">Total patients</th>"
+            "<th class=\"num\" scope=\"col\">P(go)</th>"
+            "<th class=\"num\" scope=\"col\">P(consider)</th>"
+            "<th class=\"num\" scope=\"col\">P(stop)</th></tr>")
+    body = []
+    for i in rows:
+        go = _p(float(ds["prob_go"][i]))
+        stop = _p(float(ds["prob_stop"][i]))
+        if mc:
+            go += f" \u00b1 {float(ds['prob_go_mcse'][i]):.3f}"
+            stop += f" \u00b1 {float(ds['prob_stop_mcse'][i]):.3f}"
+        body.append(f"<tr><td class=\"num\">{int(ds.n[i])}</td><td class=\"num\">{_e(go)}</td>"
+                    f"<td class=\"num\">{_e(_p(float(ds['prob_consider'][i])))}</td>"
+                    f"<td class=\"num\">{_e(stop)}</td></tr>")
+    rule = _e(ds.attrs.get("zones", ""))
+    return (f"<section><h2>Go, consider or stop</h2><p>Rule: {rule}. Probabilities under the "
+            f"design prior.</p><table class=\"grid\"><thead>{head}</thead>"
+            f"<tbody>{''.join(body)}</tbody></table></section>")
+
+
 def _date_text(date: _dt.date | str | None) -> str:
     if date is None:
         return _dt.date.today().isoformat()
@@ -525,6 +559,7 @@ def memo_html(
         f"<section><h2>Design</h2>{_facts(design, ds)}</section>"
         f"<section><h2>Candidate sample sizes</h2>{_candidates(design, ds, answers)}</section>"
         f"<section><h2>Sample sizes for the targets</h2>{_targets(design, answers)}</section>"
+        f"{_zones_section(ds, answers)}"
         f"{figure_block}"
         f'<section class="cautions"><h2>Cautions</h2><ul>{caution_items}</ul></section>'
         '<section class="provenance"><h2>Provenance</h2>'
