@@ -51,6 +51,7 @@ _PUBLIC = {
     "MinimumEstimate": "posterior_rules",
     "GoConsiderStop": "zones",
     "evaluate_zones": "zones",
+    "evaluate_joint": "joint",
     "TrialDesign": "design",
     "evaluate": "planning",
     "solve_sample_size": "planning",
@@ -88,6 +89,7 @@ __all__ = [
     "MinimumEstimate",
     "GoConsiderStop",
     "evaluate_zones",
+    "evaluate_joint",
     "TrialDesign",
     "evaluate",
     "solve_sample_size",
@@ -102,6 +104,7 @@ if TYPE_CHECKING:  # pragma: no cover - for type checkers and editors only
     from .endpoints.counts import CountEndpoint, sample_size_for_rate_ratio, simulate_rejection_rate
     from .endpoints.survival import SurvivalEndpoint, events_needed
     from .errors import AssuranceInputError, AssuranceWarning, DesignFileError
+    from .joint import evaluate_joint
     from .planning import SampleSizeAnswer, evaluate, solve_sample_size
     from .posterior_rules import AllOf, AnyOf, MinimumEstimate, PosteriorProbability
     from .priors import (
