@@ -38,6 +38,8 @@ _PUBLIC = {
     "GammaPrecision": "priors",
     "ContinuousEndpoint": "endpoints.continuous",
     "CountEndpoint": "endpoints.counts",
+    "BinaryEndpoint": "endpoints.binary",
+    "BetaRates": "endpoints.binary",
     "SurvivalEndpoint": "endpoints.survival",
     "events_needed": "endpoints.survival",
     "simulate_trials": "compute.survival_sim",
@@ -76,6 +78,8 @@ __all__ = [
     "GammaPrecision",
     "ContinuousEndpoint",
     "CountEndpoint",
+    "BinaryEndpoint",
+    "BetaRates",
     "SurvivalEndpoint",
     "events_needed",
     "simulate_trials",
@@ -100,6 +104,7 @@ __all__ = [
 if TYPE_CHECKING:  # pragma: no cover - for type checkers and editors only
     from .compute.survival_sim import simulate_assurance, simulate_trials
     from .design import TrialDesign
+    from .endpoints.binary import BetaRates, BinaryEndpoint
     from .endpoints.continuous import ContinuousEndpoint
     from .endpoints.counts import CountEndpoint, sample_size_for_rate_ratio, simulate_rejection_rate
     from .endpoints.survival import SurvivalEndpoint, events_needed

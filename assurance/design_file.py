@@ -185,8 +185,11 @@ def parse_design(raw: dict[str, Any], *, source: str = "design") -> DesignFile:
         with _as_file_error(source, "zones"):
             zones = GoConsiderStop(**zones_t)
             zones.check_direction(endpoint)
-    design_prior = prior_from_table(_table(raw, "design_prior", source), "design_prior", source,
-                                    ratio=endpoint.ratio_scale)
+    prior_t = _table(raw, "design_prior", source)
+    if prior_t.get("family") == "beta_rates" and "scale" not in prior_t and hasattr(
+            endpoint, "scale"):
+        prior_t = {**prior_t, "scale": endpoint.scale}  # the effect scale of the endpoint
+    design_prior = prior_from_table(prior_t, "design_prior", source, ratio=endpoint.ratio_scale)
     sd_prior = None
     if "sd_prior" in raw:
         sd_prior = prior_from_table(_table(raw, "sd_prior", source), "sd_prior", source)

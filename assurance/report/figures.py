@@ -133,8 +133,11 @@ def _check_dataset(ds: Any, owner: str, needed: Sequence[str] = ("power", "assur
 def _effect_word(endpoint: dict[str, Any] | Any) -> str:
     layout = endpoint.get("layout") if isinstance(endpoint, dict) else endpoint.layout
     better = endpoint.get("better") if isinstance(endpoint, dict) else endpoint.better
+    kind = endpoint.get("kind") if isinstance(endpoint, dict) else endpoint.to_dict().get("kind")
     if getattr(endpoint, "ratio_scale", False):
         base = f"true {endpoint.effect_name} (treatment / control, log scale)"
+    elif kind not in (None, "continuous"):
+        base = f"true {endpoint.effect_name}"
     elif layout == "single_arm":
         base = "true mean change"
     else:

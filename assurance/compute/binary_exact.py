@@ -1,0 +1,555 @@
+"""Success probabilities for a binary (response) outcome: exact enumeration of the outcomes.
+
+A two-arm trial ends with ``x_t`` responders out of ``n_t`` on treatment and ``x_c`` out of
+``n_c`` on control; a single-arm trial has ``x_t`` out of ``n_t`` and compares its rate with a
+fixed reference rate. For one pair of arm sizes, the *success region* -- the outcomes at which
+the chosen test rejects in the favourable direction -- is computed once, vectorised over the
+whole outcome grid. Every probability of success is then a weighted sum over that region:
+
+* classical power at fixed rates: binomial probabilities per arm;
+* assurance under independent beta priors on the two rates: beta-binomial prior predictive
+  probabilities per arm (exact, no simulation);
+* any other prior: quadrature nodes over the rates (see :mod:`assurance.endpoints.binary`),
+  with binomial probabilities at each node.
+
+Beyond a switch point the endpoint uses the normal approximation of :func:`normal_power`
+instead of the enumeration.
+
+All effects here are on the *natural analysis scale* ``x`` (difference ``p_t - p_c``, log risk
+ratio or log odds ratio); ``sign`` is +1 when higher rates are better and -1 when lower rates
+are better, so the benefit-scale effect is ``sign * x``.
+
+References
+----------
+Fleiss, J. L., Tytun, A. & Ury, H. K. (1980). A simple approximation for calculating sample
+sizes for comparing independent proportions. Biometrics 36, 343-346.
+
+Farrington, C. P. & Manning, G. (1990). Test statistics and sample size formulae for
+comparative binomial trials with null hypothesis of non-zero risk difference or non-unity
+relative risk. Statistics in Medicine 9, 1447-1454.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from functools import lru_cache
+
+import numpy as np
+from numpy.polynomial.legendre import leggauss
+from scipy import special
+
+__all__ = [
+    "TESTS",
+    "SCALES",
+    "TestSpec",
+    "RateArm",
+    "success_region",
+    "fisher_p_values",
+    "normal_power",
+    "binomial_pmf",
+    "beta_binomial_pmf",
+    "restricted_rates",
+    "treatment_rate",
+    "control_rate",
+    "natural_effect",
+    "effect_bounds",
+    "control_breakpoints",
+    "treatment_breakpoints",
+    "gauss_legendre",
+    "smoothed_rule",
+    "posterior_below",
+]
+
+#: tests the trial may use, in plain words
+TESTS = ("z", "chi_square", "fisher_exact", "exact_binomial")
+#: scales of the effect
+SCALES = ("difference", "risk_ratio", "odds_ratio")
+#: p-values within this relative distance of alpha count as rejecting (rounding guard: a
+#: p-value exactly equal to alpha rejects, and sums of probabilities carry ~1e-15 error)
+P_VALUE_TOLERANCE = 1e-7
+
+
+# ------------------------------------------------------------------------------------------
+# the effect scales
+# ------------------------------------------------------------------------------------------
+def treatment_rate(x, p_c, scale: str):
+    """Treatment rate for natural effect ``x`` at control rate ``p_c`` (may leave [0, 1]).
+
+    Examples
+    --------
+    >>> round(float(treatment_rate(np.log(1.5), 0.2, "risk_ratio")), 10)
+    0.3
+    """
+    x, p_c = np.asarray(x, dtype=float), np.asarray(p_c, dtype=float)
+    if scale == "difference":
+        return p_c + x
+    if scale == "risk_ratio":
+        return p_c * np.exp(x)
+    with np.errstate(divide="ignore"):
+        return special.expit(special.logit(p_c) + x)
+
+
+def control_rate(x, p_t, scale: str):
+    """Control rate at which treatment rate ``p_t`` means natural effect ``x`` (inverse map)."""
+    x, p_t = np.asarray(x, dtype=float), np.asarray(p_t, dtype=float)
+    if scale == "difference":
+        return p_t - x
+    if scale == "risk_ratio":
+        return p_t * np.exp(-x)
+    with np.errstate(divide="ignore"):
+        return special.expit(special.logit(p_t) - x)
+
+
+def natural_effect(p_t, p_c, scale: str):
+    """Effect of rates ``p_t`` versus ``p_c`` on the analysis scale.
+
+    Empty cells give the limits (``log 0 = -inf``); ``0/0`` (both rates 0, or both 1 for the
+    odds ratio) counts as no effect.
+    """
+    p_t, p_c = np.asarray(p_t, dtype=float), np.asarray(p_c, dtype=float)
+    if scale == "difference":
+        return p_t - p_c
+    with np.errstate(divide="ignore", invalid="ignore"):
+        if scale == "risk_ratio":
+            out = np.log(p_t) - np.log(p_c)
+        else:
+            out = special.logit(p_t) - special.logit(p_c)
+    return np.where(np.isnan(out), 0.0, out)
+
+
+def effect_bounds(p_c, scale: str):
+    """Natural effects ``[lo, hi]`` that keep the treatment rate in [0, 1] at control ``p_c``."""
+    p_c = np.asarray(p_c, dtype=float)
+    if scale == "difference":
+        return -p_c, 1.0 - p_c
+    if scale == "risk_ratio":
+        with np.errstate(divide="ignore"):
+            return np.full_like(p_c, -np.inf), -np.log(p_c)
+    return np.full_like(p_c, -np.inf), np.full_like(p_c, np.inf)
+
+
+def control_breakpoints(x: float, scale: str) -> list[float]:
+    """Control rates in (0, 1) at which natural effect ``x`` reaches a bound of [0, 1]."""
+    if scale == "difference":
+        points = [-x, 1.0 - x]
+    elif scale == "risk_ratio":
+        points = [math.exp(-x)] if x > -700 else []
+    else:
+        points = []
+    return [p for p in points if 0.0 < p < 1.0]
+
+
+def treatment_breakpoints(x: float, scale: str) -> list[float]:
+    """Treatment rates in (0, 1) at which the matching control rate reaches 0 or 1."""
+    if scale == "difference":
+        points = [x, 1.0 + x]
+    elif scale == "risk_ratio":
+        points = [math.exp(x)] if x < 700 else []
+    else:
+        points = []
+    return [p for p in points if 0.0 < p < 1.0]
+
+
+# ------------------------------------------------------------------------------------------
+# probabilities of outcomes
+# ------------------------------------------------------------------------------------------
+def _log_comb(n: int) -> np.ndarray:
+    x = np.arange(n + 1)
+    return special.gammaln(n + 1) - special.gammaln(x + 1) - special.gammaln(n - x + 1)
+
+
+def binomial_pmf(n: int, p) -> np.ndarray:
+    """Binomial probabilities of ``0..n`` responders, one row per rate in ``p``.
+
+    Examples
+    --------
+    >>> np.round(binomial_pmf(2, [0.5]), 3)
+    array([[0.25, 0.5 , 0.25]])
+    """
+    p = np.atleast_1d(np.asarray(p, dtype=float))
+    x = np.arange(n + 1)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        logpmf = (_log_comb(n)[None, :] + x[None, :] * np.log(p)[:, None]
+                  + (n - x)[None, :] * np.log1p(-p)[:, None])
+        out = np.exp(logpmf)
+    out[p <= 0.0] = np.eye(1, n + 1, 0)[0]
+    out[p >= 1.0] = np.eye(1, n + 1, n)[0]
+    return out
+
+
+def beta_binomial_pmf(n: int, a: float, b: float) -> np.ndarray:
+    """Beta-binomial probabilities of ``0..n`` responders when the rate is Beta(a, b).
+
+    Examples
+    --------
+    >>> np.round(beta_binomial_pmf(2, 1.0, 1.0), 4)  # uniform rate: all counts equally likely
+    array([0.3333, 0.3333, 0.3333])
+    """
+    x = np.arange(n + 1)
+    return np.exp(_log_comb(n) + special.betaln(x + a, n - x + b) - special.betaln(a, b))
+
+
+@lru_cache(maxsize=16)
+def _gauss_legendre(k: int) -> tuple[np.ndarray, np.ndarray]:
+    t, w = leggauss(k)
+    t, w = (t + 1.0) / 2.0, w / 2.0
+    t.flags.writeable = False
+    w.flags.writeable = False
+    return t, w
+
+
+def gauss_legendre(k: int) -> tuple[np.ndarray, np.ndarray]:
+    """Gauss-Legendre nodes and weights on [0, 1] (cached, read-only arrays)."""
+    return _gauss_legendre(int(k))
+
+
+@lru_cache(maxsize=16)
+def _smoothed_rule(k: int) -> tuple[np.ndarray, np.ndarray]:
+    t, w = _gauss_legendre(k)
+    s = t**3 * (10.0 - 15.0 * t + 6.0 * t * t)
+    ws = w * 30.0 * t * t * (1.0 - t) ** 2
+    s.flags.writeable = False
+    ws.flags.writeable = False
+    return s, ws
+
+
+def smoothed_rule(k: int) -> tuple[np.ndarray, np.ndarray]:
+    """Gauss-Legendre on [0, 1] after the change of variable ``s = 10t^3 - 15t^4 + 6t^5``.
+
+    Integrals on a probability scale ``v = F(x)`` have integrands with endpoint
+    singularities (``F^{-1}`` of a normal or beta prior has infinite slope at 0 and 1); the
+    substitution, whose derivative ``30 t^2 (1 - t)^2`` vanishes at both ends, smooths them
+    so that Gauss-Legendre converges fast again (a sigmoidal transformation in the sense of
+    Sidi 1993, common practice in numerical integration).
+
+    Examples
+    --------
+    >>> s, w = smoothed_rule(16)
+    >>> round(float(np.sum(w * np.sqrt(s))), 8)  # integral of sqrt(v) over [0, 1] = 2/3
+    0.66666667
+    """
+    return _smoothed_rule(int(k))
+
+
+def posterior_below(a: float, b: float, n: int, t) -> np.ndarray:
+    """``P(p < t | x responders of n)`` under a Beta(a, b) prior, for every ``x = 0..n``.
+
+    Returns shape ``(n + 1, len(t))``: the regularised incomplete beta function
+    ``I_t(a + x, b + n - x)``. One call of ``scipy.special.betainc`` per ``t``, then the
+    recurrence ``I_t(c + 1, d - 1) = I_t(c, d) - Gamma(c + d) / (Gamma(c + 1) Gamma(d))
+    t^c (1 - t)^(d - 1)`` (DLMF 8.17.20) as a cumulative sum; its absolute error is a few
+    ``n`` machine epsilons.
+
+    Examples
+    --------
+    >>> from scipy import special
+    >>> v = posterior_below(2.0, 3.0, 4, [0.4])[:, 0]
+    >>> bool(np.allclose(v, special.betainc(2.0 + np.arange(5), 3.0 + 4 - np.arange(5), 0.4)))
+    True
+    """
+    t = np.clip(np.atleast_1d(np.asarray(t, dtype=float)), 0.0, 1.0)
+    first = special.betainc(a, b + n, t)
+    if n == 0:
+        return first[None, :]
+    x = np.arange(n)[:, None]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        log_t, log_q = np.log(t)[None, :], np.log1p(-t)[None, :]
+        log_term = (special.gammaln(a + b + n) - special.gammaln(a + x + 1)
+                    - special.gammaln(b + n - x) + (a + x) * log_t + (b + n - x - 1) * log_q)
+        terms = np.exp(log_term)
+    terms = np.nan_to_num(terms, nan=0.0)
+    out = np.empty((n + 1, t.size))
+    out[0] = first
+    out[1:] = first[None, :] - np.cumsum(terms, axis=0)
+    return np.clip(out, 0.0, 1.0)
+
+
+@dataclass(frozen=True)
+class RateArm:
+    """What is assumed about one arm's rate: a Beta(a, b) prior, or a fixed value.
+
+    Examples
+    --------
+    >>> arm = RateArm.beta(3.0, 7.0)
+    >>> round(arm.mean, 3), RateArm.fixed_at(0.25).sd
+    (0.3, 0.0)
+    """
+
+    a: float = math.nan
+    b: float = math.nan
+    value: float | None = None
+
+    @classmethod
+    def beta(cls, a: float, b: float) -> RateArm:
+        return cls(a=float(a), b=float(b))
+
+    @classmethod
+    def fixed_at(cls, value: float) -> RateArm:
+        return cls(value=float(value))
+
+    @property
+    def fixed(self) -> bool:
+        return self.value is not None
+
+    @property
+    def mean(self) -> float:
+        return self.value if self.fixed else self.a / (self.a + self.b)
+
+    @property
+    def sd(self) -> float:
+        if self.fixed:
+            return 0.0
+        s = self.a + self.b
+        return math.sqrt(self.a * self.b / (s * s * (s + 1.0)))
+
+    def cdf(self, p) -> np.ndarray:
+        p = np.asarray(p, dtype=float)
+        if self.fixed:
+            return np.where(p >= self.value, 1.0, 0.0)
+        return special.betainc(self.a, self.b, np.clip(p, 0.0, 1.0))
+
+    def pdf(self, p) -> np.ndarray:
+        p = np.asarray(p, dtype=float)
+        inside = (p > 0.0) & (p < 1.0)
+        q = np.where(inside, p, 0.5)
+        dens = np.exp((self.a - 1) * np.log(q) + (self.b - 1) * np.log1p(-q)
+                      - special.betaln(self.a, self.b))
+        return np.where(inside, dens, 0.0)
+
+    def nodes(self, lo, hi, k: int) -> tuple[np.ndarray, np.ndarray]:
+        """Rates and weights integrating over this arm's prior restricted to ``[lo, hi]``.
+
+        Gauss-Legendre on the prior's probability scale ``v = F(p)`` (the weight is then 1),
+        vectorised over arrays ``lo``, ``hi``: returns arrays of shape ``lo.shape + (k,)``.
+        A fixed rate gives one node (weight 1 if it lies in ``[lo, hi]``).
+        """
+        lo, hi = np.broadcast_arrays(np.asarray(lo, dtype=float), np.asarray(hi, dtype=float))
+        if self.fixed:
+            inside = (lo <= self.value) & (self.value <= hi)
+            return np.full(lo.shape + (1,), self.value), inside[..., None].astype(float)
+        t, w = smoothed_rule(k)
+        v0, v1 = self.cdf(lo), self.cdf(hi)
+        width = np.maximum(v1 - v0, 0.0)[..., None]
+        v = v0[..., None] + width * t
+        return special.betaincinv(self.a, self.b, v), width * w
+
+    def split_nodes(self, breaks: list[float], k: int) -> tuple[np.ndarray, np.ndarray]:
+        """1-D nodes over the whole prior, a Gauss-Legendre block between each breakpoint."""
+        edges = np.unique(np.clip([0.0, *breaks, 1.0], 0.0, 1.0))
+        if self.fixed:
+            return np.array([self.value]), np.array([1.0])
+        p, w = self.nodes(edges[:-1], edges[1:], k)
+        keep = w.ravel() > 0
+        return p.ravel()[keep], w.ravel()[keep]
+
+    def describe(self) -> list[float] | float:
+        return self.value if self.fixed else [self.a, self.b]
+
+
+# ------------------------------------------------------------------------------------------
+# the tests
+# ------------------------------------------------------------------------------------------
+@dataclass(frozen=True)
+class TestSpec:
+    """One test, in the favourable direction, at one-sided level ``alpha``.
+
+    ``null_shift`` is the natural effect under the null (0 for superiority; ``-sign *
+    margin`` for non-inferiority); ``reference`` is the single-arm reference rate.
+    ``min_estimate`` (benefit scale) is a further requirement on the observed effect.
+    """
+
+    __test__ = False  # not a pytest class
+
+    test: str
+    alpha: float
+    sign: float
+    scale: str
+    two_arm: bool
+    null_shift: float = 0.0
+    reference: float | None = None
+    continuity: bool = False
+    min_estimate: float | None = None
+
+    @property
+    def null_rate(self) -> float:
+        """Single arm: the treatment rate under the null hypothesis."""
+        return float(treatment_rate(self.null_shift, self.reference, self.scale))
+
+    @property
+    def critical_z(self) -> float:
+        return float(special.ndtri(1.0 - self.alpha))
+
+
+def restricted_rates(p_t, p_c, n_t, n_c, delta0: float):
+    """Maximum-likelihood rates under ``p_t - p_c = delta0`` (Farrington & Manning 1990).
+
+    The closed-form root of the likelihood equation (a cubic), vectorised; with
+    ``delta0 = 0`` it is the pooled rate for both arms.
+    """
+    p_t, p_c = np.asarray(p_t, dtype=float), np.asarray(p_c, dtype=float)
+    theta = n_c / n_t
+    a = 1.0 + theta
+    b = -(1.0 + theta + p_t + theta * p_c + delta0 * (theta + 2.0))
+    c = delta0 * delta0 + delta0 * (2.0 * p_t + theta + 1.0) + p_t + theta * p_c
+    d = -p_t * delta0 * (1.0 + delta0)
+    v = b**3 / (27.0 * a**3) - b * c / (6.0 * a * a) + d / (2.0 * a)
+    u = np.sign(v) * np.sqrt(np.maximum(b * b / (9.0 * a * a) - c / (3.0 * a), 0.0))
+    with np.errstate(divide="ignore", invalid="ignore"):
+        ratio = np.where(u != 0.0, v / u**3, 0.0)
+    w = (np.pi + np.arccos(np.clip(ratio, -1.0, 1.0))) / 3.0
+    rt = np.clip(2.0 * u * np.cos(w) - b / (3.0 * a), 0.0, 1.0)
+    return rt, np.clip(rt - delta0, 0.0, 1.0)
+
+
+def _two_arm_z(spec: TestSpec, n_t: int, n_c: int) -> np.ndarray:
+    pt = (np.arange(n_t + 1) / n_t)[:, None]
+    pc = (np.arange(n_c + 1) / n_c)[None, :]
+    d0 = spec.null_shift
+    if d0 == 0.0:
+        pooled = (n_t * pt + n_c * pc) / (n_t + n_c)
+        var = pooled * (1.0 - pooled) * (1.0 / n_t + 1.0 / n_c)
+    else:
+        rt, rc = restricted_rates(pt, pc, n_t, n_c, d0)
+        var = rt * (1.0 - rt) / n_t + rc * (1.0 - rc) / n_c
+    cc = 0.5 * (1.0 / n_t + 1.0 / n_c) if spec.continuity else 0.0
+    num = spec.sign * (pt - pc - d0) - cc
+    with np.errstate(divide="ignore", invalid="ignore"):
+        z = num / np.sqrt(var)
+    return (var > 0.0) & (z >= spec.critical_z)
+
+
+def fisher_p_values(n_t: int, n_c: int, sign: float) -> np.ndarray:
+    """One-sided Fisher exact p-values for every table, shape ``(n_t + 1, n_c + 1)``.
+
+    Given the total number of responders ``s``, ``x_t`` is hypergeometric; the p-value in
+    the favourable direction is ``P(X_t >= x_t | s)`` (``<=`` when lower rates are better).
+    The pmf comes from log-gamma functions on an ``(x_t, s)`` grid and the tails from
+    cumulative sums along ``x_t``.
+
+    Examples
+    --------
+    >>> p = fisher_p_values(3, 3, +1.0)
+    >>> round(float(p[3, 0]), 4)  # 3/3 versus 0/3: 1 / C(6, 3)
+    0.05
+    """
+    n = n_t + n_c
+    xt = np.arange(n_t + 1)[:, None]
+    s = np.arange(n + 1)[None, :]
+    xc = s - xt
+    valid = (xc >= 0) & (xc <= n_c)
+    log_pmf = (_log_comb(n_t)[xt] + _log_comb(n_c)[np.clip(xc, 0, n_c)]
+               - _log_comb(n)[s])
+    pmf = np.where(valid, np.exp(log_pmf), 0.0)
+    tail = np.cumsum(pmf[::-1], axis=0)[::-1] if sign > 0 else np.cumsum(pmf, axis=0)
+    return tail[xt, xt + np.arange(n_c + 1)[None, :]]
+
+
+def _observed_benefit(spec: TestSpec, n_t: int, n_c: int) -> np.ndarray:
+    pt = (np.arange(n_t + 1) / n_t)[:, None]
+    pc = (np.arange(n_c + 1) / n_c)[None, :] if spec.two_arm else np.array([[spec.reference]])
+    return spec.sign * natural_effect(pt, pc, spec.scale)
+
+
+def success_region(spec: TestSpec, n_t: int, n_c: int) -> np.ndarray:
+    """Boolean array over outcomes ``(x_t, x_c)``: True where the trial succeeds.
+
+    Shape ``(n_t + 1, n_c + 1)``; a single-arm trial gives shape ``(n_t + 1, 1)``.
+
+    Notes
+    -----
+    * ``"z"`` (two arms): pooled two-proportion z statistic ``(p_t - p_c) / sqrt(pbar (1 -
+      pbar) (1/n_t + 1/n_c))`` in the favourable direction, success iff ``z >=
+      z_{1-alpha}``; with a non-inferiority margin the numerator is shifted by the margin
+      and the variance uses the rates restricted to the null (Farrington & Manning 1990);
+      with continuity correction ``(1/n_t + 1/n_c) / 2`` is taken off the numerator.
+      Tables with no variance (all or no responders) do not reject.
+    * ``"chi_square"``: Pearson's chi-square statistic equals ``z^2`` (Yates-corrected:
+      the corrected ``z`` squared), so a two-sided chi-square test at ``2 alpha`` with the
+      result in the favourable direction rejects exactly where ``z >= z_{1-alpha}``.
+    * ``"fisher_exact"``: one-sided conditional p-value <= alpha (:func:`fisher_p_values`).
+    * single arm: ``"z"`` / ``"chi_square"`` is the score test ``(p - p0) / sqrt(p0 (1 -
+      p0) / n)``; ``"exact_binomial"`` is ``P(X >= x | p0) <= alpha`` (``scipy.stats.
+      binomtest`` with the one-sided alternative).
+
+    Examples
+    --------
+    >>> spec = TestSpec("fisher_exact", 0.05, +1.0, "difference", True)
+    >>> np.argwhere(success_region(spec, 3, 3)).tolist()  # only 3/3 versus 0/3 succeeds
+    [[3, 0]]
+    """
+    level = spec.alpha * (1.0 + P_VALUE_TOLERANCE)
+    if spec.two_arm:
+        if spec.test == "fisher_exact":
+            reject = fisher_p_values(n_t, n_c, spec.sign) <= level
+        else:
+            reject = _two_arm_z(spec, n_t, n_c)
+    else:
+        p0 = spec.null_rate
+        x = np.arange(n_t + 1)
+        if spec.test == "exact_binomial":
+            pmf = binomial_pmf(n_t, p0)[0]
+            tail = np.cumsum(pmf[::-1])[::-1] if spec.sign > 0 else np.cumsum(pmf)
+            reject = tail <= level
+        else:
+            cc = 0.5 / n_t if spec.continuity else 0.0
+            z = (spec.sign * (x / n_t - p0) - cc) / math.sqrt(p0 * (1.0 - p0) / n_t)
+            reject = z >= spec.critical_z
+        reject = reject[:, None]
+    if spec.min_estimate is not None:
+        reject = reject & (_observed_benefit(spec, n_t, n_c) >= spec.min_estimate)
+    return reject
+
+
+def normal_power(spec: TestSpec, p_t, p_c, n_t: float, n_c: float) -> np.ndarray:
+    """Normal-approximation probability of success at true rates ``p_t``, ``p_c``.
+
+    The observed difference ``D = sign (p_t_hat - p_c_hat)`` is taken as normal with the
+    variance at the true rates, ``se1^2 = p_t q_t / n_t + p_c q_c / n_c``; the test rejects
+    when ``D >= sign delta0 + cc + z_{1-alpha} se0`` with ``se0`` the standard error under
+    the null (pooled rate, or the Farrington-Manning restricted rates with a margin), so
+
+    ``power = Phi((sign (p_t - p_c) - sign delta0 - cc - z se0) / se1)``
+
+    (Fleiss, Tytun & Ury 1980). ``cc = (1/n_t + 1/n_c)/2`` with continuity correction; the
+    Fisher exact test is approximated by the continuity-corrected z test. Single arm:
+    ``se0^2 = p0 q0 / n``, ``se1^2 = p q / n``, ``cc = 1/(2n)`` (the exact binomial test is
+    approximated with the correction). A minimum observed effect on a ratio scale is
+    converted to a difference at the true control (or reference) rate.
+
+    Examples
+    --------
+    >>> spec = TestSpec("z", 0.025, +1.0, "difference", True)
+    >>> round(float(normal_power(spec, 0.4, 0.2, 82, 82)), 4)  # Fleiss et al.: n = 82
+    0.8038
+    """
+    p_t, p_c = np.broadcast_arrays(np.asarray(p_t, dtype=float), np.asarray(p_c, dtype=float))
+    z = spec.critical_z
+    exact_test = spec.test in ("fisher_exact", "exact_binomial")
+    cc_on = spec.continuity or exact_test
+    if spec.two_arm:
+        d0 = spec.null_shift
+        if d0 == 0.0:
+            pooled = (n_t * p_t + n_c * p_c) / (n_t + n_c)
+            se0 = np.sqrt(pooled * (1.0 - pooled) * (1.0 / n_t + 1.0 / n_c))
+        else:
+            rt, rc = restricted_rates(p_t, p_c, n_t, n_c, d0)
+            se0 = np.sqrt(rt * (1.0 - rt) / n_t + rc * (1.0 - rc) / n_c)
+        se1 = np.sqrt(p_t * (1.0 - p_t) / n_t + p_c * (1.0 - p_c) / n_c)
+        cc = 0.5 * (1.0 / n_t + 1.0 / n_c) if cc_on else 0.0
+        ref = p_c
+        threshold = spec.sign * d0 + cc + z * se0
+    else:
+        ref = np.full_like(p_t, spec.reference)
+        p0 = spec.null_rate
+        se0 = math.sqrt(p0 * (1.0 - p0) / n_t)
+        se1 = np.sqrt(p_t * (1.0 - p_t) / n_t)
+        cc = 0.5 / n_t if cc_on else 0.0
+        threshold = spec.sign * (p0 - spec.reference) + cc + z * se0
+    if spec.min_estimate is not None:
+        needed = treatment_rate(spec.sign * spec.min_estimate, ref, spec.scale)
+        threshold = np.maximum(threshold, spec.sign * (needed - ref))
+    gap = spec.sign * (p_t - ref) - threshold
+    with np.errstate(divide="ignore", invalid="ignore"):
+        power = special.ndtr(gap / se1)
+    return np.where(se1 > 0.0, power, (gap >= 0.0).astype(float))
