@@ -59,6 +59,23 @@ _PUBLIC = {
     "solve_sample_size": "planning",
     "SampleSizeAnswer": "planning",
     "show_versions": "versions",
+    "fit_prior": "elicitation",
+    "linear_pool": "elicitation",
+    "plot_fit": "elicitation",
+    "Quantile": "elicitation",
+    "Interval": "elicitation",
+    "PriorFit": "elicitation",
+    "Beta": "elicitation",
+    "Gamma": "elicitation",
+    "Estimate": "evidence",
+    "estimate_from_events": "evidence",
+    "estimate_from_means": "evidence",
+    "prior_from_estimate": "evidence",
+    "robust_mixture": "evidence",
+    "arm_estimates": "evidence",
+    "meta_analytic_prior": "evidence",
+    "meta_analytic_prior_mcmc": "evidence",
+    "prior_predictive_summary": "evidence",
 }
 
 __all__ = [
@@ -99,16 +116,54 @@ __all__ = [
     "solve_sample_size",
     "SampleSizeAnswer",
     "show_versions",
+    "fit_prior",
+    "linear_pool",
+    "plot_fit",
+    "Quantile",
+    "Interval",
+    "PriorFit",
+    "Beta",
+    "Gamma",
+    "Estimate",
+    "estimate_from_events",
+    "estimate_from_means",
+    "prior_from_estimate",
+    "robust_mixture",
+    "arm_estimates",
+    "meta_analytic_prior",
+    "meta_analytic_prior_mcmc",
+    "prior_predictive_summary",
 ]
 
 if TYPE_CHECKING:  # pragma: no cover - for type checkers and editors only
     from .compute.survival_sim import simulate_assurance, simulate_trials
     from .design import TrialDesign
+    from .elicitation import (
+        Beta,
+        Gamma,
+        Interval,
+        PriorFit,
+        Quantile,
+        fit_prior,
+        linear_pool,
+        plot_fit,
+    )
     from .endpoints.binary import BetaRates, BinaryEndpoint
     from .endpoints.continuous import ContinuousEndpoint
     from .endpoints.counts import CountEndpoint, sample_size_for_rate_ratio, simulate_rejection_rate
     from .endpoints.survival import SurvivalEndpoint, events_needed
     from .errors import AssuranceInputError, AssuranceWarning, DesignFileError
+    from .evidence import (
+        Estimate,
+        arm_estimates,
+        estimate_from_events,
+        estimate_from_means,
+        meta_analytic_prior,
+        meta_analytic_prior_mcmc,
+        prior_from_estimate,
+        prior_predictive_summary,
+        robust_mixture,
+    )
     from .joint import evaluate_joint
     from .planning import SampleSizeAnswer, evaluate, solve_sample_size
     from .posterior_rules import AllOf, AnyOf, MinimumEstimate, PosteriorProbability

@@ -173,7 +173,7 @@ def run_plan(spec: Any, progress: _Progress | None = None) -> dict[str, Any]:
         progress.say("go / consider / stop probabilities")
         zones = evaluate_zones(design, spec.zones, sizes, draws=spec.draws, seed=spec.seed)
         attrs = dict(ds.attrs, zones=zones.attrs["zones"])
-        ds = xr.merge([ds, zones], combine_attrs="drop")
+        ds = xr.merge([ds, zones], combine_attrs="drop", compat="override", join="outer")
         ds.attrs.update(attrs)
     return {"dataset": ds, "answers": answers}
 

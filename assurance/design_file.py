@@ -98,6 +98,7 @@ class DesignFile:
     seed: int = 20260101
     source: str = ""
     zones: Any = None
+    prior_origin: Any = None
 
 
 def read_design_file(path: str | Path) -> DesignFile:
@@ -189,7 +190,8 @@ def parse_design(raw: dict[str, Any], *, source: str = "design") -> DesignFile:
     if prior_t.get("family") == "beta_rates" and "scale" not in prior_t and hasattr(
             endpoint, "scale"):
         prior_t = {**prior_t, "scale": endpoint.scale}  # the effect scale of the endpoint
-    design_prior = prior_from_table(prior_t, "design_prior", source, ratio=endpoint.ratio_scale)
+    design_prior, prior_origin = prior_with_origin(prior_t, "design_prior", source,
+                                                   ratio=endpoint.ratio_scale)
     sd_prior = None
     if "sd_prior" in raw:
         sd_prior = prior_from_table(_table(raw, "sd_prior", source), "sd_prior", source)
@@ -234,7 +236,7 @@ def parse_design(raw: dict[str, Any], *, source: str = "design") -> DesignFile:
     draws = _whole(mc_t.get("draws", 20_000), "monte_carlo.draws", source, 100)
     seed = _whole(mc_t.get("seed", 20260101), "monte_carlo.seed", source, 0)
     return DesignFile(design=design, sizes=sizes, targets=targets, draws=draws, seed=seed,
-                      source=source, zones=zones)
+                      source=source, zones=zones, prior_origin=prior_origin)
 
 
 def _rule_from_table(table: dict[str, Any], source: str) -> Any:
@@ -387,6 +389,8 @@ def prior_from_table(table: dict[str, Any], where: str, source: str = "design", 
         return _scipy_prior(table, where, source)
     if family in _EXTRA_FAMILIES:
         return _EXTRA_FAMILIES[family](table, where, source)
+    if family in _EVIDENCE_FAMILIES:
+        return prior_with_origin(table, where, source, ratio=ratio)[0]
     if family not in _FAMILIES:
         close = difflib.get_close_matches(str(family), _family_names(ratio), n=1)
         hint = f" Did you mean {close[0]!r}?" if close else ""
@@ -410,6 +414,121 @@ def prior_from_table(table: dict[str, Any], where: str, source: str = "design", 
 #: families added by endpoint modules: name -> reader(table, where, source)
 _EXTRA_FAMILIES: dict[str, Any] = {}
 
+#: priors built from evidence: family -> allowed keys (see prior_with_origin)
+_EVIDENCE_FAMILIES = {
+    "elicited": {"family", "fit", "quantiles", "intervals", "tolerance", "df"},
+    "earlier_trial": {"family", "estimate", "se", "ratio", "log_se", "power_weight",
+                      "shrinkage", "robust_weight", "vague_sd", "vague_mean"},
+    "meta_analysis": {"family", "estimates", "ses", "method"},
+}
+
+
+def prior_with_origin(table: dict[str, Any], where: str, source: str = "design", *,
+                      ratio: bool = False) -> tuple[Any, Any]:
+    """A prior built from evidence, with the object that explains it (for the memo).
+
+    Families: ``elicited`` (``fit`` = normal, t, lognormal, beta, gamma or best;
+    ``quantiles = [[value, probability], ...]``; optional ``intervals = [[lower, upper,
+    probability], ...]``, ``tolerance``, ``df``), ``earlier_trial`` (``estimate`` and ``se``
+    on the prior's scale, or for a ratio endpoint ``ratio`` and ``log_se``; discounting by
+    ``power_weight``, ``shrinkage``, ``robust_weight`` with ``vague_sd`` and ``vague_mean``),
+    ``meta_analysis`` (``estimates``, ``ses``, ``method`` = paule_mandel or
+    dersimonian_laird). Other families give ``(prior, None)``.
+
+    Examples
+    --------
+    >>> prior, fit = prior_with_origin({"family": "elicited", "fit": "normal",
+    ...                                 "quantiles": [[2.0, 0.5], [5.0, 0.9]]}, "design_prior")
+    >>> round(prior.mean(), 3), fit.family
+    (2.0, 'normal')
+    """
+    family = table.get("family")
+    if family not in _EVIDENCE_FAMILIES:
+        return prior_from_table(table, where, source, ratio=ratio), None
+    _known(table, _EVIDENCE_FAMILIES[family], where, source)
+    with _as_file_error(source, where):
+        if family == "elicited":
+            return _elicited(table, where, source, ratio)
+        if family == "earlier_trial":
+            return _earlier_trial(table, where, source, ratio)
+        return _meta_analysis(table, where, source)
+
+
+def _pairs(value: Any, key: str, width: int, source: str) -> list[tuple[float, ...]]:
+    if not isinstance(value, list) or not all(isinstance(v, list) and len(v) == width
+                                              for v in value):
+        raise DesignFileError(f"{source}: '{key}' must be a list of [{', '.join(['x'] * width)}]"
+                              f" lists. Got {value!r}.")
+    return [tuple(_number(x, key, source) for x in v) for v in value]
+
+
+def _elicited(table: dict[str, Any], where: str, source: str, ratio: bool) -> tuple[Any, Any]:
+    from .elicitation import Interval, Quantile, fit_prior
+
+    fit = table.get("fit", "normal")
+    if ratio and fit not in ("lognormal", "best"):
+        raise DesignFileError(f"{source}: '{where}.fit' must be 'lognormal' for a ratio "
+                              f"endpoint (its prior is on the log ratio). Got {fit!r}.")
+    if not ratio and fit == "lognormal":
+        raise DesignFileError(f"{source}: '{where}.fit' = 'lognormal' is for ratio endpoints; "
+                              "use normal, t, beta, gamma or best.")
+    statements: list[Any] = [Quantile(v, p) for v, p in
+                             _pairs(table.get("quantiles", []), f"{where}.quantiles", 2, source)]
+    statements += [Interval(lo, hi, p) for lo, hi, p in
+                   _pairs(table.get("intervals", []), f"{where}.intervals", 3, source)]
+    kwargs: dict[str, Any] = {}
+    if "df" in table:
+        kwargs["df"] = _number(table["df"], f"{where}.df", source)
+    if "tolerance" in table:
+        kwargs["tolerance"] = _number(table["tolerance"], f"{where}.tolerance", source)
+    if ratio and fit == "best":
+        fit = "lognormal"
+    result = fit_prior(statements, family=fit, **kwargs)
+    return result.prior, result
+
+
+def _earlier_trial(table: dict[str, Any], where: str, source: str, ratio: bool
+                   ) -> tuple[Any, Any]:
+    from .evidence import Estimate, prior_from_estimate
+
+    if ratio and "ratio" in table:
+        ratio_value = _number(table["ratio"], f"{where}.ratio", source)
+        if ratio_value <= 0:
+            raise DesignFileError(f"{source}: '{where}.ratio' must be > 0. Got {ratio_value!r}.")
+        value, se_key = math.log(ratio_value), "log_se"
+    else:
+        if "estimate" not in table:
+            raise DesignFileError(f"{source}: '{where}' (earlier_trial) needs 'estimate' and "
+                                  "'se'" + (" (or 'ratio' and 'log_se')" if ratio else "") + ".")
+        value, se_key = _number(table["estimate"], f"{where}.estimate", source), "se"
+    if se_key not in table:
+        raise DesignFileError(f"{source}: '{where}' (earlier_trial) needs '{se_key}'.")
+    se = _number(table[se_key], f"{where}.{se_key}", source)
+    options = {k: _number(table[k], f"{where}.{k}", source)
+               for k in ("power_weight", "shrinkage", "robust_weight", "vague_sd", "vague_mean")
+               if k in table}
+    estimate = Estimate(value, se, "log ratio" if ratio else "effect")
+    prior = prior_from_estimate(estimate, **options)
+    shown = {"estimate": value, "se": se, **options}
+    text = ("Design prior from an earlier trial: "
+            + ", ".join(f"{k} {v:g}" for k, v in shown.items())
+            + f" (on the {'log ratio' if ratio else 'effect'} scale); result {prior.describe()}.")
+    return prior, text
+
+
+def _meta_analysis(table: dict[str, Any], where: str, source: str) -> tuple[Any, Any]:
+    from .evidence import meta_analytic_prior
+
+    estimates = table.get("estimates")
+    ses = table.get("ses")
+    if not isinstance(estimates, list) or not isinstance(ses, list):
+        raise DesignFileError(f"{source}: '{where}' (meta_analysis) needs lists 'estimates' "
+                              "and 'ses' of equal length.")
+    result = meta_analytic_prior([_number(v, f"{where}.estimates", source) for v in estimates],
+                                 [_number(v, f"{where}.ses", source) for v in ses],
+                                 method=table.get("method", "paule_mandel"))
+    return result.prior, result
+
 
 def register_prior_family(name: str, reader: Any) -> None:
     """Let an endpoint module add a design-file prior family (e.g. beta priors per arm)."""
@@ -417,7 +536,7 @@ def register_prior_family(name: str, reader: Any) -> None:
 
 
 def _family_names(ratio: bool) -> list[str]:
-    names = [*_FAMILIES, "mixture", "scipy", *_EXTRA_FAMILIES]
+    names = [*_FAMILIES, "mixture", "scipy", *_EXTRA_FAMILIES, *_EVIDENCE_FAMILIES]
     return sorted(names + (["log_normal"] if ratio else []))
 
 

@@ -67,7 +67,14 @@ def write_outputs(out: str | Path, spec: Any, ds: Any, answers: Sequence[Any], *
             fig = draw().figure
             png, _svg = save_figure(fig, figures / name)
             rendered[name] = png.read_bytes()
-        write_memo(spec.design, ds, answers, tmp / "memo.html", rendered=rendered)
+        origin = getattr(spec, "prior_origin", None)
+        if type(origin).__name__ == "PriorFit":
+            from .elicitation import plot_fit
+
+            png, _svg = save_figure(plot_fit(origin).figure, figures / "prior_fit")
+            rendered["prior_fit"] = png.read_bytes()
+        write_memo(spec.design, ds, answers, tmp / "memo.html", rendered=rendered,
+                   prior_origin=origin)
         os.chmod(tmp, 0o755)
         _swap_into_place(tmp, out)
     except BaseException:

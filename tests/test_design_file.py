@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import math
 import re
 import textwrap
 import tomllib
@@ -122,3 +123,78 @@ def test_conditional_target_needs_relevant_effect():
     del raw["effect"]["relevant"]
     with pytest.raises(DesignFileError, match="effect.relevant"):
         parse_design(raw)
+
+
+# ---- priors built from evidence in design files -----------------------------------------
+def test_elicited_prior_table_matches_the_exact_normal():
+    # two quantiles determine a normal exactly (common practice): median 2, 90th centile 5
+    prior, fit = design_file.prior_with_origin(
+        {"family": "elicited", "fit": "normal", "quantiles": [[2.0, 0.5], [5.0, 0.9]]},
+        "design_prior")
+    assert prior.mean() == pytest.approx(2.0, abs=1e-9)
+    assert prior.sd() == pytest.approx(3.0 / stats.norm.ppf(0.9), rel=1e-9)
+    assert "elicited" in fit.report()
+
+
+def test_earlier_trial_prior_table_applies_the_discounts():
+    # shrink the estimate, divide its information by the power weight, add a vague part
+    # (Kirby et al. 2012; Ibrahim & Chen 2000; Schmidli et al. 2014): computed directly here
+    prior, text = design_file.prior_with_origin(
+        {"family": "earlier_trial", "estimate": 22.0, "se": 9.0, "shrinkage": 0.8,
+         "power_weight": 0.5, "robust_weight": 0.8, "vague_sd": 40.0}, "design_prior")
+    assert isinstance(prior, priors.Mixture)
+    informative = [c for c in prior.components if c.sigma < 20][0]
+    assert informative.mu == pytest.approx(17.6, abs=1e-12)
+    assert informative.sigma == pytest.approx(9.0 / math.sqrt(0.5), rel=1e-12)
+    assert prior.weights == pytest.approx([0.8, 0.2])
+    assert "earlier trial" in text
+
+
+def test_earlier_trial_ratio_form_is_on_the_log_scale():
+    prior, _ = design_file.prior_with_origin(
+        {"family": "earlier_trial", "ratio": 0.75, "log_se": 0.15}, "design_prior", ratio=True)
+    assert prior.mean() == pytest.approx(math.log(0.75), abs=1e-12)
+    with pytest.raises(DesignFileError, match="'lognormal'"):
+        design_file.prior_with_origin({"family": "elicited", "fit": "normal",
+                                       "quantiles": [[0.8, 0.5], [1.0, 0.9]]},
+                                      "design_prior", ratio=True)
+
+
+def test_meta_analysis_prior_table_uses_the_between_study_variance():
+    # eight schools (Rubin 1981; /work/shared/references.md): DerSimonian-Laird tau^2 = 0,
+    # so the predictive prior is the fixed-effect estimate 7.69 with SE 4.07 (printed to 2
+    # decimals; allow 0.01)
+    y = [28.0, 8.0, -3.0, 7.0, -1.0, 1.0, 18.0, 12.0]
+    s = [15.0, 10.0, 16.0, 11.0, 9.0, 11.0, 10.0, 18.0]
+    prior, result = design_file.prior_with_origin(
+        {"family": "meta_analysis", "estimates": y, "ses": s, "method": "dersimonian_laird"},
+        "design_prior")
+    assert prior.mean() == pytest.approx(7.69, abs=0.01)
+    assert prior.sd() == pytest.approx(4.07, abs=0.01)
+    assert result.tau == pytest.approx(0.0, abs=1e-12)
+
+
+def test_phase2_case_study_writes_the_origin_into_the_memo(tmp_path):
+    from assurance.cli import main
+
+    out = tmp_path / "plan"
+    assert main(["plan", str(ROOT / "case_studies" / "phase2_to_phase3" / "design.toml"),
+                 "--out", str(out), "--quiet"]) == 0
+    memo = (out / "memo.html").read_text()
+    assert "Where the design prior comes from" in memo
+    assert "Go, consider or stop" in memo
+
+
+def test_elicited_design_writes_the_fit_figure(tmp_path):
+    from assurance.cli import main
+
+    text = _module_example().replace(
+        'family = "normal"\nmean = 4.0\nsd = 2.5',
+        'family = "elicited"\nfit = "normal"\nquantiles = [[4.0, 0.5], [7.0, 0.9]]')
+    assert "elicited" in text
+    path = tmp_path / "d.toml"
+    path.write_text(text)
+    out = tmp_path / "plan"
+    assert main(["plan", str(path), "--out", str(out), "--quiet"]) == 0
+    assert (out / "figures" / "prior_fit.png").stat().st_size > 0
+    assert "elicited judgements" in (out / "memo.html").read_text()

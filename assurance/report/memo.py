@@ -453,6 +453,28 @@ def _figures(design: TrialDesign, ds: Any, answers: Sequence[SampleSizeAnswer],
     return "".join(parts)
 
 
+def _origin_section(origin: Any, rendered: Mapping[str, bytes] | None) -> str:
+    """Where the design prior comes from: a fit to judgements, an earlier trial, a meta-analysis."""
+    if origin is None:
+        return ""
+    text = origin if isinstance(origin, str) else origin.report()
+    figure = ""
+    if type(origin).__name__ == "PriorFit":
+        from .figures import figure_bytes
+
+        png = (rendered or {}).get("prior_fit")
+        if png is None:
+            from ..elicitation import plot_fit
+
+            png = figure_bytes(plot_fit(origin).figure, "png")
+        data = base64.b64encode(png).decode("ascii")
+        figure = (f'<figure><img alt="Fitted prior against the elicited judgements" '
+                  f'src="data:image/png;base64,{data}"><figcaption>Elicited judgements and '
+                  "the fitted distribution function.</figcaption></figure>")
+    return (f"<section><h2>Where the design prior comes from</h2><pre>{_e(text)}</pre>"
+            f"{figure}</section>")
+
+
 def _zones_section(ds: Any, answers: Sequence[SampleSizeAnswer]) -> str:
     """Go / consider / stop probabilities at the candidate sizes, when the results have them."""
     if "prob_go" not in ds:
@@ -502,6 +524,7 @@ def memo_html(
     date: _dt.date | str | None = None,
     figures: bool = True,
     rendered: Mapping[str, bytes] | None = None,
+    prior_origin: Any = None,
 ) -> str:
     """The decision memo as one HTML string (see :func:`write_memo`).
 
@@ -512,6 +535,9 @@ def memo_html(
     rendered
         PNG bytes of figures already drawn, keyed by name (``"power_and_assurance"``,
         ``"prior"``), so a caller that saved them does not draw them twice.
+    prior_origin
+        What the design prior was built from: a fit to elicited judgements
+        (:class:`~assurance.elicitation.PriorFit`), a meta-analytic prior, or a sentence.
 
     Returns
     -------
@@ -560,6 +586,7 @@ def memo_html(
         f"<section><h2>Candidate sample sizes</h2>{_candidates(design, ds, answers)}</section>"
         f"<section><h2>Sample sizes for the targets</h2>{_targets(design, answers)}</section>"
         f"{_zones_section(ds, answers)}"
+        f"{_origin_section(prior_origin, rendered)}"
         f"{figure_block}"
         f'<section class="cautions"><h2>Cautions</h2><ul>{caution_items}</ul></section>'
         '<section class="provenance"><h2>Provenance</h2>'
@@ -588,6 +615,7 @@ def write_memo(
     date: _dt.date | str | None = None,
     figures: bool = True,
     rendered: Mapping[str, bytes] | None = None,
+    prior_origin: Any = None,
 ) -> Path:
     """Write the decision memo for a design as one self-contained HTML file.
 
@@ -618,8 +646,11 @@ def write_memo(
     figures
         Embed the two figures (as PNG data inside the file).
     rendered
-        PNG bytes of figures already drawn, keyed ``"power_and_assurance"`` and
-        ``"prior"``; the others are drawn here.
+        PNG bytes of figures already drawn, keyed ``"power_and_assurance"``,
+        ``"prior"`` and ``"prior_fit"``; the others are drawn here.
+    prior_origin
+        What the design prior was built from (a fit to elicited judgements, a meta-analytic
+        prior, or a sentence); shown with its report and, for a fit, its figure.
 
     Returns
     -------
@@ -648,5 +679,5 @@ def write_memo(
     """
     target = check_target(path, "write_memo", overwrite)
     page = memo_html(design, ds, answers, cautions=cautions, versions=versions, date=date,
-                     figures=figures, rendered=rendered)
+                     figures=figures, rendered=rendered, prior_origin=prior_origin)
     return write_atomic(target, page.encode("utf-8"), overwrite=overwrite, owner="write_memo")
