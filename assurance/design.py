@@ -91,10 +91,8 @@ class TrialDesign:
                 f"Got {self.rule!r} instead."
             )
         if self.analysis_prior is not None:
-            from .posterior_rules import _check_analysis_prior
-
-            object.__setattr__(self, "analysis_prior", _check_analysis_prior(
-                as_prior(self.analysis_prior, "analysis_prior", owner), owner))
+            object.__setattr__(self, "analysis_prior", self.endpoint.check_analysis_prior(
+                as_prior(self.analysis_prior, "analysis_prior", owner)))
         if self.endpoint.ratio_scale:  # ratios must be positive before taking logs
             for name, value in (("assumed_effect", self.assumed_effect),
                                 ("relevant_effect", self.relevant_effect),

@@ -130,7 +130,10 @@ class PosteriorProbability:
                                                      high=1, low_open=True, high_open=True))
         if self.beyond is not None:
             object.__setattr__(self, "beyond", check_real(self.beyond, "beyond", owner))
-        _check_analysis_prior(self.analysis_prior, owner)
+        if self.analysis_prior is not None and not isinstance(self.analysis_prior, Prior):
+            raise AssuranceInputError(
+                f"The 'analysis_prior' parameter of {owner} must be a prior or None. "
+                f"Got {self.analysis_prior!r} instead.")
 
     # -- interface shared with Significance ------------------------------------------------
     @property
@@ -156,6 +159,7 @@ class PosteriorProbability:
         prior = self.analysis_prior
         if prior is None:
             return b + crit * se
+        _check_analysis_prior(prior, "PosteriorProbability.threshold")
         parts = prior.parts()
         if len(parts) == 1 and isinstance(parts[0][1], Normal):
             m0, v0 = parts[0][1].mu, parts[0][1].sigma ** 2

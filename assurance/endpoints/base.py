@@ -150,6 +150,15 @@ class Endpoint(TwoArmSizing, ABC):
         """
         return rule.on_benefit_scale(self, analysis_prior)
 
+    def check_analysis_prior(self, prior: Prior) -> Prior:
+        """Accept an analysis prior this endpoint can use for posterior probabilities.
+
+        Under the normal approximation: a Normal, or a mixture of Normal and PointMass parts.
+        """
+        from ..posterior_rules import _check_analysis_prior
+
+        return _check_analysis_prior(prior, "TrialDesign")
+
     @abstractmethod
     def calculator(self, prior_benefit: Prior, rule_benefit: Significance, *, draws: int,
                    seed: int | None, nuisance: Prior | None = None) -> SuccessCalculator:
