@@ -9,7 +9,11 @@ Measures, in one run on this machine:
 3. ``assurance --help`` wall time (it must import nothing heavy);
 4. the whole ``assurance plan`` command on the shipped closed-form case study, memo and
    figures included;
-5. a Monte Carlo design (prior on sigma, 20,000 draws) over 50 sizes.
+5. a Monte Carlo design (prior on sigma, 20,000 draws) over 50 sizes;
+6. exact binary assurance (beta priors per arm, pooled z and Fisher), 1:1, up to 500 per arm
+   over 50 sizes (target under 2 s);
+7. time-to-event closed form over 100 sizes (target under 10 ms), and the patient-level
+   log-rank simulation in trials per second at several n.
 
 Targets (from the issue that introduced them): (1) under 2 ms, at least 5 times faster than
 (2); (3) under 0.3 s; (4) under 3 s.
@@ -92,6 +96,24 @@ def main() -> None:
     sizes = np.arange(40, 2040, 40)
     mc = best_of(lambda: asr.evaluate(design, sizes, draws=20_000), repeat=2, number=1)
     print(f"5.   Monte Carlo (sigma prior, 20,000 draws, 50 sizes): {mc:.2f} s")
+
+    sizes = np.linspace(20, 1000, 50).round().astype(int) // 2 * 2
+    for test in ("z", "fisher_exact"):
+        design = asr.TrialDesign(asr.BinaryEndpoint(0.3, test=test),
+                                 asr.BetaRates((30, 70), (45, 55)))
+        t = best_of(lambda d=design: asr.evaluate(d, sizes), repeat=2, number=1)
+        print(f"6.   exact binary, {test}: evaluate over 50 sizes up to 500 per arm {t:.2f} s")
+
+    endpoint = asr.SurvivalEndpoint(assumed_hazard_ratio=0.75, control_median=12.0,
+                                    accrual_time=24.0, follow_up_time=12.0)
+    design = asr.TrialDesign(endpoint, asr.Normal(np.log(0.8), 0.15))
+    grid = np.arange(100, 2100, 20)
+    asr.evaluate(design, grid)
+    t = best_of(lambda: asr.evaluate(design, grid), repeat=3, number=5)
+    print(f"7.   time to event, closed form, 100 sizes: {t * 1e3:.1f} ms (evaluate)")
+    for n in (200, 1000, 4000):
+        res = asr.simulate_trials(endpoint, 0.75, n // 2, n // 2, trials=2000, seed=1)
+        print(f"     log-rank simulation, n = {n}: {res.trials_per_second:,.0f} trials/s")
 
 
 if __name__ == "__main__":
