@@ -16,7 +16,11 @@ Two ways to say what is believed about the rates:
 * any other prior on the effect, with the control rate fixed at its planning value or
   given a beta prior (``control_prior``): assurance integrates over both by quadrature.
 
-See :mod:`assurance.compute.binary_exact` for the tests and the exact enumeration.
+The final analysis is a test (:class:`~assurance.Significance`) or a posterior
+probability (:class:`~assurance.PosteriorProbability`) under beta analysis priors on the
+rates, given as a :class:`BetaRates` ``analysis_prior`` (None: uniform beta(1, 1) priors).
+See :mod:`assurance.compute.binary_exact` for the tests, the posterior rule and the exact
+enumeration.
 """
 
 from __future__ import annotations
@@ -33,8 +37,10 @@ from scipy import optimize, special
 
 from .._validation import check_choice, check_int, check_real
 from ..compute.binary_exact import (
+    POSTERIOR_NODES,
     SCALES,
     TESTS,
+    PosteriorSpec,
     RateArm,
     TestSpec,
     beta_binomial_pmf,
@@ -52,6 +58,7 @@ from ..compute.binary_exact import (
 )
 from ..compute.normal_outcome import SuccessProbabilities
 from ..errors import AssuranceInputError, AssuranceWarning, DesignFileError
+from ..posterior_rules import PosteriorProbability
 from ..priors import PointMass, Prior
 from ..rules import Significance
 from .base import Endpoint, SuccessCalculator
@@ -379,6 +386,28 @@ def beta_rates_from_table(table: dict[str, Any], where: str = "design_prior",
                          own if own is not None else (scale or "difference"))
 
 
+def _check_analysis_arms(ep: BinaryEndpoint, rates: BetaRates, owner: str) -> None:
+    """The arms of a BetaRates analysis prior must suit the endpoint's layout."""
+    if ep.layout == "single_arm":
+        arm = rates.control_arm
+        if not (arm.fixed and abs(arm.value - ep.control_rate) <= 1e-12):
+            raise AssuranceInputError(
+                f"The 'analysis_prior' parameter of {owner} must fix the control rate at the "
+                f"reference rate {ep.control_rate:g} for a single arm, as in BetaRates("
+                f"control={ep.control_rate:g}, treatment=(a, b)). Got control="
+                f"{rates.control!r} instead.")
+        if rates.treatment_arm.fixed:
+            raise AssuranceInputError(
+                f"The 'analysis_prior' parameter of {owner} must give the treatment rate a "
+                "beta prior (a, b): the analysis learns it from the data. Got treatment="
+                f"{rates.treatment!r} instead.")
+    elif rates.control_arm.fixed and rates.treatment_arm.fixed:
+        raise AssuranceInputError(
+            f"The 'analysis_prior' parameter of {owner} must give at least one arm a beta "
+            "prior (a, b); with both rates fixed the data could not change the posterior. Got "
+            f"control={rates.control!r}, treatment={rates.treatment!r} instead.")
+
+
 # ------------------------------------------------------------------------------------------
 # the endpoint
 # ------------------------------------------------------------------------------------------
@@ -462,6 +491,27 @@ class BinaryEndpoint(Endpoint):
     with :func:`~assurance.compute.binary_exact.normal_power` at each node (Fleiss, Tytun &
     Ury 1980); Fisher's test is approximated by the continuity-corrected z test and the
     exact binomial test by the corrected score test.
+
+    **Posterior-probability rules** (:class:`~assurance.PosteriorProbability`): the final
+    analysis updates independent beta priors on the rates -- the design's
+    ``analysis_prior``, a :class:`BetaRates` (for a single arm with the control rate fixed at
+    the reference rate); None means uniform beta(1, 1) priors on each arm's rate -- and the
+    trial succeeds iff ``P(benefit > beyond | x_t, x_c) >= level``. The benefit is the
+    difference, log risk ratio or log odds ratio (the endpoint's scale) times the sign, so
+    the event is ``p_t > h(p_c)`` (``p_t < h(p_c)`` when lower is better) with ``h(q)`` the
+    treatment rate at the boundary effect. With beta posteriors ``Beta(a + x, b + n - x)``
+    per arm, ``P = int f_c(q | x_c) (1 - I_{h(q)}(a_t + x_t, b_t + n_t - x_t)) dq`` (``I``
+    the regularised incomplete beta function), integrated over whichever posterior is
+    narrower by Gauss-Legendre on its probability scale (closed form for a single arm). The
+    probability rises with ``x_t`` and falls with ``x_c``, so the region is a staircase
+    found by bisection over ``x_t``, with brackets from neighbouring ``x_c`` (about two
+    tables evaluated per ``x_c``). Power, assurance and the decomposition then sum over the
+    region exactly as for a test. With the uniform prior and level ``1 - alpha`` the type I
+    error at ``p_t = p_c`` is close to, but not exactly, ``alpha`` (no exact test is being
+    inverted). Beyond ``exact_up_to`` the posterior on the effect scale is taken as normal,
+    with the beta posteriors' moments at the expected counts
+    (:func:`~assurance.compute.binary_exact.posterior_normal_power`). The endpoint's
+    ``test`` is not used with a posterior rule.
 
     **Non-inferiority** margins (``Significance(margin=...)``) are supported for two arms on
     the difference scale with the z test (variance at the Farrington-Manning restricted
@@ -600,7 +650,8 @@ class BinaryEndpoint(Endpoint):
                 else list(self.control_prior),
                 "exact_up_to": self.exact_up_to}
 
-    def calculator(self, prior_benefit: Prior, rule_benefit: Significance, *, draws: int,
+    def calculator(self, prior_benefit: Prior,
+                   rule_benefit: Significance | PosteriorProbability, *, draws: int,
                    seed: int | None, nuisance: Prior | None = None) -> SuccessCalculator:
         """Exact (enumeration) calculator; ``draws`` and ``seed`` are not used.
 
@@ -612,12 +663,42 @@ class BinaryEndpoint(Endpoint):
                 "The 'nuisance' parameter of BinaryEndpoint.calculator must be None: give a "
                 "beta prior on the control rate as BinaryEndpoint(control_prior=(a, b)) or "
                 f"use a BetaRates design prior. Got {nuisance!r} instead.")
-        if not isinstance(rule_benefit, Significance):
+        if not isinstance(rule_benefit, Significance | PosteriorProbability):
             raise AssuranceInputError(
                 "The 'rule' of a design with a BinaryEndpoint must be a Significance rule (the "
-                "exact tests decide success). Got "
+                "exact tests decide success) or a PosteriorProbability rule (beta analysis "
+                "priors on the rates). Got "
                 f"{getattr(rule_benefit, 'describe', lambda: repr(rule_benefit))()!r} instead.")
         return _BinaryCalculator(self, prior_benefit, rule_benefit)
+
+    def check_analysis_prior(self, prior: Prior) -> Prior:
+        """Accept an analysis prior for a :class:`~assurance.PosteriorProbability` rule.
+
+        A :class:`BetaRates` prior: independent beta priors on the rates the final analysis
+        updates (for a single arm the control rate fixed at the reference rate). Its effect
+        scale is taken from the endpoint, since the beta priors on the rates do not depend
+        on it. A design without an analysis prior (None) analyses with uniform beta(1, 1)
+        priors on each arm's rate. Normal priors on the effect are accepted for a
+        :class:`~assurance.Significance` rule, which does not use them, and refused by the
+        calculator with a posterior-probability rule.
+
+        Examples
+        --------
+        >>> ep = BinaryEndpoint(0.3)
+        >>> ep.check_analysis_prior(BetaRates((1, 1), (1, 1))).describe()
+        'beta_rates(control=[1.0, 1.0], treatment=[1.0, 1.0], scale=difference)'
+        """
+        owner = "TrialDesign"
+        if isinstance(prior, BetaRates):
+            rates = BetaRates(prior.control, prior.treatment, self.scale)
+            _check_analysis_arms(self, rates, owner)
+            return rates
+        if any(isinstance(part, BetaRates) for _, part in prior.parts()):
+            raise AssuranceInputError(
+                f"The 'analysis_prior' parameter of {owner} must be a single BetaRates prior "
+                "(one beta prior per arm) with a BinaryEndpoint; mixtures of beta priors are "
+                f"not supported for the analysis. Got {prior.describe()} instead.")
+        return super().check_analysis_prior(prior)
 
     def exact_at(self, n_t: int, n_c: int) -> bool:
         """Whether arm sizes ``(n_t, n_c)`` are enumerated exactly (else normal approx.)."""
@@ -734,7 +815,8 @@ class _BinaryCalculator(SuccessCalculator):
 
     monte_carlo = False
 
-    def __init__(self, endpoint: BinaryEndpoint, prior: Prior, rule: Significance):
+    def __init__(self, endpoint: BinaryEndpoint, prior: Prior,
+                 rule: Significance | PosteriorProbability):
         self.ep = endpoint
         self.sign = endpoint.sign
         self.spec = self._test_spec(rule)
@@ -757,7 +839,10 @@ class _BinaryCalculator(SuccessCalculator):
         self.effect_spread = 0.0 if self.beta_rates else self._effect_spread()
 
     # ---- set-up ---------------------------------------------------------------------------
-    def _test_spec(self, rule: Significance) -> TestSpec:
+    def _test_spec(self, rule: Significance | PosteriorProbability
+                   ) -> TestSpec | PosteriorSpec:
+        if isinstance(rule, PosteriorProbability):
+            return self._posterior_spec(rule)
         ep = self.ep
         margin = float(rule.margin)
         if margin > 0 and ep.layout == "two_arm":
@@ -776,6 +861,50 @@ class _BinaryCalculator(SuccessCalculator):
             raise AssuranceInputError(
                 f"The margin {margin:g} moves the reference rate {ep.control_rate:g} to "
                 f"{spec.null_rate:.4g}, outside (0, 1). Use a smaller margin.")
+        return spec
+
+    def _posterior_spec(self, rule: PosteriorProbability) -> PosteriorSpec:
+        """The posterior-probability rule (benefit scale) as a "test" for the enumeration."""
+        ep = self.ep
+        prior = rule.analysis_prior
+        if prior is None:  # documented default: uniform beta(1, 1) priors on the rates
+            control = (RateArm.beta(1.0, 1.0) if ep.layout == "two_arm"
+                       else RateArm.fixed_at(ep.control_rate))
+            prior = BetaRates(control.describe(), (1.0, 1.0), ep.scale,
+                              _negated=self.sign < 0)
+        if not isinstance(prior, BetaRates):
+            raise AssuranceInputError(
+                "The 'analysis_prior' of a design with a BinaryEndpoint and a "
+                "PosteriorProbability rule must be None (uniform beta(1, 1) priors on each "
+                "arm's rate) or a BetaRates prior (one beta prior per arm); the posterior is "
+                f"computed exactly from beta posteriors. Got {prior.describe()} instead.")
+        if prior.negated_copy != (self.sign < 0):
+            raise AssuranceInputError(
+                "The BetaRates analysis prior passed to the calculator must be on the benefit "
+                "scale (negated exactly when lower rates are better), as "
+                "PosteriorProbability.on_benefit_scale gives it.")
+        rates = BetaRates(prior.control, prior.treatment, ep.scale)
+        _check_analysis_arms(ep, rates, "TrialDesign")
+        if ep.continuity_correction:
+            raise AssuranceInputError(
+                "The 'continuity_correction' parameter of BinaryEndpoint must be false with a "
+                "PosteriorProbability rule (the posterior is exact; the correction belongs to "
+                "the z and chi-square tests). Got True instead.")
+        spec = PosteriorSpec(level=rule.level, beyond=float(rule.null_value), sign=self.sign,
+                             scale=ep.scale, two_arm=ep.layout == "two_arm",
+                             treatment=rates.treatment_arm, control=rates.control_arm)
+        natural = ep.from_benefit(spec.beyond)
+        if ep.scale == "difference" and not -1.0 < spec.boundary < 1.0:
+            raise AssuranceInputError(
+                f"The 'beyond' parameter of PosteriorProbability must be a difference in "
+                f"rates strictly between -1 and 1. Got {natural:g} instead.")
+        if not spec.two_arm:
+            rate = float(treatment_rate(spec.boundary, ep.control_rate, ep.scale))
+            if not 0.0 < rate < 1.0:
+                raise AssuranceInputError(
+                    f"The 'beyond' parameter of PosteriorProbability ({natural:g}) moves the "
+                    f"reference rate {ep.control_rate:g} to {rate:.4g}, outside (0, 1): no "
+                    "outcome could ever (or always would) succeed. Use a smaller value.")
         return spec
 
     def _check_beta_parts(self) -> None:
@@ -1054,8 +1183,11 @@ class _BinaryCalculator(SuccessCalculator):
 
     def method(self) -> str:
         ep = self.ep
-        test = _TEST_TEXT[ep.test] + (" with continuity correction"
-                                      if ep.continuity_correction else "")
+        if isinstance(self.spec, PosteriorSpec):
+            test = _posterior_text(self.spec)
+        else:
+            test = _TEST_TEXT[ep.test] + (" with continuity correction"
+                                          if ep.continuity_correction else "")
         limit = ("normal approximation throughout" if ep.exact_up_to == 0 else
                  f"exact enumeration of all outcomes while the smaller arm has at most "
                  f"{ep.exact_up_to} patients, normal approximation beyond")
@@ -1071,6 +1203,19 @@ class _BinaryCalculator(SuccessCalculator):
                 prior += (f"; a share {self.dropped:.2g} of the prior gives rates outside "
                           "[0, 1] and is dropped, the rest renormalised")
         return f"{test}; {limit}; {prior}"
+
+
+def _posterior_text(spec: PosteriorSpec) -> str:
+    def arm(a: RateArm) -> str:
+        return f"fixed at {a.value:g}" if a.fixed else f"beta({a.a:g}, {a.b:g})"
+
+    priors = (f"treatment rate {arm(spec.treatment)}, control rate {arm(spec.control)}"
+              if spec.two_arm else f"treatment rate {arm(spec.treatment)}")
+    return (f"posterior probability rule (level {spec.level:g}) with beta analysis priors "
+            f"({priors}): success regions from the beta posteriors, each probability by "
+            f"{POSTERIOR_NODES}-node Gauss-Legendre quadrature over the narrower posterior "
+            "(closed form for a single arm), the boundary found by bisection over the "
+            "responders (normal approximation: posterior moments on the effect scale)")
 
 
 def _register_design_file_family() -> None:
