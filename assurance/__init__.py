@@ -76,6 +76,10 @@ _PUBLIC = {
     "meta_analytic_prior": "evidence",
     "meta_analytic_prior_mcmc": "evidence",
     "prior_predictive_summary": "evidence",
+    "interval_width_curve": "precision",
+    "solve_precision_n": "precision",
+    "PrecisionPlan": "precision_design",
+    "precision_model_for": "precision_design",
 }
 
 __all__ = [
@@ -133,6 +137,10 @@ __all__ = [
     "meta_analytic_prior",
     "meta_analytic_prior_mcmc",
     "prior_predictive_summary",
+    "interval_width_curve",
+    "solve_precision_n",
+    "PrecisionPlan",
+    "precision_model_for",
 ]
 
 if TYPE_CHECKING:  # pragma: no cover - for type checkers and editors only
@@ -167,6 +175,8 @@ if TYPE_CHECKING:  # pragma: no cover - for type checkers and editors only
     from .joint import evaluate_joint
     from .planning import SampleSizeAnswer, evaluate, solve_sample_size
     from .posterior_rules import AllOf, AnyOf, MinimumEstimate, PosteriorProbability
+    from .precision import interval_width_curve, solve_precision_n
+    from .precision_design import PrecisionPlan, precision_model_for
     from .priors import (
         FromScipy,
         GammaPrecision,

@@ -135,7 +135,8 @@ def _plan(args: argparse.Namespace) -> int:
     from .outputs import write_outputs
 
     progress.say("writing results, figures and memo")
-    write_outputs(out, spec, result["dataset"], result["answers"], overwrite=args.overwrite)
+    write_outputs(out, spec, result["dataset"], result["answers"], overwrite=args.overwrite,
+                  precision=result["precision"])
     if not args.quiet:
         from .report import memo_text_summary
 
@@ -175,7 +176,30 @@ def run_plan(spec: Any, progress: _Progress | None = None) -> dict[str, Any]:
         attrs = dict(ds.attrs, zones=zones.attrs["zones"])
         ds = xr.merge([ds, zones], combine_attrs="drop", compat="override", join="outer")
         ds.attrs.update(attrs)
-    return {"dataset": ds, "answers": answers}
+    precision_answers: list[Any] = []
+    plan = getattr(spec, "precision", None)
+    if plan is not None:
+        from .precision import interval_width_curve, solve_precision_n
+        from .precision_design import precision_model_for
+
+        progress.say("posterior interval width against n")
+        model = precision_model_for(design)
+        common = {"coverage": plan.coverage, "interval": plan.interval,
+                  "likely_share": plan.likely_share, "seed": spec.seed}
+        widths = interval_width_curve(model, ds.n.values, length=plan.length, **common)
+        widths = widths.drop_vars(["n_treatment", "n_control"])
+        attrs = dict(ds.attrs, precision=f"{plan.coverage:g} {plan.interval.replace('_', '-')}"
+                     f" intervals, target length {plan.length:g}; {widths.attrs['method']}")
+        ds = ds.assign({name: widths[name] for name in widths.data_vars})
+        ds.attrs.update(attrs)
+        for criterion in plan.criteria:
+            progress.say(f"solving n for precision ({criterion})")
+            try:
+                precision_answers.append(solve_precision_n(model, length=plan.length,
+                                                           criterion=criterion, **common))
+            except ValueError as exc:  # e.g. WOC unavailable by simulation: say so
+                precision_answers.append(str(exc))
+    return {"dataset": ds, "answers": answers, "precision": precision_answers}
 
 
 def _default_sizes(spec: Any, answers: list[Any]) -> Any:

@@ -62,12 +62,13 @@ from .errors import AssuranceInputError, DesignFileError
 __all__ = ["DesignFile", "read_design_file", "parse_design", "prior_from_table"]
 
 _TOP = {"title", "endpoint", "success", "effect", "design_prior", "sd_prior", "sizes",
-        "analysis_prior", "zones",
+        "analysis_prior", "zones", "precision",
         "targets", "monte_carlo"}
 _ENDPOINT = {"type", "sd", "layout", "allocation", "analysis", "better"}
 _SUCCESS = {"rule", "alpha", "sided", "margin", "min_estimate", "level", "beyond"}
 _SUCCESS_BY_RULE = {"significance": {"rule", "alpha", "sided", "margin", "min_estimate"},
                     "posterior_probability": {"rule", "level", "beyond", "min_estimate"}}
+_PRECISION = {"length", "coverage", "interval", "criteria", "likely_share"}
 _ZONES = {"min_acceptable", "target", "go_min_prob", "go_target_prob", "stop_target_prob"}
 _EFFECT = {"assumed", "relevant", "also_power_at"}
 _SIZES = {"from", "to", "step", "list"}
@@ -99,6 +100,7 @@ class DesignFile:
     source: str = ""
     zones: Any = None
     prior_origin: Any = None
+    precision: Any = None
 
 
 def read_design_file(path: str | Path) -> DesignFile:
@@ -173,6 +175,24 @@ def parse_design(raw: dict[str, Any], *, source: str = "design") -> DesignFile:
     if "analysis_prior" in raw:
         analysis_prior = prior_from_table(_table(raw, "analysis_prior", source),
                                           "analysis_prior", source, ratio=endpoint.ratio_scale)
+    precision = None
+    if "precision" in raw:
+        from .precision_design import PrecisionPlan
+
+        precision_t = _table(raw, "precision", source)
+        _known(precision_t, _PRECISION, "precision", source)
+        if "length" not in precision_t:
+            raise DesignFileError(f"{source}: [precision] needs 'length' (the target width of "
+                                  "the posterior interval).")
+        with _as_file_error(source, "precision"):
+            options = dict(precision_t)
+            if "criteria" in options:
+                if not isinstance(options["criteria"], list):
+                    raise AssuranceInputError(
+                        "The 'criteria' key must be a list such as [\"ALC\", \"WOC\"]. "
+                        f"Got {options['criteria']!r} instead.")
+                options["criteria"] = tuple(options["criteria"])
+            precision = PrecisionPlan(**options)
     zones = None
     if "zones" in raw:
         from .zones import GoConsiderStop
@@ -236,7 +256,8 @@ def parse_design(raw: dict[str, Any], *, source: str = "design") -> DesignFile:
     draws = _whole(mc_t.get("draws", 20_000), "monte_carlo.draws", source, 100)
     seed = _whole(mc_t.get("seed", 20260101), "monte_carlo.seed", source, 0)
     return DesignFile(design=design, sizes=sizes, targets=targets, draws=draws, seed=seed,
-                      source=source, zones=zones, prior_origin=prior_origin)
+                      source=source, zones=zones, prior_origin=prior_origin,
+                      precision=precision)
 
 
 def _rule_from_table(table: dict[str, Any], source: str) -> Any:

@@ -22,7 +22,7 @@ __all__ = ["write_outputs", "write_results_csv", "write_sample_sizes_csv"]
 
 
 def write_outputs(out: str | Path, spec: Any, ds: Any, answers: Sequence[Any], *,
-                  overwrite: bool = False) -> Path:
+                  overwrite: bool = False, precision: Sequence[Any] = ()) -> Path:
     """Write results (CSV, netCDF), sample sizes, figures and memo into folder ``out``.
 
     Parameters
@@ -35,6 +35,9 @@ def write_outputs(out: str | Path, spec: Any, ds: Any, answers: Sequence[Any], *
         Results of :func:`~assurance.evaluate`.
     answers
         :class:`~assurance.SampleSizeAnswer` for each target.
+    precision
+        :class:`~assurance.precision.PrecisionAnswer` for each precision criterion (or the
+        reason a criterion is unavailable).
     overwrite
         Replace an existing folder.
 
@@ -73,8 +76,14 @@ def write_outputs(out: str | Path, spec: Any, ds: Any, answers: Sequence[Any], *
 
             png, _svg = save_figure(plot_fit(origin).figure, figures / "prior_fit")
             rendered["prior_fit"] = png.read_bytes()
+        if "width_mean" in ds:
+            from .report.figures import plot_interval_width
+
+            png, _svg = save_figure(plot_interval_width(ds, precision).figure,
+                                    figures / "interval_width")
+            rendered["interval_width"] = png.read_bytes()
         write_memo(spec.design, ds, answers, tmp / "memo.html", rendered=rendered,
-                   prior_origin=origin)
+                   prior_origin=origin, precision=precision)
         os.chmod(tmp, 0o755)
         _swap_into_place(tmp, out)
     except BaseException:

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import csv
 import hashlib
+import math
 import subprocess
 import sys
 from pathlib import Path
@@ -201,3 +202,32 @@ def test_monte_carlo_design_runs_and_reports_standard_errors(tmp_path):
     with open(out / "results.csv", newline="") as fh:
         rows = list(csv.DictReader(fh))
     assert all(float(r["assurance_mcse"]) > 0 for r in rows)
+
+
+def test_precision_table_adds_widths_figure_and_memo_section(tmp_path):
+    # known SD, flat analysis prior: the posterior interval is the z interval, so the width
+    # target is met at n = (2 z sigma sqrt(4) / l)^2 in total (Joseph & Belisle 1997, known
+    # sigma case; common practice for the z interval)
+    design = tmp_path / "p.toml"
+    design.write_text(GOOD + "[precision]\nlength = 5.0\ncriteria = [\"ALC\", \"WOC\"]\n")
+    out = tmp_path / "out"
+    assert main(["plan", str(design), "--out", str(out), "--quiet"]) == 0
+    with open(out / "results.csv", newline="") as fh:
+        rows = list(csv.DictReader(fh))
+    for r in rows:
+        n = int(r["n"])
+        expected = 2 * 1.959963985 * 10.0 * math.sqrt(1 / (n // 2) + 1 / (n - n // 2))
+        assert float(r["width_mean"]) == pytest.approx(expected, rel=1e-5)
+    assert (out / "figures" / "interval_width.png").stat().st_size > 0
+    memo = (out / "memo.html").read_text()
+    assert "How precisely the effect will be known" in memo
+    needed = math.ceil((2 * 1.959963985 * 10.0 * 2 / 5.0) ** 2)
+    assert f"n = {needed} gives" in memo or f"n = {needed + 1} gives" in memo
+
+
+def test_bad_precision_table(tmp_path, capsys):
+    design = tmp_path / "p.toml"
+    design.write_text(GOOD + "[precision]\nlength = -1.0\n")
+    assert main(["plan", str(design), "--out", str(tmp_path / "o"), "--quiet"]) == 2
+    err = capsys.readouterr().err
+    assert "'length'" in err and "-1.0" in err

@@ -32,6 +32,7 @@ if TYPE_CHECKING:  # pragma: no cover
     from ..planning import SampleSizeAnswer
 
 __all__ = [
+    "plot_interval_width",
     "plot_prior",
     "plot_power_and_assurance",
     "plot_decomposition",
@@ -665,3 +666,80 @@ def save_figure(
                  owner="save_figure")
     write_atomic(svg, figure_bytes(fig, "svg"), overwrite=overwrite, owner="save_figure")
     return png, svg
+
+
+# ------------------------------------------------------------------------------------------
+# posterior interval width against n
+# ------------------------------------------------------------------------------------------
+def plot_interval_width(ds: Any, answers: Sequence[Any] = (), ax: Axes | None = None) -> Axes:
+    """Posterior interval width against total n, with the target length.
+
+    Draws the mean width, the 90th centile and the worst width over the most likely data
+    sets (with +-2 Monte Carlo standard error bands under simulation), the frequentist
+    confidence interval width at the assumed values, the target length, and a marker at
+    each criterion's solved n.
+
+    Parameters
+    ----------
+    ds
+        A dataset holding ``width_mean`` (from :func:`assurance.precision.interval_width_curve`,
+        alone or merged into :func:`assurance.evaluate`'s results), with ``attrs["length"]``
+        or ``answers`` giving the target length.
+    answers
+        :class:`~assurance.precision.PrecisionAnswer` objects to mark (others are skipped).
+    ax
+        Axes to draw into; a new off-screen figure when None.
+
+    Examples
+    --------
+    >>> import assurance as asr
+    >>> from assurance.precision import NormalMean, interval_width_curve
+    >>> ds = interval_width_curve(NormalMean(10.0, asr.Normal(0, 20)), range(20, 401, 20),
+    ...                           length=4.0)
+    >>> plot_interval_width(ds).get_ylabel()
+    'width of the posterior interval'
+    """
+    if "width_mean" not in getattr(ds, "data_vars", {}):
+        raise AssuranceInputError(
+            "The 'ds' parameter of plot_interval_width must hold 'width_mean' (from "
+            f"assurance.precision.interval_width_curve). Got {type(ds).__name__} instead.")
+    ax = _axes(ax)
+    _style(ax)
+    n = ds.n.values
+    lines = (("width_mean", "average width", _ORANGE, "-"),
+             ("width_q90", "90th centile of the width", _BLUE, (0, (5, 3))),
+             ("width_worst_likely", "worst width over the most likely data", _PURPLE,
+              (0, (1, 2))),
+             ("frequentist_ci_width", "confidence interval width at the assumed values",
+              _GREY, (0, (6, 2, 1.5, 2))))
+    for name, label, colour, style in lines:
+        if name not in ds:
+            continue
+        ax.plot(n, ds[name].values, color=colour, linestyle=style, linewidth=2.0, label=label)
+        if f"{name}_mcse" in ds:
+            _band(ax, n, ds[name].values, ds[f"{name}_mcse"].values, colour, None)
+    length = [a.length for a in answers if hasattr(a, "length")]
+    target = length[0] if length else ds.attrs.get("length")
+    if target is not None:
+        ax.axhline(float(target), color=_BLACK, linestyle=(0, (4, 3)), linewidth=1.2,
+                   label=f"target length ({float(target):g})")
+    marks: dict[int, list[Any]] = {}  # criteria solved at the same n share one label
+    for answer in answers:
+        if getattr(answer, "reached", False) and answer.n_total is not None and \
+                n.min() <= answer.n_total <= n.max() and answer.criterion in ("ALC", "WOC",
+                                                                                "MWOC"):
+            marks.setdefault(int(answer.n_total), []).append(answer)
+    for size, group in marks.items():
+        ax.plot([size], [group[0].achieved], marker="o", markersize=6,
+                markeredgecolor=_BLACK, markerfacecolor=_GREEN, zorder=5)
+        ax.annotate(" = ".join(a.criterion for a in group) + f": n = {size}",
+                    (size, group[0].achieved), xytext=(5, 6), textcoords="offset points",
+                    fontsize=8.5, bbox=_TEXT_BOX)
+    ax.set_xlim(float(n.min()), float(n.max()) if n.max() > n.min() else float(n.min()) + 1)
+    ax.set_ylim(bottom=0.0)
+    ax.set_xlabel("total number of patients (all arms)", fontsize=10.5)
+    ax.set_ylabel("width of the posterior interval", fontsize=10.5)
+    ax.set_title(_title(ds.attrs.get("title", ""), "how precisely the effect will be known"),
+                 fontsize=11.5, loc="left")
+    _legend(ax, loc="upper right")
+    return ax

@@ -453,6 +453,41 @@ def _figures(design: TrialDesign, ds: Any, answers: Sequence[SampleSizeAnswer],
     return "".join(parts)
 
 
+def _precision_section(ds: Any, precision: Sequence[Any],
+                       rendered: Mapping[str, bytes] | None) -> str:
+    """Posterior interval width: the n each criterion gives, and the width figure."""
+    if "width_mean" not in ds:
+        return ""
+    rows = []
+    for answer in precision or ():
+        if isinstance(answer, str):
+            rows.append(f"<tr><td colspan=\"3\">{_e(answer)}</td></tr>")
+            continue
+        size = (f"{answer.n_total} ({answer.n_treatment} / {answer.n_control})"
+                if answer.reached and answer.n_control else
+                (str(answer.n_total) if answer.reached else "not reached"))
+        rows.append(f"<tr><td>{_e(answer.criterion)}</td><td class=\"num\">{_e(size)}</td>"
+                    f"<td>{_e(answer.message)}</td></tr>")
+    table = ("<table class=\"grid\"><thead><tr><th scope=\"col\">Criterion</th>"
+             "<th class=\"num\" scope=\"col\">Total patients (treatment / control)</th>"
+             "<th scope=\"col\">Detail</th></tr></thead>"
+             f"<tbody>{''.join(rows)}</tbody></table>") if rows else ""
+    png = (rendered or {}).get("interval_width")
+    if png is None:
+        from .figures import figure_bytes, plot_interval_width
+
+        png = figure_bytes(plot_interval_width(ds, precision).figure, "png")
+    data = base64.b64encode(png).decode("ascii")
+    figure = (f'<figure><img alt="Posterior interval width against sample size" '
+              f'src="data:image/png;base64,{data}"><figcaption>Width of the posterior interval '
+              "for the effect, over data the design prior makes likely.</figcaption></figure>")
+    note = _e(ds.attrs.get("precision", ""))
+    return (f"<section><h2>How precisely the effect will be known</h2><p>{note}. ALC: "
+            "average width within the target; ACC: average coverage of an interval of the "
+            "target length; WOC / MWOC: worst width over all / the most likely data sets "
+            f"(Joseph, Wolfson &amp; du Berger 1995).</p>{table}{figure}</section>")
+
+
 def _origin_section(origin: Any, rendered: Mapping[str, bytes] | None) -> str:
     """Where the design prior comes from: a fit to judgements, an earlier trial, a meta-analysis."""
     if origin is None:
@@ -525,6 +560,7 @@ def memo_html(
     figures: bool = True,
     rendered: Mapping[str, bytes] | None = None,
     prior_origin: Any = None,
+    precision: Sequence[Any] = (),
 ) -> str:
     """The decision memo as one HTML string (see :func:`write_memo`).
 
@@ -538,6 +574,9 @@ def memo_html(
     prior_origin
         What the design prior was built from: a fit to elicited judgements
         (:class:`~assurance.elicitation.PriorFit`), a meta-analytic prior, or a sentence.
+    precision
+        Precision answers (one per criterion) shown with the interval-width figure when
+        ``ds`` holds ``width_mean``.
 
     Returns
     -------
@@ -587,6 +626,7 @@ def memo_html(
         f"<section><h2>Sample sizes for the targets</h2>{_targets(design, answers)}</section>"
         f"{_zones_section(ds, answers)}"
         f"{_origin_section(prior_origin, rendered)}"
+        f"{_precision_section(ds, precision, rendered)}"
         f"{figure_block}"
         f'<section class="cautions"><h2>Cautions</h2><ul>{caution_items}</ul></section>'
         '<section class="provenance"><h2>Provenance</h2>'
@@ -616,6 +656,7 @@ def write_memo(
     figures: bool = True,
     rendered: Mapping[str, bytes] | None = None,
     prior_origin: Any = None,
+    precision: Sequence[Any] = (),
 ) -> Path:
     """Write the decision memo for a design as one self-contained HTML file.
 
@@ -651,6 +692,9 @@ def write_memo(
     prior_origin
         What the design prior was built from (a fit to elicited judgements, a meta-analytic
         prior, or a sentence); shown with its report and, for a fit, its figure.
+    precision
+        Precision answers (one per criterion), shown with the interval-width figure when
+        ``ds`` holds ``width_mean``.
 
     Returns
     -------
@@ -679,5 +723,6 @@ def write_memo(
     """
     target = check_target(path, "write_memo", overwrite)
     page = memo_html(design, ds, answers, cautions=cautions, versions=versions, date=date,
-                     figures=figures, rendered=rendered, prior_origin=prior_origin)
+                     figures=figures, rendered=rendered, prior_origin=prior_origin,
+                     precision=precision)
     return write_atomic(target, page.encode("utf-8"), overwrite=overwrite, owner="write_memo")
