@@ -13,7 +13,9 @@ Measures, in one run on this machine:
 6. exact binary assurance (beta priors per arm, pooled z and Fisher), 1:1, up to 500 per arm
    over 50 sizes (target under 2 s);
 7. time-to-event closed form over 100 sizes (target under 10 ms), and the patient-level
-   log-rank simulation in trials per second at several n.
+   log-rank simulation in trials per second at several n;
+8. precision: exact binomial ALC/ACC/WOC over every n from 10 to 1000 (target under 1 s),
+   normal-gamma over a 50-point grid (target under 1 s).
 
 Targets (from the issue that introduced them): (1) under 2 ms, at least 5 times faster than
 (2); (3) under 0.3 s; (4) under 3 s.
@@ -114,6 +116,17 @@ def main() -> None:
     for n in (200, 1000, 4000):
         res = asr.simulate_trials(endpoint, 0.75, n // 2, n // 2, trials=2000, seed=1)
         print(f"     log-rank simulation, n = {n}: {res.trials_per_second:,.0f} trials/s")
+
+    from assurance import precision as pr
+
+    model = pr.OneProportion(pr.BetaPrior(1.0, 1.0))
+    t = best_of(lambda: pr.interval_width_curve(model, np.arange(10, 1001), length=0.1),
+                repeat=2, number=1)
+    print(f"8.   exact binomial widths, n = 10..1000 (ALC/ACC/WOC/MWOC): {t:.2f} s")
+    model = pr.NormalMeanUnknownSD(pr.NormalGammaPrior(0.0, 1.0, 3.0, 3.0))
+    grid = np.linspace(10, 1000, 50).astype(int)
+    t = best_of(lambda: pr.interval_width_curve(model, grid, length=0.5), repeat=3, number=1)
+    print(f"     normal-gamma widths, 50 sizes: {t:.3f} s")
 
 
 if __name__ == "__main__":
