@@ -216,7 +216,71 @@ class PosteriorProbability:
 
 
 @dataclass(frozen=True)
-class AllOf:
+class _Combined:
+    """Several threshold rules joined: ``AllOf`` (every one met) or ``AnyOf`` (at least one).
+
+    Subclasses name the joining: ``_strict`` is True when every rule must hold, so the
+    threshold is the largest of the rules' thresholds (the smallest for ``AnyOf``).
+    """
+
+    rules: Sequence[Any]
+    _strict = True
+    _word = "and"
+    _kind = "all_of"
+
+    def __post_init__(self) -> None:
+        rules = tuple(self.rules)
+        if not rules:
+            raise AssuranceInputError(
+                f"The 'rules' parameter of {type(self).__name__} must hold at least one rule. "
+                "Got none.")
+        object.__setattr__(self, "rules", rules)
+
+    def _pick(self, values: Any) -> Any:
+        return max(values) if self._strict else min(values)
+
+    @property
+    def one_sided_alpha(self) -> float:
+        alphas = [r.one_sided_alpha for r in self.rules]
+        return min(alphas) if self._strict else max(alphas)
+
+    @property
+    def null_value(self) -> float:
+        return self._pick(r.null_value for r in self.rules)
+
+    def critical_z(self) -> tuple:
+        return tuple(r.critical_z() for r in self.rules)
+
+    def critical_t(self, df: Any) -> tuple:
+        return tuple(r.critical_t(df) for r in self.rules)
+
+    def threshold(self, se: Any, critical: Sequence[Any]) -> np.ndarray:
+        values = np.broadcast_arrays(*[r.threshold(se, c)
+                                       for r, c in zip(self.rules, critical, strict=True)])
+        return np.maximum.reduce(values) if self._strict else np.minimum.reduce(values)
+
+    def kink_ratio(self, se: Any, critical: Any) -> None:
+        return None
+
+    def lowest_passable_effect(self) -> float:
+        return self._pick(r.lowest_passable_effect() for r in self.rules)
+
+    def limit_success_at(self, effect: float) -> float:
+        limits = [r.limit_success_at(effect) for r in self.rules]
+        return min(limits) if self._strict else max(limits)
+
+    def on_benefit_scale(self, endpoint: Any, analysis_prior: Prior | None = None) -> Any:
+        return type(self)(tuple(_on_benefit(r, endpoint, analysis_prior) for r in self.rules))
+
+    def describe(self) -> str:
+        return f" {self._word} ".join(r.describe() for r in self.rules)
+
+    def to_dict(self) -> dict[str, Any]:
+        return {"kind": self._kind, "rules": [_rule_dict(r) for r in self.rules]}
+
+
+@dataclass(frozen=True)
+class AllOf(_Combined):
     """Success only when every one of several threshold rules is met.
 
     On the estimate this is the largest of the rules' thresholds. Used for combined rules
@@ -230,50 +294,21 @@ class AllOf:
     1.2816
     """
 
-    rules: Sequence[Any]
 
-    def __post_init__(self) -> None:
-        rules = tuple(self.rules)
-        if not rules:
-            raise AssuranceInputError(
-                "The 'rules' parameter of AllOf must hold at least one rule. Got none.")
-        object.__setattr__(self, "rules", rules)
+@dataclass(frozen=True)
+class AnyOf(_Combined):
+    """Success when at least one of several threshold rules is met (smallest threshold).
 
-    @property
-    def one_sided_alpha(self) -> float:
-        return min(r.one_sided_alpha for r in self.rules)
+    Examples
+    --------
+    >>> rule = AnyOf((PosteriorProbability(0.9, beyond=0.0), PosteriorProbability(0.5, 1.0)))
+    >>> round(float(rule.threshold(1.0, rule.critical_z())), 4)  # min(1.2816, 1.0)
+    1.0
+    """
 
-    @property
-    def null_value(self) -> float:
-        return max(r.null_value for r in self.rules)
-
-    def critical_z(self) -> tuple:
-        return tuple(r.critical_z() for r in self.rules)
-
-    def critical_t(self, df: Any) -> tuple:
-        return tuple(r.critical_t(df) for r in self.rules)
-
-    def threshold(self, se: Any, critical: Sequence[Any]) -> np.ndarray:
-        values = [r.threshold(se, c) for r, c in zip(self.rules, critical, strict=True)]
-        return np.maximum.reduce(np.broadcast_arrays(*values))
-
-    def kink_ratio(self, se: Any, critical: Any) -> None:
-        return None
-
-    def lowest_passable_effect(self) -> float:
-        return max(r.lowest_passable_effect() for r in self.rules)
-
-    def limit_success_at(self, effect: float) -> float:
-        return min(r.limit_success_at(effect) for r in self.rules)
-
-    def on_benefit_scale(self, endpoint: Any, analysis_prior: Prior | None = None) -> AllOf:
-        return AllOf(tuple(_on_benefit(r, endpoint, analysis_prior) for r in self.rules))
-
-    def describe(self) -> str:
-        return " and ".join(r.describe() for r in self.rules)
-
-    def to_dict(self) -> dict[str, Any]:
-        return {"kind": "all_of", "rules": [_rule_dict(r) for r in self.rules]}
+    _strict = False
+    _word = "or"
+    _kind = "any_of"
 
 
 def _on_benefit(rule: Any, endpoint: Any, analysis_prior: Prior | None) -> Any:
@@ -288,63 +323,6 @@ def _rule_dict(rule: Any) -> dict[str, Any]:
     return {"kind": "significance", "alpha": rule.alpha, "sided": rule.sided,
             "margin": rule.margin, "min_estimate": rule.min_estimate}
 
-
-
-@dataclass(frozen=True)
-class AnyOf:
-    """Success when at least one of several threshold rules is met (smallest threshold).
-
-    Examples
-    --------
-    >>> rule = AnyOf((PosteriorProbability(0.9, beyond=0.0), PosteriorProbability(0.5, 1.0)))
-    >>> round(float(rule.threshold(1.0, rule.critical_z())), 4)  # min(1.2816, 1.0)
-    1.0
-    """
-
-    rules: Sequence[Any]
-
-    def __post_init__(self) -> None:
-        rules = tuple(self.rules)
-        if not rules:
-            raise AssuranceInputError(
-                "The 'rules' parameter of AnyOf must hold at least one rule. Got none.")
-        object.__setattr__(self, "rules", rules)
-
-    @property
-    def one_sided_alpha(self) -> float:
-        return max(r.one_sided_alpha for r in self.rules)
-
-    @property
-    def null_value(self) -> float:
-        return min(r.null_value for r in self.rules)
-
-    def critical_z(self) -> tuple:
-        return tuple(r.critical_z() for r in self.rules)
-
-    def critical_t(self, df: Any) -> tuple:
-        return tuple(r.critical_t(df) for r in self.rules)
-
-    def threshold(self, se: Any, critical: Sequence[Any]) -> np.ndarray:
-        values = [r.threshold(se, c) for r, c in zip(self.rules, critical, strict=True)]
-        return np.minimum.reduce(np.broadcast_arrays(*values))
-
-    def kink_ratio(self, se: Any, critical: Any) -> None:
-        return None
-
-    def lowest_passable_effect(self) -> float:
-        return min(r.lowest_passable_effect() for r in self.rules)
-
-    def limit_success_at(self, effect: float) -> float:
-        return max(r.limit_success_at(effect) for r in self.rules)
-
-    def on_benefit_scale(self, endpoint: Any, analysis_prior: Prior | None = None) -> AnyOf:
-        return AnyOf(tuple(_on_benefit(r, endpoint, analysis_prior) for r in self.rules))
-
-    def describe(self) -> str:
-        return " or ".join(r.describe() for r in self.rules)
-
-    def to_dict(self) -> dict[str, Any]:
-        return {"kind": "any_of", "rules": [_rule_dict(r) for r in self.rules]}
 
 
 @dataclass(frozen=True)
