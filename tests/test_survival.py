@@ -710,3 +710,16 @@ def test_design_table_errors():
     ep = SurvivalEndpoint.from_design_table(
         {**good, "median_prior": {"family": "uniform", "lower": 8, "upper": 16}}, "f.toml")
     assert isinstance(ep.median_prior, Uniform)
+
+
+def test_true_effect_quadrature_keeps_the_narrow_step_at_huge_n():
+    # Regression (found by a derandomized property run): with events following the true
+    # hazard ratio and a minimum observed effect, the step of P(success | effect) at n = 1e10
+    # is narrower than the first quadrature panels; the integral must still reach the
+    # ceiling, the limit of assurance as n grows (O'Hagan et al. 2005), not pass it.
+    ep = SurvivalEndpoint(assumed_hazard_ratio=1.0, accrual_time=3.0, follow_up_time=0.0,
+                          control_median=2.0, events_follow_true_effect=True)
+    design = TrialDesign(ep, Normal(-0.5, 0.5), rule=Significance(0.025, min_estimate=0.9))
+    values = evaluate(design, [10**10, 10**14]).assurance.values
+    # se ~ 1e-5 at these sizes and the prior density at the limit is < 1: within 1e-4
+    np.testing.assert_allclose(values, design.ceiling(), atol=1e-4)

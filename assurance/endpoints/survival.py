@@ -827,7 +827,18 @@ class _SurvivalCalculator(SuccessCalculator):
             return np.concatenate([p, (above[:, :, None] * p[:, None, :]).reshape(b.size, -1)],
                                   axis=1)
 
-        points = sorted({float(part.cdf(c.value)) for c in cuts} - {0.0, 1.0})
+        # Breakpoints where the integrand steps: the cuts, the rule's limit, and each size's
+        # threshold (+- 4 planned standard errors) -- a narrow step at a large n would
+        # otherwise fall between the first nodes.
+        se = np.atleast_1d(self._se(n_t, n_c, self.p_control, self.p_planned))
+        c = np.atleast_1d(self.rule.threshold(se, self.z))
+        steps = np.concatenate([c, c - 4 * se, c + 4 * se,
+                                [self.rule.lowest_passable_effect(), *cut_values]])
+        steps = np.unique(steps[np.isfinite(steps)])
+        if steps.size > 150:
+            steps = np.quantile(steps, np.linspace(0.0, 1.0, 150))
+        points = sorted({float(v) for v in np.asarray(part.cdf(steps), dtype=float)}
+                        - {0.0, 1.0})
         value = _adaptive_integral(integrand, [0.0, *points, 1.0])
         return value.reshape(1 + len(cuts), n_t.size)
 
