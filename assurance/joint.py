@@ -17,6 +17,7 @@ from typing import Any
 import numpy as np
 
 from ._validation import check_int, check_real, check_real_array
+from .compute.normal_outcome import DrawAverages
 from .compute.prior_predictive import upper_orthant_normal
 from .errors import AssuranceInputError
 
@@ -133,25 +134,21 @@ def evaluate_joint(
     from scipy import special
 
     chunk = max(1, 200_000 // max(n.size, 1))
-    sums = {key: np.zeros(n.size) for key in ("both", "first", "second")}
-    squares = {key: np.zeros(n.size) for key in sums}
+    keys = ("both", "first", "second")
+    averages = DrawAverages(len(keys), n.size)
     for start in range(0, draws, chunk):
         e1 = effects[0][start:start + chunk]
         e2 = effects[1][start:start + chunk]
-        parts = {
-            "both": both_given(e1, e2),
-            "first": special.ndtr((e1[:, None] - thresholds[0][None, :]) / ses[0][None, :]),
-            "second": special.ndtr((e2[:, None] - thresholds[1][None, :]) / ses[1][None, :]),
-        }
-        for key, p in parts.items():
-            sums[key] += p.sum(axis=0)
-            squares[key] += (p * p).sum(axis=0)
+        averages.add([
+            both_given(e1, e2),
+            special.ndtr((e1[:, None] - thresholds[0][None, :]) / ses[0][None, :]),
+            special.ndtr((e2[:, None] - thresholds[1][None, :]) / ses[1][None, :]),
+        ])
+    mean, se = averages.result()
     data: dict[str, Any] = {}
-    for key in sums:
-        mean = sums[key] / draws
-        var = np.maximum(squares[key] / draws - mean * mean, 0.0)
-        data[f"prob_{key}"] = ("n", mean)
-        data[f"prob_{key}_mcse"] = ("n", np.sqrt(var / (draws - 1)))
+    for row, key in enumerate(keys):
+        data[f"prob_{key}"] = ("n", mean[row])
+        data[f"prob_{key}_mcse"] = ("n", se[row])
     assumed = [float(d.endpoint.to_benefit(d.assumed_effect)) for d in (first, second)]
     power = both_given(np.array([assumed[0]]), np.array([assumed[1]]))[0]
     data["power_both"] = ("n", power)

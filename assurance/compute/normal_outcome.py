@@ -25,7 +25,8 @@ from ..rules import Significance
 from .prior_predictive import prob_estimate_above
 from .sd_quadrature import sd_ratio_nodes
 
-__all__ = ["Cut", "SuccessProbabilities", "exact_success", "monte_carlo_success", "EffectDraws"]
+__all__ = ["Cut", "SuccessProbabilities", "DrawAverages", "exact_success", "monte_carlo_success",
+           "EffectDraws"]
 
 
 @dataclass(frozen=True)
@@ -106,6 +107,46 @@ def exact_success(
     return SuccessProbabilities(success=prob(None), joint=[prob(cut) for cut in cuts])
 
 
+class DrawAverages:
+    """Averages over Monte Carlo draws, accumulated chunk by chunk, with standard errors.
+
+    Each row is one quantity (success, then one per cut region); each piece added is an
+    array ``(draws in the chunk, sizes)`` of per-draw probabilities.
+
+    Examples
+    --------
+    >>> acc = DrawAverages(rows=1, size=1)
+    >>> acc.add([np.array([[0.2], [0.4]])])
+    >>> mean, se = acc.result()
+    >>> round(float(mean[0, 0]), 3), round(float(se[0, 0]), 3)  # sd 0.1, two draws
+    (0.3, 0.1)
+    """
+
+    def __init__(self, rows: int, size: int):
+        self.sums = np.zeros((rows, size))
+        self.squares = np.zeros((rows, size))
+        self.count = 0
+
+    def add(self, pieces: Sequence[np.ndarray]) -> None:
+        """Add one chunk: one ``(draws, sizes)`` array per row."""
+        for row, piece in enumerate(pieces):
+            self.sums[row] += piece.sum(axis=0)
+            self.squares[row] += (piece * piece).sum(axis=0)
+        self.count += pieces[0].shape[0]
+
+    def result(self) -> tuple[np.ndarray, np.ndarray]:
+        """Means and their Monte Carlo standard errors, each ``(rows, sizes)``."""
+        mean = self.sums / self.count
+        var = np.maximum(self.squares / self.count - mean * mean, 0.0)
+        return mean, np.sqrt(var / max(self.count - 1, 1))
+
+    def success_probabilities(self) -> SuccessProbabilities:
+        """Row 0 as the success probability, the others as joint probabilities."""
+        mean, se = self.result()
+        return SuccessProbabilities(success=mean[0], joint=list(mean[1:]),
+                                    success_mcse=se[0], joint_mcse=list(se[1:]))
+
+
 @dataclass(frozen=True)
 class EffectDraws:
     """Fixed random draws reused for every sample size (common random numbers).
@@ -160,10 +201,7 @@ def monte_carlo_success(
     df = np.asarray(df, dtype=float)
     m = draws.effect.size
     masks = [(draws.effect >= c.value) if c.inclusive else (draws.effect > c.value) for c in cuts]
-    sums = np.zeros(k.size)
-    squares = np.zeros(k.size)
-    joint_sums = [np.zeros(k.size) for _ in cuts]
-    joint_squares = [np.zeros(k.size) for _ in cuts]
+    averages = DrawAverages(1 + len(cuts), k.size)
     crit = rule.critical_t(df[None, :]) if analysis == "t" else rule.critical_z()
     for start in range(0, m, chunk):
         sl = slice(start, min(start + chunk, m))
@@ -176,23 +214,5 @@ def monte_carlo_success(
         else:
             c = rule.threshold(se, crit)
         p = special.ndtr((effect - c) / se)
-        sums += p.sum(axis=0)
-        squares += (p * p).sum(axis=0)
-        for j, mask in enumerate(masks):
-            pj = p * mask[sl, None]
-            joint_sums[j] += pj.sum(axis=0)
-            joint_squares[j] += (pj * pj).sum(axis=0)
-
-    def mean_and_se(total: np.ndarray, total_sq: np.ndarray, count: int):
-        mean = total / count
-        var = np.maximum(total_sq / count - mean * mean, 0.0)
-        return mean, np.sqrt(var / max(count - 1, 1))
-
-    success, success_se = mean_and_se(sums, squares, m)
-    joint, joint_se = [], []
-    for j in range(len(masks)):
-        mj, sj = mean_and_se(joint_sums[j], joint_squares[j], m)
-        joint.append(mj)
-        joint_se.append(sj)
-    return SuccessProbabilities(success=success, joint=joint, success_mcse=success_se,
-                                joint_mcse=joint_se)
+        averages.add([p] + [p * mask[sl, None] for mask in masks])
+    return averages.success_probabilities()

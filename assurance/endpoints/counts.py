@@ -451,25 +451,18 @@ class _CountCalculator(SuccessCalculator):
         return SuccessProbabilities(success=totals[0], joint=list(totals[1:]))
 
     def _monte_carlo(self, n_t, n_c, cuts, chunk: int = 1024):
-        from ..compute.normal_outcome import SuccessProbabilities
+        from ..compute.normal_outcome import DrawAverages
 
         effect, rate = self.effect_draws, self.rate_draws
         m = effect.size
         masks = [(effect >= c.value) if c.inclusive else (effect > c.value) for c in cuts]
-        sums = np.zeros((1 + len(cuts), n_t.size))
-        squares = np.zeros_like(sums)
+        averages = DrawAverages(1 + len(cuts), n_t.size)
         for start in range(0, m, chunk):
             sl = slice(start, min(start + chunk, m))
             p = self._conditional(effect[sl, None], rate[sl, None], n_t[None, :],
                                   n_c[None, :])
-            rows = [p] + [p * mask[sl, None] for mask in masks]
-            for r, pr in enumerate(rows):
-                sums[r] += pr.sum(axis=0)
-                squares[r] += (pr * pr).sum(axis=0)
-        mean = sums / m
-        mcse = np.sqrt(np.maximum(squares / m - mean * mean, 0.0) / max(m - 1, 1))
-        return SuccessProbabilities(success=mean[0], joint=list(mean[1:]),
-                                    success_mcse=mcse[0], joint_mcse=list(mcse[1:]))
+            averages.add([p] + [p * mask[sl, None] for mask in masks])
+        return averages.success_probabilities()
 
     def power(self, effect_benefit, n_t, n_c):
         """Classical power at one effect, standard error at that effect, planning rate."""

@@ -843,28 +843,21 @@ class _SurvivalCalculator(SuccessCalculator):
         return value.reshape(1 + len(cuts), n_t.size)
 
     def _monte_carlo(self, n_t, n_c, cuts, chunk: int = 4096):
-        from ..compute.normal_outcome import SuccessProbabilities
+        from ..compute.normal_outcome import DrawAverages
 
         n_t = np.asarray(n_t, dtype=float)
         n_c = np.asarray(n_c, dtype=float)
         m = self.effect.size
-        rows = 1 + len(cuts)
-        sums = np.zeros((rows, n_t.size))
-        squares = np.zeros((rows, n_t.size))
+        averages = DrawAverages(1 + len(cuts), n_t.size)
         for start in range(0, m, chunk):
             sl = slice(start, min(start + chunk, m))
             b = self.effect[sl, None]
             se = self._se(n_t[None, :], n_c[None, :], self.p_c_draws[sl, None],
                           self.p_t_draws[sl, None])
             p = special.ndtr((b - self.rule.threshold(se, self.z)) / se)
-            for j, piece in enumerate([p] + [p * ((b >= c.value) if c.inclusive
-                                                  else (b > c.value)) for c in cuts]):
-                sums[j] += piece.sum(axis=0)
-                squares[j] += (piece * piece).sum(axis=0)
-        mean = sums / m
-        mcse = np.sqrt(np.maximum(squares / m - mean * mean, 0.0) / max(m - 1, 1))
-        return SuccessProbabilities(success=mean[0], joint=list(mean[1:]),
-                                    success_mcse=mcse[0], joint_mcse=list(mcse[1:]))
+            averages.add([p] + [p * ((b >= c.value) if c.inclusive else (b > c.value))
+                                for c in cuts])
+        return averages.success_probabilities()
 
     def method(self) -> str:
         ep = self.endpoint
