@@ -306,8 +306,7 @@ def endpoint_from_table(table: dict[str, Any], source: str = "design") -> Any:
 
     kind = table.get("type", "continuous")
     if kind not in ENDPOINT_TYPES:
-        close = difflib.get_close_matches(str(kind), list(ENDPOINT_TYPES), n=1)
-        hint = f" Did you mean {close[0]!r}?" if close else ""
+        hint = _did_you_mean(kind, ENDPOINT_TYPES)
         raise DesignFileError(
             f"{source}: 'endpoint.type' must be one of {', '.join(ENDPOINT_TYPES)}. "
             f"Got {kind!r}.{hint}"
@@ -413,8 +412,7 @@ def prior_from_table(table: dict[str, Any], where: str, source: str = "design", 
     if family in _EVIDENCE_FAMILIES:
         return prior_with_origin(table, where, source, ratio=ratio)[0]
     if family not in _FAMILIES:
-        close = difflib.get_close_matches(str(family), _family_names(ratio), n=1)
-        hint = f" Did you mean {close[0]!r}?" if close else ""
+        hint = _did_you_mean(family, _family_names(ratio))
         raise DesignFileError(
             f"{source}: '{where}.family' must be one of "
             f"{', '.join(_family_names(ratio))}. Got {family!r}.{hint}"
@@ -629,11 +627,16 @@ def _table(raw: dict[str, Any], key: str, source: str, required: bool = True) ->
     return value
 
 
+def _did_you_mean(value: Any, options: Any, cutoff: float = 0.6) -> str:
+    """`` Did you mean 'x'?`` for the closest option, or an empty string."""
+    close = difflib.get_close_matches(str(value), list(options), n=1, cutoff=cutoff)
+    return f" Did you mean {close[0]!r}?" if close else ""
+
+
 def _known(table: dict[str, Any], allowed: set[str], where: str, source: str) -> None:
     for key in table:
         if key not in allowed:
-            close = difflib.get_close_matches(key, sorted(allowed), n=1, cutoff=0.5)
-            hint = f" Did you mean {close[0]!r}?" if close else ""
+            hint = _did_you_mean(key, sorted(allowed), cutoff=0.5)
             place = f"[{where}]" if where else "the top level"
             raise DesignFileError(
                 f"{source}: unknown key {key!r} in {place}.{hint} Known keys: "
