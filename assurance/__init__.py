@@ -17,6 +17,8 @@ True
 from __future__ import annotations
 
 import importlib
+import sys
+import types
 from typing import TYPE_CHECKING, Any
 
 __version__ = "0.1.0"
@@ -80,6 +82,9 @@ _PUBLIC = {
     "solve_precision_n": "precision",
     "PrecisionPlan": "precision_design",
     "precision_model_for": "precision_design",
+    "Plan": "plan",
+    "plan": "plan",
+    "read_design": "design_file:read_design_file",  # name here : name in the module
 }
 
 __all__ = [
@@ -141,11 +146,15 @@ __all__ = [
     "solve_precision_n",
     "PrecisionPlan",
     "precision_model_for",
+    "Plan",
+    "plan",
+    "read_design",
 ]
 
 if TYPE_CHECKING:  # pragma: no cover - for type checkers and editors only
     from .compute.survival_sim import simulate_assurance, simulate_trials
     from .design import TrialDesign
+    from .design_file import read_design_file as read_design
     from .elicitation import (
         Beta,
         Gamma,
@@ -173,6 +182,7 @@ if TYPE_CHECKING:  # pragma: no cover - for type checkers and editors only
         robust_mixture,
     )
     from .joint import evaluate_joint
+    from .plan import Plan, plan
     from .planning import SampleSizeAnswer, evaluate, solve_sample_size
     from .posterior_rules import AllOf, AnyOf, MinimumEstimate, PosteriorProbability
     from .precision import interval_width_curve, solve_precision_n
@@ -195,12 +205,30 @@ if TYPE_CHECKING:  # pragma: no cover - for type checkers and editors only
 
 
 def __getattr__(name: str) -> Any:
-    module = _PUBLIC.get(name)
-    if module is None:
+    where = _PUBLIC.get(name)
+    if where is None:
         raise AttributeError(f"module 'assurance' has no attribute {name!r}")
-    value = getattr(importlib.import_module(f".{module}", __name__), name)
+    module, _, inner = where.partition(":")
+    value = getattr(importlib.import_module(f".{module}", __name__), inner or name)
     globals()[name] = value
     return value
+
+
+class _Package(types.ModuleType):
+    """This package's module type: ``assurance.plan`` stays the function.
+
+    Importing the submodule ``assurance.plan`` would otherwise bind the name ``plan`` on the
+    package to the module, hiding the function of the same name. The submodule is still in
+    ``sys.modules`` (``from assurance.plan import Plan`` works).
+    """
+
+    def __setattr__(self, name: str, value: Any) -> None:
+        if name == "plan" and isinstance(value, types.ModuleType):
+            return
+        super().__setattr__(name, value)
+
+
+sys.modules[__name__].__class__ = _Package
 
 
 def __dir__() -> list[str]:

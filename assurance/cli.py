@@ -12,7 +12,6 @@ import argparse
 import sys
 import time
 from pathlib import Path
-from typing import Any
 
 __all__ = ["main"]
 
@@ -33,7 +32,8 @@ def _parser() -> argparse.ArgumentParser:
 
     plan = sub.add_parser("plan", help="compute power and assurance and write the memo",
                           description="Read a design file; write results.csv, results.nc, "
-                          "sample_sizes.csv, figures/ and memo.html into the output folder.")
+                          "sample_sizes.csv, design.json, design_as_given.toml (a copy of the "
+                          "design file), figures/ and memo.html into the output folder.")
     plan.add_argument("design", help="TOML design file")
     plan.add_argument("-o", "--out", help="output folder (default: <design name>-plan next to "
                       "the current directory)")
@@ -89,27 +89,30 @@ def _check(args: argparse.Namespace) -> int:
 
 
 class _Progress:
+    """Progress lines on stderr, with the seconds since the start.
+
+    Called as ``progress(text)`` for a step and ``progress(label, done, total)`` for chunks
+    of a long step (a live counter on a terminal, one line at the end otherwise).
+    """
+
     def __init__(self, quiet: bool):
         self.quiet = quiet
         self.start = time.perf_counter()
+        self.live = sys.stderr.isatty()
 
-    def say(self, text: str) -> None:
-        if not self.quiet:
+    def __call__(self, text: str, done: int | None = None, total: int | None = None) -> None:
+        if self.quiet:
+            return
+        if done is None or total is None:
             print(f"[{time.perf_counter() - self.start:5.1f}s] {text}", file=sys.stderr,
                   flush=True)
-
-    def chunks(self, label: str):
-        live = sys.stderr.isatty()
-
-        def report(done: int, total: int) -> None:
-            if self.quiet or total < 2:
-                return
-            if live:
-                print(f"\r        {label}: {done}/{total}", end="" if done < total else "\n",
-                      file=sys.stderr, flush=True)
-            elif done == total:
-                print(f"        {label}: {total} chunks done", file=sys.stderr, flush=True)
-        return report
+        elif total < 2:
+            return
+        elif self.live:
+            print(f"\r        {text}: {done}/{total}", end="" if done < total else "\n",
+                  file=sys.stderr, flush=True)
+        elif done == total:
+            print(f"        {text}: {total} chunks done", file=sys.stderr, flush=True)
 
 
 def _plan(args: argparse.Namespace) -> int:
@@ -125,103 +128,19 @@ def _plan(args: argparse.Namespace) -> int:
     if out.exists() and not out.is_dir():
         raise AssuranceInputError(f"The output path {str(out)!r} exists and is not a folder.")
     progress = _Progress(args.quiet)
-    progress.say(f"reading {design_path}")
+    progress(f"reading {design_path}")
 
-    from .design_file import read_design_file
+    from .plan import Plan
 
-    spec = read_design_file(design_path)
-    result = run_plan(spec, progress)
-
-    from .outputs import write_outputs
-
-    progress.say("writing results, figures and memo")
-    write_outputs(out, spec, result["dataset"], result["answers"], overwrite=args.overwrite,
-                  precision=result["precision"])
+    plan = Plan.from_file(design_path, progress=progress)
+    progress("writing results, figures and memo")
+    plan.write(out, overwrite=args.overwrite)
     if not args.quiet:
-        from .report import memo_text_summary
-
-        print(memo_text_summary(spec.design, result["dataset"], result["answers"]))
+        print(plan.summary())
         print(f"\nWritten to {out}/ (memo.html, results.csv, results.nc, sample_sizes.csv, "
-              "figures/)")
-    progress.say("done")
+              "design_as_given.toml, figures/)")
+    progress("done")
     return 0
-
-
-def run_plan(spec: Any, progress: _Progress | None = None) -> dict[str, Any]:
-    """Solve every target in the design file, then evaluate the size grid."""
-    import numpy as np
-
-    from .planning import evaluate, solve_sample_size
-
-    progress = progress or _Progress(True)
-    design = spec.design
-    answers = []
-    for quantity, target in spec.targets.items():
-        progress.say(f"solving n for {quantity.replace('_', ' ')} {target:g}")
-        answers.append(solve_sample_size(design, target, quantity=quantity, draws=spec.draws,
-                                         seed=spec.seed))
-    sizes = spec.sizes if spec.sizes is not None else _default_sizes(spec, answers)
-    solved = [a.n_total for a in answers if a.reached and a.n_total <= 2 * sizes.max()]
-    sizes = np.unique(np.concatenate([sizes, np.array(solved, dtype=int)]))
-    progress.say(f"evaluating {sizes.size} sample sizes")
-    ds = evaluate(design, sizes, draws=spec.draws, seed=spec.seed,
-                  progress=progress.chunks("Monte Carlo"))
-    if getattr(spec, "zones", None) is not None:
-        import xarray as xr
-
-        from .zones import evaluate_zones
-
-        progress.say("go / consider / stop probabilities")
-        zones = evaluate_zones(design, spec.zones, sizes, draws=spec.draws, seed=spec.seed)
-        attrs = dict(ds.attrs, zones=zones.attrs["zones"])
-        ds = xr.merge([ds, zones], combine_attrs="drop", compat="override", join="outer")
-        ds.attrs.update(attrs)
-    precision_answers: list[Any] = []
-    plan = getattr(spec, "precision", None)
-    if plan is not None:
-        from .precision import interval_width_curve, solve_precision_n
-        from .precision_design import precision_model_for
-
-        progress.say("posterior interval width against n")
-        model = precision_model_for(design)
-        common = {"coverage": plan.coverage, "interval": plan.interval,
-                  "likely_share": plan.likely_share, "seed": spec.seed}
-        widths = interval_width_curve(model, ds.n.values, length=plan.length, **common)
-        widths = widths.drop_vars(["n_treatment", "n_control"])
-        attrs = dict(ds.attrs, precision=f"{plan.coverage:g} {plan.interval.replace('_', '-')}"
-                     f" intervals, target length {plan.length:g}; {widths.attrs['method']}")
-        ds = ds.assign({name: widths[name] for name in widths.data_vars})
-        ds.attrs.update(attrs)
-        for criterion in plan.criteria:
-            progress.say(f"solving n for precision ({criterion})")
-            try:
-                precision_answers.append(solve_precision_n(model, length=plan.length,
-                                                           criterion=criterion, **common))
-            except ValueError as exc:  # e.g. WOC unavailable by simulation: say so
-                precision_answers.append(str(exc))
-    return {"dataset": ds, "answers": answers, "precision": precision_answers}
-
-
-def _default_sizes(spec: Any, answers: list[Any]) -> Any:
-    """About 50 evenly spaced round sizes up to 1.5 times the largest solved n."""
-    import math
-
-    import numpy as np
-
-    from .planning import solve_sample_size
-
-    design = spec.design
-    reached = [a.n_total for a in answers if a.reached]
-    if not reached:
-        fallback = solve_sample_size(design, 0.9, quantity="power")
-        reached = [fallback.n_total] if fallback.reached else [1000]
-    high = max(1.5 * max(reached), 20.0)
-    raw_step = high / 50
-    magnitude = 10 ** math.floor(math.log10(raw_step))
-    step = next(m * magnitude for m in (1, 2, 5, 10) if m * magnitude >= raw_step)
-    step = max(int(step), 1)
-    grid = np.arange(step, high + step, step).astype(int)
-    return grid[grid >= design.endpoint.smallest_total]
 
 
 if __name__ == "__main__":  # pragma: no cover

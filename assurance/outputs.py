@@ -14,30 +14,30 @@ import shutil
 import tempfile
 from collections.abc import Sequence
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from .errors import AssuranceInputError
+
+if TYPE_CHECKING:  # pragma: no cover
+    from .plan import Plan
 
 __all__ = ["write_outputs", "write_results_csv", "write_sample_sizes_csv"]
 
 
-def write_outputs(out: str | Path, spec: Any, ds: Any, answers: Sequence[Any], *,
-                  overwrite: bool = False, precision: Sequence[Any] = ()) -> Path:
-    """Write results (CSV, netCDF), sample sizes, figures and memo into folder ``out``.
+def write_outputs(out: str | Path, plan: Plan, *, overwrite: bool = False) -> Path:
+    """Write a plan's results (CSV, netCDF), sample sizes, figures and memo into ``out``.
+
+    The folder holds ``results.csv``, ``results.nc``, ``sample_sizes.csv``, ``design.json``,
+    ``figures/`` (PNG and SVG of each of :meth:`Plan.figures <assurance.Plan.figures>`) and
+    ``memo.html``; when the plan was read from a design file, also
+    ``design_as_given.toml``, a byte-for-byte copy of that file.
 
     Parameters
     ----------
     out
         Destination folder; must not exist unless ``overwrite`` is True.
-    spec
-        The parsed design file (:class:`~assurance.design_file.DesignFile`).
-    ds
-        Results of :func:`~assurance.evaluate`.
-    answers
-        :class:`~assurance.SampleSizeAnswer` for each target.
-    precision
-        :class:`~assurance.precision.PrecisionAnswer` for each precision criterion (or the
-        reason a criterion is unavailable).
+    plan
+        The computed plan (:class:`~assurance.Plan`).
     overwrite
         Replace an existing folder.
 
@@ -45,8 +45,20 @@ def write_outputs(out: str | Path, spec: Any, ds: Any, answers: Sequence[Any], *
     -------
     pathlib.Path
         The folder written.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> import assurance as asr
+    >>> design = asr.TrialDesign(asr.ContinuousEndpoint(sigma=10.0, analysis="z"),
+    ...                          asr.Normal(4.0, 2.0))
+    >>> p = asr.plan(design, targets={"assurance": 0.6}, sizes=[100, 200])
+    >>> with tempfile.TemporaryDirectory() as folder:
+    ...     written = write_outputs(pathlib.Path(folder) / "plan", p)
+    ...     print(sorted(f.name for f in written.iterdir()))
+    ['design.json', 'figures', 'memo.html', 'results.csv', 'results.nc', 'sample_sizes.csv']
     """
-    from .report import plot_power_and_assurance, plot_prior, save_figure, write_memo
+    from .report import save_figure, write_memo
 
     out = Path(out)
     if out.exists() and not overwrite:
@@ -54,6 +66,10 @@ def write_outputs(out: str | Path, spec: Any, ds: Any, answers: Sequence[Any], *
             f"The output folder {str(out)!r} already exists. Pass overwrite=True (--overwrite "
             "on the command line) to replace it."
         )
+    if out.exists() and not out.is_dir():
+        raise AssuranceInputError(
+            f"The output path {str(out)!r} exists and is not a folder; it is left alone.")
+    ds, answers = plan.results, plan.sample_sizes
     out.parent.mkdir(parents=True, exist_ok=True)
     tmp = Path(tempfile.mkdtemp(prefix=f".{out.name}-", dir=out.parent))
     try:
@@ -61,29 +77,16 @@ def write_outputs(out: str | Path, spec: Any, ds: Any, answers: Sequence[Any], *
         write_sample_sizes_csv(answers, tmp / "sample_sizes.csv")
         ds.to_netcdf(tmp / "results.nc", engine="scipy")
         (tmp / "design.json").write_text(json.dumps(json.loads(ds.attrs["design"]), indent=2))
+        if plan.source is not None:
+            (tmp / "design_as_given.toml").write_bytes(plan.source.content)
         figures = tmp / "figures"
         figures.mkdir()
         rendered = {}
-        for name, draw in (("prior", lambda: plot_prior(spec.design)),
-                           ("power_and_assurance",
-                            lambda: plot_power_and_assurance(ds, answers=answers))):
-            fig = draw().figure
+        for name, fig in plan.figures().items():
             png, _svg = save_figure(fig, figures / name)
             rendered[name] = png.read_bytes()
-        origin = getattr(spec, "prior_origin", None)
-        if type(origin).__name__ == "PriorFit":
-            from .elicitation import plot_fit
-
-            png, _svg = save_figure(plot_fit(origin).figure, figures / "prior_fit")
-            rendered["prior_fit"] = png.read_bytes()
-        if "width_mean" in ds:
-            from .report.figures import plot_interval_width
-
-            png, _svg = save_figure(plot_interval_width(ds, precision).figure,
-                                    figures / "interval_width")
-            rendered["interval_width"] = png.read_bytes()
-        write_memo(spec.design, ds, answers, tmp / "memo.html", rendered=rendered,
-                   prior_origin=origin, precision=precision)
+        write_memo(plan.design, ds, answers, tmp / "memo.html", rendered=rendered,
+                   prior_origin=plan.prior_origin, precision=plan.precision)
         os.chmod(tmp, 0o755)
         _swap_into_place(tmp, out)
     except BaseException:

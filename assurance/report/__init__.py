@@ -25,6 +25,7 @@ from .figures import (
     save_figure,
 )
 from .memo import DEFAULT_CAUTIONS, memo_html, memo_text_summary, write_memo
+from .notebook import overview_html
 
 __all__ = [
     "plot_prior",
@@ -37,5 +38,6 @@ __all__ = [
     "write_memo",
     "memo_html",
     "memo_text_summary",
+    "overview_html",
     "DEFAULT_CAUTIONS",
 ]
