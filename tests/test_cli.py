@@ -25,6 +25,7 @@ PROMISED = [
     "results.nc",
     "sample_sizes.csv",
     "design.json",
+    "design_as_given.toml",
     "figures/prior.png",
     "figures/prior.svg",
     "figures/power_and_assurance.png",
@@ -73,6 +74,7 @@ def test_plan_writes_every_promised_file(case_output):
         path = case_output / name
         assert path.is_file(), name
         assert path.stat().st_size > 0, name
+    assert (case_output / "design_as_given.toml").read_bytes() == CASE.read_bytes()
     # nothing half-written is left beside the folder
     leftovers = [p for p in case_output.parent.iterdir() if p.name.startswith(".")]
     assert leftovers == []
