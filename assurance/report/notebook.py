@@ -22,8 +22,8 @@ if TYPE_CHECKING:  # pragma: no cover
 
 __all__ = ["overview_html"]
 
-_CELL = "padding:2px 8px;text-align:left;border-bottom:1px solid #d5dadf"
-_NUM = "padding:2px 8px;text-align:right;border-bottom:1px solid #d5dadf"
+_CELL = "text-align:left"
+_NUM = "text-align:right"
 
 
 def _assurance_at(ds: Any, n_total: int | None) -> str:
@@ -93,9 +93,10 @@ def overview_html(
     n = np.asarray(ds["n"].values)
     ceiling = float(ds["ceiling"])
     parts = [f'<div class="assurance-plan"><h3>{_e(design.title)}</h3>',
-             f"<p>Sizes computed: {int(n.min())} to {int(n.max())} patients ({n.size} sizes). "
-             f"Ceiling of assurance: {_e(_p(ceiling))} (no sample size passes it). Classical "
-             f"power at the assumed effect {_e(f'{design.assumed_effect:g}')}.</p>"]
+             f"<p>Computed for {n.size} sizes from {int(n.min())} to {int(n.max())} patients. "
+             f"Classical power assumes the effect is {_e(f'{design.assumed_effect:g}')}; "
+             "assurance averages over the design prior and cannot pass "
+             f"{_e(_p(ceiling))} (its ceiling).</p>"]
     if answers:
         head = [("Target", False), ("Total patients", True)]
         head += [("Treatment / control", True)] if two_arm else []
