@@ -138,7 +138,7 @@ def _plan(args: argparse.Namespace) -> int:
     if not args.quiet:
         print(plan.summary())
         print(f"\nWritten to {out}/ (memo.html, results.csv, results.nc, sample_sizes.csv, "
-              "design_as_given.toml, figures/)")
+              "figures/,\n  and design_as_given.toml: the design file as given)")
     progress("done")
     return 0
 
