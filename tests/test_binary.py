@@ -52,7 +52,8 @@ from assurance.compute.binary_exact import (
     success_region,
 )
 from assurance.compute.normal_outcome import Cut
-from assurance.endpoints.binary import BetaRates, BinaryEndpoint, beta_rates_from_table
+from assurance.design_file import endpoint_from_table, prior_from_table
+from assurance.endpoints.binary import BetaRates, BinaryEndpoint
 from assurance.errors import AssuranceInputError, AssuranceWarning, DesignFileError
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -552,8 +553,9 @@ def test_ratio_scale_design_uses_ratios():
 def test_case_study_design_file_runs():
     raw = tomllib.loads((ROOT / "case_studies/response_rate/design.toml").read_text())
     assert "nvented" in raw["title"]
-    ep = BinaryEndpoint.from_design_table(raw["endpoint"], "case study")
-    prior = beta_rates_from_table(raw["design_prior"], scale=ep.scale)
+    ep = endpoint_from_table(raw["endpoint"], "case study")
+    prior = BetaRates(tuple(raw["design_prior"]["control"]),
+                      tuple(raw["design_prior"]["treatment"]), ep.scale)
     design = TrialDesign(ep, prior, rule=Significance(**raw["success"]),
                          assumed_effect=raw["effect"]["assumed"],
                          relevant_effect=raw["effect"]["relevant"])
@@ -731,25 +733,38 @@ def test_calculator_and_design_checks():
 
 
 def test_design_tables():
-    ep = BinaryEndpoint.from_design_table(
+    ep = endpoint_from_table(
         {"type": "binary", "reference_rate": 0.2, "test": "exact_binomial"}, "f.toml")
     assert ep.layout == "single_arm" and ep.control_rate == 0.2
     with pytest.raises(DesignFileError, match="Did you mean 'control_rate'"):
-        BinaryEndpoint.from_design_table({"type": "binary", "control_rte": 0.2}, "f.toml")
+        endpoint_from_table({"type": "binary", "control_rte": 0.2}, "f.toml")
     with pytest.raises(DesignFileError, match="exactly one"):
-        BinaryEndpoint.from_design_table({"type": "binary"}, "f.toml")
-    with pytest.raises(DesignFileError, match="'allocation' key"):
-        BinaryEndpoint.from_design_table({"control_rate": 0.2, "allocation": 0}, "f.toml")
-    prior = beta_rates_from_table({"family": "beta_rates", "control": [2, 3],
-                                   "treatment": 0.5}, scale="odds_ratio")
+        endpoint_from_table({"type": "binary"}, "f.toml")
+    with pytest.raises(DesignFileError, match="'endpoint.allocation' must be a number > 0"):
+        endpoint_from_table({"type": "binary", "control_rate": 0.2, "allocation": 0}, "f.toml")
+
+
+def test_beta_rates_tables_follow_the_endpoint_scale():
+    from assurance.design_file import parse_design
+
+    def design(prior, **endpoint):
+        return parse_design({"endpoint": {"type": "binary", "control_rate": 0.3, **endpoint},
+                             "effect": {"assumed": 0.1}, "design_prior": prior},
+                            source="f.toml")
+
+    prior = design({"family": "beta_rates", "control": [2, 3], "treatment": 0.5},
+                   scale="odds_ratio").design.design_prior
     assert prior.scale == "odds_ratio" and prior.treatment == 0.5
     with pytest.raises(DesignFileError, match="must agree"):
-        beta_rates_from_table({"family": "beta_rates", "control": [2, 3], "treatment": [1, 1],
-                               "scale": "difference"}, scale="risk_ratio")
-    with pytest.raises(DesignFileError, match="needs 'treatment'"):
-        beta_rates_from_table({"family": "beta_rates", "control": [2, 3]})
-    with pytest.raises(DesignFileError, match="'control' key"):
-        beta_rates_from_table({"family": "beta_rates", "control": [2, -3], "treatment": 0.4})
+        design({"family": "beta_rates", "control": [2, 3], "treatment": [1, 1],
+                "scale": "difference"}, scale="risk_ratio")
+    with pytest.raises(DesignFileError, match="'design_prior.treatment' is required"):
+        design({"family": "beta_rates", "control": [2, 3]})
+    with pytest.raises(DesignFileError, match="'design_prior.control'"):
+        design({"family": "beta_rates", "control": [2, -3], "treatment": 0.4})
+    with pytest.raises(DesignFileError, match="binary endpoints only"):
+        prior_from_table({"family": "beta_rates", "control": [2, 3], "treatment": [1, 1]},
+                         "design_prior")
 
 
 def test_posterior_tail_recurrence_matches_betainc():

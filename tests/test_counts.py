@@ -52,7 +52,7 @@ from assurance import (
     evaluate,
     solve_sample_size,
 )
-from assurance.design_file import read_design_file
+from assurance.design_file import endpoint_from_table, read_design_file
 from assurance.endpoints.counts import (
     CountEndpoint,
     sample_size_for_rate_ratio,
@@ -585,18 +585,18 @@ def test_from_design_table_keys_and_errors():
              "test_variance": "pooled_null",
              "control_rate_prior": {"family": "scipy", "name": "gamma",
                                     "parameters": {"a": 30.0, "scale": 0.02}}}
-    ep = CountEndpoint.from_design_table(table, "trial.toml")
+    ep = endpoint_from_table(table, "trial.toml")
     assert (ep.control_rate, ep.follow_up, ep.overdispersion, ep.allocation) == \
         (0.6, 2.0, 0.8, 1.5)
     assert ep.control_rate_prior.mean() == pytest.approx(0.6)
     with pytest.raises(DesignFileError, match="Did you mean 'overdispersion'"):
-        CountEndpoint.from_design_table(table | {"overdispersal": 1.0}, "trial.toml")
+        endpoint_from_table(table | {"overdispersal": 1.0}, "trial.toml")
     with pytest.raises(DesignFileError, match="'endpoint.follow_up'"):
-        CountEndpoint.from_design_table({"type": "counts", "control_rate": 1.0}, "trial.toml")
-    with pytest.raises(DesignFileError, match="'counts'"):
-        CountEndpoint.from_design_table(table | {"type": "continuous"}, "trial.toml")
-    with pytest.raises(DesignFileError, match=r"trial.toml \[endpoint\].*'overdispersion'"):
-        CountEndpoint.from_design_table(table | {"overdispersion": -1}, "trial.toml")
+        endpoint_from_table({"type": "counts", "control_rate": 1.0}, "trial.toml")
+    with pytest.raises(DesignFileError, match="unknown key 'control_rate' in .endpoint."):
+        endpoint_from_table(table | {"type": "continuous"}, "trial.toml")
+    with pytest.raises(DesignFileError, match=r"trial.toml: 'endpoint.overdispersion'"):
+        endpoint_from_table(table | {"overdispersion": -1}, "trial.toml")
 
 
 def test_case_study_file_runs():

@@ -13,6 +13,7 @@ import pytest
 from scipy import stats
 
 import assurance.design_file as design_file
+import assurance.design_file.reader as design_reader
 from assurance import priors
 from assurance.design_file import parse_design, prior_from_table, read_design_file
 from assurance.errors import DesignFileError
@@ -21,7 +22,7 @@ ROOT = Path(__file__).resolve().parents[1]
 
 
 def _module_example() -> str:
-    doc = design_file.__doc__
+    doc = design_reader.__doc__
     block = doc.split("A complete example::", 1)[1].split("Every unknown key", 1)[0]
     return textwrap.dedent(block)
 
@@ -81,12 +82,12 @@ def test_mixture_table():
 @pytest.mark.parametrize(
     ("table", "words"),
     [
-        ({"family": "normal", "mean": 1.0}, ["needs", "'sd'"]),
+        ({"family": "normal", "mean": 1.0}, ["'design_prior.sd' is required"]),
         ({"family": "normal", "mean": 1.0, "sd": 2.0, "sdd": 1}, ["'sdd'", "Did you mean"]),
         ({"family": "normal", "mean": "one", "sd": 2.0}, ["design_prior.mean", "'one'"]),
         ({"family": "scipy", "name": "poisson", "parameters": {"mu": 1}}, ["continuous"]),
         ({"family": "scipy", "name": "gamma", "parameters": {"b": 1}}, ["do not fit"]),
-        ({"family": "mixture", "parts": []}, ["non-empty"]),
+        ({"family": "mixture", "parts": []}, ["'design_prior.parts'", "at least 1"]),
         ({"mean": 1.0}, ["family", "required"]),
     ],
 )

@@ -218,5 +218,5 @@ def test_design_file_with_posterior_rule_analysis_prior_and_zones():
         parse_design(raw)
     del raw["success"]["alpha"]
     raw["zones"]["target"] = 1.0
-    with pytest.raises(DesignFileError, match="'target'"):
+    with pytest.raises(DesignFileError, match="'zones.target'"):
         parse_design(raw)

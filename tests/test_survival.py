@@ -50,7 +50,7 @@ from assurance.compute.survival_sim import (
     simulate_assurance,
     simulate_trials,
 )
-from assurance.design_file import read_design_file
+from assurance.design_file import endpoint_from_table, read_design_file
 from assurance.endpoints.survival import SurvivalEndpoint, events_needed
 from assurance.errors import AssuranceInputError, DesignFileError
 
@@ -680,7 +680,7 @@ def test_case_study_builds_and_runs():
     raw = tomllib.loads(path.read_text())
     # events are planned at [effect] assumed when the endpoint table does not name its own
     table = {**raw["endpoint"], "assumed_hazard_ratio": raw["effect"]["assumed"]}
-    assert design.endpoint == SurvivalEndpoint.from_design_table(table, str(path))
+    assert design.endpoint == endpoint_from_table(table, str(path))
     assert design.endpoint.assumed_hazard_ratio == design.assumed_effect
     assert design.design_prior.mean() == pytest.approx(math.log(0.8), abs=1e-12)
     ds = evaluate(design, spec.sizes)
@@ -696,18 +696,23 @@ def test_design_table_errors():
     good = {"type": "time_to_event", "control_median": 12, "accrual_time": 24,
             "assumed_hazard_ratio": 0.75}
     with pytest.raises(DesignFileError, match="Did you mean 'control_median'"):
-        SurvivalEndpoint.from_design_table({**good, "control_medain": 3}, "f.toml")
+        endpoint_from_table({**good, "control_medain": 3}, "f.toml")
     with pytest.raises(DesignFileError, match="accrual_time"):
-        SurvivalEndpoint.from_design_table({k: v for k, v in good.items()
-                                            if k != "accrual_time"}, "f.toml")
+        endpoint_from_table({k: v for k, v in good.items() if k != "accrual_time"}, "f.toml")
     with pytest.raises(DesignFileError, match="control_median"):
-        SurvivalEndpoint.from_design_table({k: v for k, v in good.items()
-                                            if k != "control_median"}, "f.toml")
-    with pytest.raises(DesignFileError, match="'dropout_per_year' key"):
-        SurvivalEndpoint.from_design_table({**good, "dropout_per_year": 1.5}, "f.toml")
-    with pytest.raises(DesignFileError, match="time_to_event"):
-        SurvivalEndpoint.from_design_table({**good, "type": "continuous"}, "f.toml")
-    ep = SurvivalEndpoint.from_design_table(
+        endpoint_from_table({k: v for k, v in good.items() if k != "control_median"},
+                            "f.toml")
+    with pytest.raises(DesignFileError, match="'endpoint.dropout_per_year' must be a number"):
+        endpoint_from_table({**good, "dropout_per_year": 1.5}, "f.toml")
+    with pytest.raises(DesignFileError, match="unknown key 'control_median' in .endpoint."):
+        endpoint_from_table({**good, "type": "continuous"}, "f.toml")
+    with pytest.raises(DesignFileError, match="assumed_hazard_ratio"):
+        endpoint_from_table({k: v for k, v in good.items() if k != "assumed_hazard_ratio"},
+                            "f.toml")
+    ep = endpoint_from_table({k: v for k, v in good.items() if k != "assumed_hazard_ratio"},
+                             "f.toml", assumed_effect=0.7)
+    assert ep.assumed_hazard_ratio == 0.7
+    ep = endpoint_from_table(
         {**good, "median_prior": {"family": "uniform", "lower": 8, "upper": 16}}, "f.toml")
     assert isinstance(ep.median_prior, Uniform)
 

@@ -57,13 +57,13 @@ from ..compute.binary_exact import (
     treatment_rate,
 )
 from ..compute.normal_outcome import SuccessProbabilities
-from ..errors import AssuranceInputError, AssuranceWarning, DesignFileError
+from ..errors import AssuranceInputError, AssuranceWarning
 from ..posterior_rules import PosteriorProbability
 from ..priors import PointMass, Prior
 from ..rules import Significance
 from .base import Endpoint, SuccessCalculator
 
-__all__ = ["BinaryEndpoint", "BetaRates", "beta_rates_from_table"]
+__all__ = ["BinaryEndpoint", "BetaRates"]
 
 Layout = Literal["two_arm", "single_arm"]
 Scale = Literal["difference", "risk_ratio", "odds_ratio"]
@@ -347,43 +347,6 @@ def _breaks(y: np.ndarray, scale: str, finder) -> np.ndarray:
         pts = (pts + [1.0, 1.0])[:2]
         flat_out[i] = pts
     return out
-
-
-def beta_rates_from_table(table: dict[str, Any], where: str = "design_prior",
-                          source: str = "design", *, scale: str | None = None) -> BetaRates:
-    """Build a :class:`BetaRates` prior from a design-file table.
-
-    The table reads ``{family = "beta_rates", control = [a, b], treatment = [a, b]}``; either
-    arm may instead be a fixed rate (``control = 0.3``, for a single-arm trial's reference).
-    An optional ``scale`` key must agree with ``scale`` (the endpoint's), which is used when
-    the table has none.
-
-    Examples
-    --------
-    >>> beta_rates_from_table({"family": "beta_rates", "control": [6, 14],
-    ...                        "treatment": [9, 11]})
-    beta_rates(control=[6.0, 14.0], treatment=[9.0, 11.0], scale=difference)
-    """
-    from ..design_file import _as_file_error, _known
-
-    if not isinstance(table, dict):
-        raise DesignFileError(f"{source}: [{where}] must be a table. Got {table!r}.")
-    _known(table, {"family", "control", "treatment", "scale"}, where, source)
-    if table.get("family") != "beta_rates":
-        raise DesignFileError(f"{source}: '{where}.family' must be 'beta_rates' here. "
-                              f"Got {table.get('family')!r}.")
-    missing = [k for k in ("control", "treatment") if k not in table]
-    if missing:
-        raise DesignFileError(f"{source}: '{where}' (beta_rates) needs "
-                              f"{', '.join(repr(m) for m in missing)}: a pair [a, b] or a "
-                              "fixed rate for each arm.")
-    own = table.get("scale")
-    if own is not None and scale is not None and own != scale:
-        raise DesignFileError(f"{source}: '{where}.scale' is {own!r} but the endpoint's scale "
-                              f"is {scale!r}; they must agree (or leave out '{where}.scale').")
-    with _as_file_error(source, where):
-        return BetaRates(table["control"], table["treatment"],
-                         own if own is not None else (scale or "difference"))
 
 
 def _check_analysis_arms(ep: BinaryEndpoint, rates: BetaRates, owner: str) -> None:
@@ -705,61 +668,6 @@ class BinaryEndpoint(Endpoint):
         if self.layout == "single_arm":
             return n_t <= self.exact_up_to and n_t + 1 <= MAX_TABLES
         return min(n_t, n_c) <= self.exact_up_to and (n_t + 1) * (n_c + 1) <= MAX_TABLES
-
-    # ---- design files --------------------------------------------------------------------
-    _TABLE_KEYS = frozenset({"type", "control_rate", "reference_rate", "layout", "allocation",
-                             "scale", "test", "continuity_correction", "better",
-                             "control_prior", "exact_up_to"})
-
-    @classmethod
-    def from_design_table(cls, table: dict[str, Any], source: str = "design"
-                          ) -> BinaryEndpoint:
-        """Build the endpoint from the ``[endpoint]`` table of a design file.
-
-        Keys: ``type = "binary"``; ``control_rate`` (two arms) or ``reference_rate`` (single
-        arm; ``layout`` then defaults to ``"single_arm"``); ``layout``, ``allocation``,
-        ``scale``, ``test``, ``continuity_correction``, ``better``, ``control_prior = [a,
-        b]``, ``exact_up_to``.
-
-        Examples
-        --------
-        >>> BinaryEndpoint.from_design_table({"type": "binary", "control_rate": 0.3,
-        ...                                   "test": "fisher_exact"}).test
-        'fisher_exact'
-        """
-        from ..design_file import _as_file_error, _known
-
-        _known(table, set(cls._TABLE_KEYS), "endpoint", source)
-        kind = table.get("type", "binary")
-        if kind != "binary":
-            raise DesignFileError(f"{source}: 'endpoint.type' must be 'binary' here. "
-                                  f"Got {kind!r}.")
-        given = [k for k in ("control_rate", "reference_rate") if k in table]
-        if len(given) != 1:
-            raise DesignFileError(
-                f"{source}: [endpoint] needs exactly one of 'control_rate' (two arms) and "
-                f"'reference_rate' (single arm). Got {given or 'neither'}.")
-        layout = table.get("layout", "single_arm" if given[0] == "reference_rate"
-                           else "two_arm")
-        if given[0] == "reference_rate" and layout != "single_arm":
-            raise DesignFileError(f"{source}: 'endpoint.reference_rate' is for a single arm; "
-                                  "use 'control_rate' for two arms.")
-        prior = table.get("control_prior")
-        if prior is not None and not isinstance(prior, list):
-            raise DesignFileError(f"{source}: 'endpoint.control_prior' must be a pair [a, b] "
-                                  f"of beta parameters. Got {prior!r}.")
-        with _as_file_error(source, "endpoint"):
-            return cls(
-                control_rate=table[given[0]],
-                layout=layout,
-                allocation=table.get("allocation", 1.0),
-                scale=table.get("scale", "difference"),
-                test=table.get("test", "z"),
-                continuity_correction=table.get("continuity_correction", False),
-                better=table.get("better", "higher"),
-                control_prior=None if prior is None else tuple(prior),
-                exact_up_to=table.get("exact_up_to", 500),
-            )
 
 
 # ------------------------------------------------------------------------------------------
@@ -1216,15 +1124,3 @@ def _posterior_text(spec: PosteriorSpec) -> str:
             f"{POSTERIOR_NODES}-node Gauss-Legendre quadrature over the narrower posterior "
             "(closed form for a single arm), the boundary found by bisection over the "
             "responders (normal approximation: posterior moments on the effect scale)")
-
-
-def _register_design_file_family() -> None:
-    """Let design files say ``family = "beta_rates"`` (see :func:`beta_rates_from_table`)."""
-    from .. import design_file
-
-    register = getattr(design_file, "register_prior_family", None)
-    if register is not None:
-        register("beta_rates", beta_rates_from_table)
-
-
-_register_design_file_family()

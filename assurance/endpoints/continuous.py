@@ -106,14 +106,6 @@ class ContinuousEndpoint(Endpoint):
                 "allocation": self.allocation, "analysis": self.analysis,
                 "better": self.better}
 
-    @classmethod
-    def from_design_table(cls, table: dict[str, Any], source: str = "design"
-                          ) -> ContinuousEndpoint:
-        """Build from a design file's ``[endpoint]`` table (see :mod:`assurance.design_file`)."""
-        from ..design_file import continuous_from_table
-
-        return continuous_from_table(table, source)
-
     def calculator(self, prior_benefit: Prior, rule_benefit: Significance, *, draws: int,
                    seed: int | None, nuisance: Prior | None = None) -> SuccessCalculator:
         """Exact calculator, or Monte Carlo when ``nuisance`` (a prior on sigma) is given."""

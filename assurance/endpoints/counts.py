@@ -305,46 +305,6 @@ class CountEndpoint(Endpoint):
                                    else self.control_rate_prior.to_dict()),
         }
 
-    @classmethod
-    def from_design_table(cls, table: dict[str, Any], source: str = "design") -> CountEndpoint:
-        """Build the endpoint from the ``[endpoint]`` table of a design file.
-
-        Keys: ``type = "counts"``, ``control_rate`` and ``follow_up`` (required),
-        ``overdispersion``, ``dropout_rate``, ``layout``, ``allocation``, ``better``,
-        ``variance_at``, ``planning_rate_ratio``, ``test_variance`` and an optional
-        ``[endpoint.control_rate_prior]`` table written like any prior of the file. The
-        design prior of such a file is on the log rate ratio.
-
-        Examples
-        --------
-        >>> ep = CountEndpoint.from_design_table(
-        ...     {"type": "counts", "control_rate": 0.6, "follow_up": 2.0, "overdispersion": 0.8})
-        >>> ep.mean_exposure
-        2.0
-        """
-        from ..design_file import _as_file_error, check_endpoint_table, prior_from_table
-        from ..errors import DesignFileError
-
-        check_endpoint_table(table, _FILE_KEYS, "counts", source)
-        for key, what in (("control_rate", "the control event rate per unit time"),
-                          ("follow_up", "the planned follow-up per patient")):
-            if key not in table:
-                raise DesignFileError(f"{source}: 'endpoint.{key}' ({what}) is required.")
-        rate_prior = None
-        if "control_rate_prior" in table:
-            rate_prior = prior_from_table(table["control_rate_prior"],
-                                          "endpoint.control_rate_prior", source)
-        options = {k: v for k, v in table.items()
-                   if k not in ("type", "control_rate", "follow_up", "control_rate_prior")}
-        with _as_file_error(source, "endpoint"):
-            return cls(table["control_rate"], table["follow_up"],
-                       control_rate_prior=rate_prior, **options)
-
-
-_FILE_KEYS = {"type", "control_rate", "follow_up", "overdispersion", "dropout_rate", "layout",
-              "allocation", "better", "variance_at", "planning_rate_ratio", "test_variance",
-              "control_rate_prior"}
-
 
 def _check_rate_prior(prior: Any) -> None:
     if not isinstance(prior, Prior):

@@ -29,7 +29,7 @@ import numpy as np
 from scipy import optimize, special, stats
 
 from .._validation import check_choice, check_int, check_real, check_real_array
-from ..errors import AssuranceInputError, DesignFileError
+from ..errors import AssuranceInputError
 from ..priors import Normal, PointMass, Prior
 from ..rules import Significance
 from .base import Endpoint, SuccessCalculator
@@ -658,45 +658,6 @@ class SurvivalEndpoint(Endpoint):
             "median_prior": None if self.median_prior is None else self.median_prior.to_dict(),
         }
 
-    # ---- design file -----------------------------------------------------------------------
-    @classmethod
-    def from_design_table(cls, table: dict[str, Any], source: str = "design"
-                          ) -> SurvivalEndpoint:
-        """Build the endpoint from the ``[endpoint]`` table of a design file.
-
-        Keys (plain snake_case, values in the file's time unit): ``type =
-        "time_to_event"``; ``assumed_hazard_ratio``; ``accrual_time``; ``follow_up_time``;
-        ``control_median`` or ``control_hazard`` (a number, or a list with
-        ``hazard_starts``); ``accrual_ramp``; ``dropout_per_year``; ``time_unit``;
-        ``allocation``; ``better``; ``events_follow_true_effect``; and an optional
-        ``[endpoint.median_prior]`` table written like any prior table.
-
-        Examples
-        --------
-        >>> ep = SurvivalEndpoint.from_design_table(
-        ...     {"type": "time_to_event", "control_median": 12, "accrual_time": 24,
-        ...      "follow_up_time": 12, "assumed_hazard_ratio": 0.75}, "demo.toml")
-        >>> ep.analysis_time
-        36.0
-        """
-        from ..design_file import _as_file_error, check_endpoint_table, prior_from_table
-
-        check_endpoint_table(table, _FILE_KEYS, "time_to_event", source)
-        for key in ("assumed_hazard_ratio", "accrual_time"):
-            if key not in table:
-                raise DesignFileError(f"{source}: 'endpoint.{key}' is required for a "
-                                      "time-to-event endpoint.")
-        if "control_median" not in table and "control_hazard" not in table:
-            raise DesignFileError(f"{source}: give 'endpoint.control_median' (exponential) or "
-                                  "'endpoint.control_hazard' (with 'hazard_starts' for "
-                                  "piecewise hazards).")
-        args = {k: v for k, v in table.items() if k not in ("type", "median_prior")}
-        if "median_prior" in table:
-            args["median_prior"] = prior_from_table(table["median_prior"],
-                                                    "endpoint.median_prior", source)
-        with _as_file_error(source, "endpoint"):
-            return cls(**args)
-
     # ---- success probabilities ---------------------------------------------------------------
     def calculator(self, prior_benefit: Prior, rule_benefit: Significance, *, draws: int,
                    seed: int | None, nuisance: Prior | None = None) -> SuccessCalculator:
@@ -718,12 +679,6 @@ class SurvivalEndpoint(Endpoint):
         """Hazard ratio at benefit-scale effect(s), log clipped to +-50 against overflow."""
         return np.exp(np.clip(self.sign * np.asarray(benefit, dtype=float), -_LOG_HR_LIMIT,
                               _LOG_HR_LIMIT))
-
-
-_FILE_KEYS = {"type", "assumed_hazard_ratio", "accrual_time", "follow_up_time",
-              "control_median", "control_hazard", "hazard_starts", "accrual_ramp",
-              "dropout_per_year", "time_unit", "allocation", "better",
-              "events_follow_true_effect", "median_prior"}
 
 
 def _vector_ppf(part: Prior) -> Any:

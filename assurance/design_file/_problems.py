@@ -1,0 +1,246 @@
+"""Collect every problem of a design file and say each in the file's own words.
+
+A problem names its key as the file writes it (``'endpoint.sd'``,
+``'design_prior.parts[1].weight'``), says what is allowed, and shows the value given. The
+schema's messages (pydantic's) and the package's own parameter checks (which speak of
+Python parameters such as ``sigma``) are both rephrased here.
+"""
+
+from __future__ import annotations
+
+import difflib
+import re
+import types
+import typing
+from typing import Any
+
+from ..errors import AssuranceInputError, DesignFileError
+
+__all__ = ["Problems", "did_you_mean"]
+
+
+def did_you_mean(value: Any, options: Any, cutoff: float = 0.6) -> str:
+    """`` Did you mean 'x'?`` for the closest option, or an empty string.
+
+    Examples
+    --------
+    >>> did_you_mean("normel", ["normal", "uniform"])
+    " Did you mean 'normal'?"
+    """
+    close = difflib.get_close_matches(str(value), [str(o) for o in options], n=1,
+                                      cutoff=cutoff)
+    return f" Did you mean {close[0]!r}?" if close else ""
+
+
+#: Python parameter names -> design-file keys, where they differ
+_PARAMETER_KEYS = {"sigma": "sd", "loc": "location"}
+
+_TYPE_WORDS = {
+    "float_type": "a number",
+    "float_parsing": "a number",
+    "int_type": "a whole number",
+    "int_parsing": "a whole number",
+    "int_from_float": "a whole number",
+    "bool_type": "true or false",
+    "bool_parsing": "true or false",
+    "string_type": "text in quotes",
+    "list_type": "a list [ ... ]",
+    "dict_type": "a table",
+    "model_type": "a table",
+    "model_attributes_type": "a table",
+    "finite_number": "a finite number",
+}
+
+
+def _path(parts: tuple[Any, ...]) -> str:
+    text = ""
+    for part in parts:
+        if isinstance(part, int):
+            text += f"[{part}]"
+        else:
+            text += ("." if text else "") + str(part)
+    return text
+
+
+def _shown(value: Any) -> str:
+    text = repr(value)
+    return text if len(text) <= 80 else text[:77] + "..."
+
+
+def _models_in(annotation: Any) -> list[Any]:
+    """The table models an annotation can hold (through Optional, Annotated, list, Union)."""
+    from pydantic import BaseModel
+
+    origin = typing.get_origin(annotation)
+    if origin is typing.Annotated:
+        return _models_in(typing.get_args(annotation)[0])
+    if origin in (typing.Union, types.UnionType, list):
+        return [m for arg in typing.get_args(annotation) for m in _models_in(arg)]
+    if isinstance(annotation, type) and issubclass(annotation, BaseModel):
+        return [annotation]
+    return []
+
+
+def _model_at(loc: tuple[Any, ...]) -> Any:
+    """The table model at ``loc`` (a pydantic error location with tags), or None."""
+    from .schema import TAGGED, DesignFileModel
+
+    model: Any = DesignFileModel
+    candidates: list[Any] = [model]
+    for part in loc:
+        if isinstance(part, int):
+            continue
+        if ":" in str(part):
+            model = TAGGED.get(str(part))
+            candidates = [model] if model is not None else []
+            continue
+        found = None
+        for candidate in candidates:
+            if candidate is None:
+                continue
+            fields = {f.alias or name: f for name, f in candidate.model_fields.items()}
+            if part in fields:
+                found = fields[part]
+                break
+        if found is None:
+            return None
+        candidates = _models_in(found.annotation)
+        model = candidates[0] if len(candidates) == 1 else None
+    return model
+
+
+def _field(model: Any, key: str) -> Any:
+    if model is None:
+        return None
+    for name, f in model.model_fields.items():
+        if (f.alias or name) == key:
+            return f
+    return None
+
+
+class Problems:
+    """Problems found in one design file, reported together."""
+
+    def __init__(self, source: str):
+        self.source = source
+        self.items: list[str] = []
+
+    def __bool__(self) -> bool:
+        return bool(self.items)
+
+    def add(self, where: str, text: str) -> None:
+        """One problem; ``where`` (a table) is named unless the text names its key already."""
+        text = text.strip()
+        if where and not text.startswith(("'", "[")):
+            text = f"[{where}] {text}"
+        if text not in self.items:
+            self.items.append(text)
+
+    def add_domain(self, exc: AssuranceInputError, where: str,
+                   keys: dict[str, str] | None = None, note: str = "") -> None:
+        """A package input error, its Python parameter named as the file's key."""
+        def key(match: re.Match[str]) -> str:
+            name = match.group(1)
+            if keys and name in keys:
+                return f"'{keys[name]}'"
+            name = _PARAMETER_KEYS.get(name, name)
+            return f"'{where}.{name}'" if where else f"'{name}'"
+
+        text = re.sub(r"The '([\w.]+)' parameter of \w+", key, str(exc))
+        text = re.sub(r"\bGot (.*) instead\.$", r"Got \1.", text)
+        self.add(where, text + note)
+
+    def add_validation(self, exc: Any, prefix: tuple[Any, ...] = ()) -> None:
+        """The schema's findings (a pydantic ``ValidationError``), rephrased."""
+        for err in exc.errors(include_url=False):
+            loc = tuple(prefix) + tuple(err["loc"])
+            shown = tuple(p for p in loc if not (isinstance(p, str) and ":" in p))
+            self.add("", self._say(err, loc, shown))
+
+    def _say(self, err: dict[str, Any], loc: tuple[Any, ...], shown: tuple[Any, ...]) -> str:
+        kind, ctx, value = err["type"], err.get("ctx") or {}, err.get("input")
+        path = _path(shown)
+        if kind == "extra_forbidden":
+            model = _model_at(loc[:-1])
+            known = [] if model is None else [f.alias or n for n, f in model.model_fields.items()]
+            table = _path(shown[:-1])
+            place = f"[{table}]" if table else "the top level"
+            hint = did_you_mean(shown[-1], known, cutoff=0.5)
+            listing = f" Known keys: {', '.join(known)}." if known else ""
+            return f"unknown key {shown[-1]!r} in {place}.{hint}{listing}"
+        if kind == "missing":
+            f = _field(_model_at(loc[:-1]), str(shown[-1]))
+            why = f" ({f.description.rstrip('.')})" if f is not None and f.description else ""
+            return f"'{path}' is required{why}."
+        if kind in ("union_tag_invalid", "union_tag_not_found"):
+            tags = re.findall(r"'(\w+):(\w+)'", str(ctx.get("expected_tags", "")))
+            if not tags:
+                from .schema import TAGGED
+
+                prefix = str(ctx.get("tag", "")).split(":")[0]
+                tags = [tuple(t.split(":")) for t in TAGGED if t.startswith(prefix + ":")]
+            field = {"prior": "family", "part": "family", "endpoint": "type",
+                     "rule": "rule"}.get(tags[0][0] if tags else "", "family")
+            names = [name for _, name in tags]
+            given = value.get(field) if isinstance(value, dict) else None
+            if not isinstance(value, dict):
+                return f"'{path}' must be a table. Got {_shown(value)}."
+            if given is None:
+                return f"'{path}.{field}' is required; choose one of {', '.join(names)}."
+            return (f"'{path}.{field}' must be one of {', '.join(names)}. Got "
+                    f"{_shown(given)}.{did_you_mean(given, names)}")
+        if kind == "literal_error":
+            return f"'{path}' must be one of {ctx.get('expected', '')}. Got {_shown(value)}." \
+                + did_you_mean(value, re.findall(r"'([^']*)'", str(ctx.get("expected", ""))))
+        bounds = {"greater_than": "> {gt}", "greater_than_equal": ">= {ge}",
+                  "less_than": "< {lt}", "less_than_equal": "<= {le}"}
+        if kind in bounds:
+            f = _field(_model_at(loc[:-1]), str(shown[-1]))
+            allowed = _range_text(f) or bounds[kind].format(**{k: _num(v)
+                                                              for k, v in ctx.items()})
+            return f"'{path}' must be a number {allowed}. Got {_shown(value)}."
+        if kind == "too_short":
+            return (f"'{path}' must have at least {ctx.get('min_length')} "
+                    f"entr{'y' if ctx.get('min_length') == 1 else 'ies'}. Got {_shown(value)}.")
+        if kind == "too_long":
+            return (f"'{path}' must have at most {ctx.get('max_length')} entries. Got "
+                    f"{_shown(value)}.")
+        if kind in _TYPE_WORDS:
+            return f"'{path}' must be {_TYPE_WORDS[kind]}. Got {_shown(value)}."
+        if kind == "value_error":
+            text = str(ctx.get("error", err["msg"]))
+            target = f"'{path}'" if path else "the design"
+            if isinstance(value, dict):
+                return f"[{path}] {text}." if path else f"{text}."
+            return f"{target} {text}."
+        return f"'{path}': {err['msg']}. Got {_shown(value)}."
+
+    def raise_if_any(self) -> None:
+        """Raise one :class:`DesignFileError` listing every problem, if there are any."""
+        if not self.items:
+            return
+        if len(self.items) == 1:
+            message = f"{self.source}: {self.items[0]}"
+        else:
+            lines = "\n".join(f"  {i}. {p}" for i, p in enumerate(self.items, 1))
+            message = f"{self.source}: {len(self.items)} problems:\n{lines}"
+        error = DesignFileError(message)
+        error.problems = list(self.items)  # type: ignore[attr-defined]
+        raise error
+
+
+def _num(value: Any) -> str:
+    return f"{float(value):g}" if isinstance(value, int | float) else str(value)
+
+
+def _range_text(f: Any) -> str:
+    """'> 0 and < 1' from a field's constraints, or ''."""
+    if f is None:
+        return ""
+    parts = []
+    for meta in f.metadata:
+        for attr, sign in (("gt", ">"), ("ge", ">="), ("lt", "<"), ("le", "<=")):
+            bound = getattr(meta, attr, None)
+            if bound is not None:
+                parts.append(f"{sign} {_num(bound)}")
+    return " and ".join(parts)

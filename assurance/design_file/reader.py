@@ -1,0 +1,775 @@
+"""Read a TOML design file into a :class:`~assurance.TrialDesign` and its run settings.
+
+The file format is this package's own, in plain words; every key is declared once in
+:mod:`assurance.design_file.schema` (the reference page ``docs/design-file.md`` lists them
+all). A complete example::
+
+    title = "Invented example: pain score trial"
+
+    [endpoint]
+    type = "continuous"
+    sd = 10.0               # planning SD of the outcome
+    layout = "two_arm"      # or "single_arm"
+    allocation = 1.0        # treatment patients per control patient
+    analysis = "t"          # "t": SD estimated at the analysis; "z": SD known
+    better = "higher"       # or "lower"
+
+    [success]
+    alpha = 0.05
+    sided = "two"           # two-sided alpha, success only in the favourable direction
+    margin = 0.0            # > 0 for non-inferiority
+    # min_estimate = 2.0    # observed effect must also reach this
+
+    [effect]
+    assumed = 4.0           # classical power is computed here
+    relevant = 3.0          # smallest clinically relevant effect
+    also_power_at = [2.0, 5.0]
+
+    [design_prior]
+    family = "normal"
+    mean = 4.0
+    sd = 2.5
+
+    [sizes]                 # total patients; or: list = [100, 200, 300]
+    from = 20
+    to = 600
+    step = 20
+
+    [targets]
+    power = 0.9
+    assurance = 0.7
+    conditional_assurance = 0.8
+
+    [monte_carlo]           # used only where no exact route exists
+    draws = 20000
+    seed = 2026
+
+Every unknown key is an error naming the nearest known key.
+
+Reading happens in three passes, and every problem found in any of them is reported
+together: the schema checks each table's keys, types and ranges; the tables are turned into
+the package's objects (whose own checks speak of the file's keys); and the checks that the
+computation would make before it starts (a rule the endpoint cannot evaluate, precision the
+prior cannot support) are run on the finished design. A file that passes ``assurance
+check`` is therefore not rejected by ``assurance plan`` for its inputs.
+"""
+
+from __future__ import annotations
+
+import math
+import tomllib
+from collections.abc import Callable
+from dataclasses import dataclass, field
+from functools import cache
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from ..errors import AssuranceInputError, DesignFileError
+from ._problems import Problems, did_you_mean
+
+__all__ = ["DesignFile", "read_design_file", "parse_design", "prior_from_table",
+           "prior_with_origin", "endpoint_from_table"]
+
+#: largest design file read (a design is a few hundred bytes; this stops a wrong path)
+MAX_FILE_BYTES = 1_000_000
+
+
+@dataclass(frozen=True)
+class DesignFile:
+    """A parsed design file: the design, what to compute, and the normalised record.
+
+    Attributes
+    ----------
+    design
+        The :class:`~assurance.TrialDesign`.
+    sizes
+        Total sizes to evaluate (None: chosen from the targets).
+    targets
+        Quantity -> target probability.
+    draws, seed
+        Monte Carlo settings.
+    source
+        Where the design came from (the file's path).
+    zones, precision
+        :class:`~assurance.GoConsiderStop` and :class:`~assurance.PrecisionPlan`, or None.
+    prior_origin
+        What the design prior was built from (a fit, a text), or None.
+    record
+        Every table with every key in force, defaults filled in, in the file's own names;
+        :func:`assurance.design_file.record.design_toml` writes it as ``design.toml``.
+    notes
+        Warnings for the reader of the design (not errors).
+    """
+
+    design: Any
+    sizes: np.ndarray | None
+    targets: dict[str, float] = field(default_factory=dict)
+    draws: int = 20_000
+    seed: int = 20260101
+    source: str = ""
+    zones: Any = None
+    prior_origin: Any = None
+    precision: Any = None
+    record: dict[str, Any] = field(default_factory=dict, compare=False)
+    notes: tuple[str, ...] = ()
+
+
+def read_design_file(path: str | Path) -> DesignFile:
+    """Read and check a TOML design file.
+
+    Parameters
+    ----------
+    path
+        The design file.
+
+    Returns
+    -------
+    DesignFile
+
+    Raises
+    ------
+    DesignFileError
+        If the file is missing or not valid TOML, or describes an invalid design. Every
+        problem is listed, each with its table, key, value and what is allowed.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> text = '''title = "Demo"
+    ... [endpoint]
+    ... sd = 10
+    ... [design_prior]
+    ... family = "normal"
+    ... mean = 4
+    ... sd = 2
+    ... '''
+    >>> with tempfile.TemporaryDirectory() as tmp:
+    ...     path = pathlib.Path(tmp, "trial.toml")
+    ...     _ = path.write_text(text)
+    ...     spec = read_design_file(path)
+    >>> spec.design.endpoint.sigma
+    10.0
+    """
+    path = Path(path)
+    if not path.is_file():
+        what = "is a folder, not a file" if path.is_dir() else "was not found"
+        raise DesignFileError(f"The design file {str(path)!r} {what}. Check the path.")
+    if path.stat().st_size > MAX_FILE_BYTES:
+        raise DesignFileError(f"{path} is {path.stat().st_size:,} bytes; a design file is a "
+                              f"short text file (at most {MAX_FILE_BYTES:,} bytes).")
+    try:
+        raw = tomllib.loads(path.read_text(encoding="utf-8"))
+    except tomllib.TOMLDecodeError as exc:
+        raise DesignFileError(f"{path} is not valid TOML: {exc}.") from None
+    except UnicodeDecodeError:
+        raise DesignFileError(f"{path} is not a UTF-8 text file.") from None
+    return parse_design(raw, source=str(path))
+
+
+def parse_design(raw: dict[str, Any], *, source: str = "design") -> DesignFile:
+    """Build a :class:`DesignFile` from an already-parsed TOML mapping.
+
+    All problems are collected and raised together as one :class:`DesignFileError` whose
+    ``problems`` attribute lists them.
+
+    Examples
+    --------
+    >>> spec = parse_design({"endpoint": {"sd": 10.0},
+    ...                      "design_prior": {"family": "normal", "mean": 4.0, "sd": 2.0}})
+    >>> spec.record["success"]["alpha"], spec.record["endpoint"]["analysis"]
+    (0.025, 't')
+    """
+    problems = Problems(source)
+    tables = _validate_tables(raw, problems)
+    built = _Builder(tables, problems, source).build()
+    problems.raise_if_any()
+    return built
+
+
+# ------------------------------------------------------------------------------------------
+# pass 1: the schema
+# ------------------------------------------------------------------------------------------
+@cache
+def _adapters() -> dict[str, Any]:
+    from pydantic import TypeAdapter
+
+    from .schema import DesignFileModel
+
+    return {name: TypeAdapter(f.rebuild_annotation())
+            for name, f in DesignFileModel.model_fields.items()}
+
+
+def _validate_tables(raw: Any, problems: Problems) -> dict[str, Any]:
+    """Each top-level key validated on its own, so one bad table hides no other problem."""
+    from pydantic import ValidationError
+
+    from .schema import DesignFileModel
+
+    if not isinstance(raw, dict):
+        problems.add("", f"the design must be a TOML table of tables. Got {raw!r}.")
+        return {}
+    fields = DesignFileModel.model_fields
+    out: dict[str, Any] = {}
+    for name, value in raw.items():
+        if name not in fields:
+            hint = did_you_mean(name, fields)
+            problems.add("", f"unknown table or key {name!r} at the top level.{hint} Known: "
+                         f"{', '.join(fields)}.")
+            continue
+        try:
+            out[name] = _adapters()[name].validate_python(value)
+        except ValidationError as exc:
+            problems.add_validation(exc, prefix=(name,))
+            out[name] = _FAILED
+    for name, f in fields.items():
+        if name in out:
+            continue
+        if f.is_required():
+            problems.add("", f"the [{name}] table is missing; it is required ({f.description})")
+            out[name] = _FAILED
+        else:
+            out[name] = f.get_default(call_default_factory=True)
+    return out
+
+
+class _Failed:
+    """A table that failed its checks (already reported)."""
+
+    def __repr__(self) -> str:  # pragma: no cover - debugging aid
+        return "<failed>"
+
+
+_FAILED = _Failed()
+
+
+def _ok(*values: Any) -> bool:
+    return not any(v is _FAILED for v in values)
+
+
+# ------------------------------------------------------------------------------------------
+# pass 2 and 3: build the objects, then the checks the computation makes before it starts
+# ------------------------------------------------------------------------------------------
+#: TrialDesign parameter -> design-file key
+_DESIGN_KEYS = {"assumed_effect": "effect.assumed", "relevant_effect": "effect.relevant",
+                "power_effects": "effect.also_power_at", "sigma_prior": "sd_prior",
+                "rule.min_estimate": "success.min_estimate", "rule.beyond": "success.beyond",
+                "analysis_prior": "analysis_prior", "design_prior": "design_prior",
+                "title": "title", "endpoint": "endpoint", "rule": "success"}
+
+
+class _Builder:
+    def __init__(self, tables: dict[str, Any], problems: Problems, source: str):
+        self.t, self.problems, self.source = tables, problems, source
+
+    def attempt(self, where: str, make: Callable[[], Any], keys: dict[str, str] | None = None,
+                note: str = "") -> Any:
+        """Run ``make``; an input error becomes a problem under ``where``."""
+        try:
+            return make()
+        except DesignFileError as exc:
+            for problem in getattr(exc, "problems", [str(exc)]):
+                self.problems.add("", problem)
+        except AssuranceInputError as exc:
+            self.problems.add_domain(exc, where, keys, note)
+        return _FAILED
+
+    def build(self) -> DesignFile:
+        t = self.t
+        effect = t["effect"]
+        endpoint = _FAILED
+        if _ok(t["endpoint"], effect):
+            endpoint = self.attempt("endpoint", lambda: _endpoint(t["endpoint"], effect, self))
+        rule = _FAILED if t["success"] is _FAILED else self.attempt(
+            "success", lambda: _rule(t["success"]))
+        design_prior, origin = _FAILED, None
+        if _ok(t["design_prior"], endpoint):
+            made = self.attempt("design_prior", lambda: _prior_and_origin(
+                t["design_prior"], "design_prior", self, endpoint))
+            if made is not _FAILED:
+                design_prior, origin = made
+        analysis_prior = None
+        if t["analysis_prior"] is not None and _ok(t["analysis_prior"], endpoint):
+            analysis_prior = self.attempt("analysis_prior", lambda: _prior_and_origin(
+                t["analysis_prior"], "analysis_prior", self, endpoint)[0])
+        elif t["analysis_prior"] is not None:
+            analysis_prior = _FAILED
+        sd_prior = None
+        if t["sd_prior"] is not None and _ok(t["sd_prior"], endpoint):
+            if endpoint.to_dict().get("kind") != "continuous":
+                self.problems.add("sd_prior", "[sd_prior] applies to continuous endpoints only "
+                                  f"(this endpoint is {endpoint.to_dict().get('kind')}).")
+                sd_prior = _FAILED
+            else:
+                sd_prior = self.attempt("sd_prior", lambda: _prior_and_origin(
+                    t["sd_prior"], "sd_prior", self, None)[0])
+        elif t["sd_prior"] is not None:
+            sd_prior = _FAILED
+        zones = None
+        if t["zones"] is not None and t["zones"] is not _FAILED:
+            zones = self.attempt("zones", lambda: _zones(t["zones"], endpoint))
+        elif t["zones"] is _FAILED:
+            zones = _FAILED
+        precision = None
+        if t["precision"] is not None and t["precision"] is not _FAILED:
+            precision = self.attempt("precision", lambda: _precision(t["precision"]))
+        elif t["precision"] is _FAILED:
+            precision = _FAILED
+        title = t["title"] if t["title"] is not _FAILED else None
+        if title is None:
+            title = Path(self.source).stem or "Untitled trial"
+        design = _FAILED
+        if _ok(endpoint, rule, design_prior, analysis_prior, sd_prior, effect):
+            design = self.attempt("", lambda: _trial_design(
+                endpoint, design_prior, rule, effect, sd_prior, analysis_prior, title),
+                _DESIGN_KEYS, _scale_note(endpoint))
+        sizes = None
+        if t["sizes"] is not None and t["sizes"] is not _FAILED:
+            sizes = _sizes(t["sizes"])
+            if endpoint is not _FAILED and sizes.min() < endpoint.smallest_total:
+                self.problems.add("sizes", f"every size must be >= {endpoint.smallest_total} "
+                                  "(the fewest patients this analysis allows). Got "
+                                  f"{int(sizes.min())}.")
+        targets: dict[str, float] = {}
+        if t["targets"] is not _FAILED:
+            targets = {k: float(v) for k, v in t["targets"].model_dump().items()
+                       if v is not None}
+            if "conditional_assurance" in targets and effect is not _FAILED and \
+                    effect.relevant is None:
+                self.problems.add("targets", "'targets.conditional_assurance' needs "
+                                  "'effect.relevant' (the smallest clinically relevant effect).")
+        mc = t["monte_carlo"]
+        draws, seed = (20_000, 20260101) if mc is _FAILED else (mc.draws, mc.seed)
+        notes: list[str] = []
+        if design is not _FAILED:
+            self.preflight(design, zones, precision, draws, seed)
+            notes += _harmful_side_notes(design)
+        if self.problems:
+            return None  # type: ignore[return-value]  # raised by the caller
+        record = _record(t, title, endpoint)
+        return DesignFile(design=design, sizes=sizes, targets=targets, draws=draws, seed=seed,
+                          source=self.source, zones=zones, prior_origin=origin,
+                          precision=precision, record=record, notes=tuple(notes))
+
+    def preflight(self, design: Any, zones: Any, precision: Any, draws: int, seed: int
+                  ) -> None:
+        """The checks the computation makes before it starts, reported as file problems."""
+        import warnings
+
+        from ..errors import AssuranceWarning
+
+        endpoint = design.endpoint
+
+        def calculator(rule_natural: Any | None) -> Any:
+            rule = (design.benefit_rule if rule_natural is None
+                    else endpoint.benefit_rule(rule_natural, design.analysis_prior))
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore", AssuranceWarning)
+                return endpoint.calculator(design.benefit_prior, rule, draws=min(draws, 200),
+                                           seed=seed, nuisance=design.sigma_prior)
+
+        self.attempt("success", lambda: calculator(None), _DESIGN_KEYS)
+        if zones is not None and zones is not _FAILED:
+            self.attempt("zones", lambda: [calculator(zones.go_rule()),
+                                           calculator(zones.not_stop_rule())])
+        if precision is not None and precision is not _FAILED:
+            from ..precision_design import precision_model_for
+
+            self.attempt("precision", lambda: precision_model_for(design))
+
+
+# ------------------------------------------------------------------------------------------
+# tables -> objects
+# ------------------------------------------------------------------------------------------
+def _endpoint(table: Any, effect: Any, builder: _Builder | None) -> Any:
+    kind = table.type
+    if kind == "continuous":
+        from ..endpoints.continuous import ContinuousEndpoint
+
+        return ContinuousEndpoint(sigma=table.sd, layout=table.layout,
+                                  allocation=table.allocation, analysis=table.analysis,
+                                  better=table.better)
+    if kind == "binary":
+        from ..endpoints.binary import BinaryEndpoint
+
+        single = table.reference_rate is not None
+        return BinaryEndpoint(
+            control_rate=table.reference_rate if single else table.control_rate,
+            layout=table.layout or ("single_arm" if single else "two_arm"),
+            allocation=table.allocation, scale=table.scale, test=table.test,
+            continuity_correction=table.continuity_correction, better=table.better,
+            control_prior=None if table.control_prior is None else tuple(table.control_prior),
+            exact_up_to=table.exact_up_to)
+    if kind == "time_to_event":
+        from ..endpoints.survival import SurvivalEndpoint
+
+        planning = table.assumed_hazard_ratio
+        if planning is None:
+            planning = None if effect is None else effect.assumed
+        if planning is None:
+            raise DesignFileError("'endpoint.assumed_hazard_ratio' is required for a "
+                                  "time-to-event endpoint when [effect] gives no 'assumed' "
+                                  "hazard ratio (the events are planned at it).")
+        median_prior = None
+        if table.median_prior is not None:
+            median_prior = _prior_and_origin(table.median_prior, "endpoint.median_prior",
+                                             builder, None)[0]
+        args = {k: getattr(table, k) for k in (
+            "accrual_time", "follow_up_time", "control_median", "hazard_starts",
+            "accrual_ramp", "dropout_per_year", "time_unit", "allocation", "better",
+            "events_follow_true_effect")}
+        hazard = table.control_hazard
+        return SurvivalEndpoint(assumed_hazard_ratio=planning, median_prior=median_prior,
+                                control_hazard=tuple(hazard) if isinstance(hazard, list)
+                                else hazard, **args)
+    from ..endpoints.counts import CountEndpoint
+
+    rate_prior = None
+    if table.control_rate_prior is not None:
+        rate_prior = _prior_and_origin(table.control_rate_prior, "endpoint.control_rate_prior",
+                                       builder, None)[0]
+    return CountEndpoint(table.control_rate, table.follow_up, control_rate_prior=rate_prior,
+                         **{k: getattr(table, k) for k in (
+                             "overdispersion", "dropout_rate", "layout", "allocation",
+                             "better", "variance_at", "planning_rate_ratio",
+                             "test_variance")})
+
+
+def _rule(table: Any) -> Any:
+    from ..posterior_rules import AllOf, MinimumEstimate, PosteriorProbability
+    from ..rules import Significance
+
+    if table.rule == "significance":
+        return Significance(alpha=table.alpha, sided=table.sided, margin=table.margin,
+                            min_estimate=table.min_estimate)
+    rule = PosteriorProbability(level=table.level, beyond=table.beyond)
+    if table.min_estimate is not None:
+        rule = AllOf((rule, MinimumEstimate(table.min_estimate)))
+    return rule
+
+
+def _zones(table: Any, endpoint: Any) -> Any:
+    from ..zones import GoConsiderStop
+
+    zones = GoConsiderStop(**table.model_dump())
+    if endpoint is not _FAILED:
+        zones.check_direction(endpoint)
+    return zones
+
+
+def _precision(table: Any) -> Any:
+    from ..precision_design import PrecisionPlan
+
+    values = table.model_dump()
+    return PrecisionPlan(**{**values, "criteria": tuple(values["criteria"])})
+
+
+def _trial_design(endpoint: Any, design_prior: Any, rule: Any, effect: Any, sd_prior: Any,
+                  analysis_prior: Any, title: str) -> Any:
+    from ..design import TrialDesign
+
+    return TrialDesign(endpoint=endpoint, design_prior=design_prior, rule=rule,
+                       assumed_effect=effect.assumed, relevant_effect=effect.relevant,
+                       sigma_prior=sd_prior, analysis_prior=analysis_prior,
+                       power_effects=tuple(effect.also_power_at), title=title)
+
+
+def _sizes(table: Any) -> np.ndarray:
+    if table.list_ is not None:
+        return np.array(table.list_, dtype=int)
+    step = table.step if table.step is not None else max(1, (table.to - table.from_) // 50)
+    return np.arange(table.from_, table.to + 1, step)
+
+
+def _record(t: dict[str, Any], title: str, endpoint: Any) -> dict[str, Any]:
+    """Every table in force, in the file's names, defaults and derived values filled in."""
+    record: dict[str, Any] = {"title": title}
+    for name, value in t.items():
+        if name == "title" or value is None:
+            continue
+        record[name] = value.model_dump(by_alias=True, exclude_none=True)
+    ep = record["endpoint"]
+    if ep["type"] == "time_to_event":
+        ep["assumed_hazard_ratio"] = endpoint.assumed_hazard_ratio
+    if ep["type"] == "binary":
+        ep["layout"] = endpoint.layout
+    for name in ("design_prior", "analysis_prior"):
+        table = record.get(name)
+        if table is not None and table["family"] == "beta_rates" and "scale" not in table:
+            table["scale"] = endpoint.scale
+    sizes = record.get("sizes")
+    if sizes is not None and "list" not in sizes and "step" not in sizes:
+        sizes["step"] = max(1, (sizes["to"] - sizes["from"]) // 50)
+    return record
+
+
+def _scale_note(endpoint: Any) -> str:
+    """For ratio endpoints: on which scale [effect] and rule values are read."""
+    if not endpoint.ratio_scale:
+        return ""
+    return (f" ([effect] and [success] values are {endpoint.effect_name}s, no effect = 1; "
+            "prior parameters are on the log ratio.)")
+
+
+def _harmful_side_notes(design: Any) -> list[str]:
+    """Assumed or relevant effects on the harmful side of no effect (or beyond the margin)."""
+    ep = design.endpoint
+    margin = float(getattr(design.rule, "margin", 0.0) or 0.0)
+    null = float(getattr(design.benefit_rule, "null_value", 0.0)) if margin > 0 else 0.0
+    boundary = "the non-inferiority margin" if margin > 0 else "no effect"
+    notes = []
+    for key, value in (("effect.assumed", design.assumed_effect),
+                       ("effect.relevant", design.relevant_effect)):
+        if value is None:
+            continue
+        benefit = float(ep.to_benefit(value))
+        if benefit < null or (margin > 0 and benefit == null):
+            edge = float(ep.from_benefit(null))
+            side = "below" if ep.better == "higher" else "above"
+            notes.append(
+                f"'{key}' = {value:g} lies on the harmful side of {boundary} ({edge:g}): "
+                f"{ep.better} is better, so a {ep.effect_name} {side} {edge:g} means harm. "
+                "Power there is at most the type I error. Check the sign, the scale, or "
+                "'endpoint.better'.")
+    return notes
+
+
+# ------------------------------------------------------------------------------------------
+# priors
+# ------------------------------------------------------------------------------------------
+def _prior_and_origin(table: Any, where: str, builder: _Builder | None, endpoint: Any
+                      ) -> tuple[Any, Any]:
+    """Build the prior of a validated prior table; ``endpoint`` None means not an effect."""
+    from .. import priors
+
+    family = table.family
+    ratio = bool(endpoint is not None and endpoint.ratio_scale)
+    effect_prior = endpoint is not None
+    if family == "log_normal":
+        if not effect_prior:  # a positive quantity itself: a rate, a median
+            return _log_normal(table), None
+        if not ratio:
+            raise DesignFileError(
+                f"'{where}.family' = 'log_normal' is for ratio endpoints (hazard, rate, risk or "
+                f"odds ratios); this endpoint's effect is a {endpoint.effect_name}, so give its "
+                "prior on that scale (e.g. 'normal').")
+        return priors.Normal(math.log(table.median), table.log_sd), None
+    if family == "beta_rates":
+        return _beta_rates(table, where, endpoint), None
+    if family == "mixture":
+        comps = [_prior_and_origin(part, f"{where}.parts[{i}]", builder, endpoint)[0]
+                 for i, part in enumerate(table.parts)]
+        return priors.Mixture(comps, [part.weight for part in table.parts]), None
+    if family == "scipy":
+        return _scipy_prior(table, where), None
+    if family == "elicited":
+        return _elicited(table, where, ratio)
+    if family == "earlier_trial":
+        return _earlier_trial(table, where, ratio)
+    if family == "meta_analysis":
+        from ..evidence import meta_analytic_prior
+
+        result = meta_analytic_prior(table.estimates, table.ses, method=table.method)
+        return result.prior, result
+    simple: dict[str, Callable[[Any], Any]] = {
+        "normal": lambda t: priors.Normal(t.mean, t.sd),
+        "student_t": lambda t: priors.StudentT(t.df, loc=t.location, scale=t.scale),
+        "uniform": lambda t: priors.Uniform(t.lower, t.upper),
+        "truncated_normal": lambda t: priors.TruncatedNormal(
+            t.mean, t.sd, lower=-math.inf if t.lower is None else t.lower,
+            upper=math.inf if t.upper is None else t.upper),
+        "point_mass": lambda t: priors.PointMass(t.value),
+        "scaled_inv_chi_square": lambda t: priors.ScaledInvChiSquare(t.df, t.scale),
+        "gamma_precision": lambda t: priors.GammaPrecision(t.shape, t.rate),
+    }
+    return simple[family](table), None
+
+
+def _log_normal(table: Any) -> Any:
+    """A log-normal prior on a positive quantity (a rate or a median), not on an effect."""
+    from scipy import stats
+
+    from ..priors import FromScipy
+
+    return FromScipy(stats.lognorm(s=table.log_sd, scale=table.median))
+
+
+def _beta_rates(table: Any, where: str, endpoint: Any) -> Any:
+    from ..endpoints.binary import BetaRates
+
+    if endpoint is None or endpoint.to_dict().get("kind") != "binary":
+        kind = "this table" if endpoint is None else f"a {endpoint.to_dict().get('kind')} " \
+            "endpoint"
+        raise DesignFileError(f"'{where}.family' = 'beta_rates' is for binary endpoints only; "
+                              f"not for {kind}.")
+    own = table.scale
+    if own is not None and own != endpoint.scale:
+        raise DesignFileError(f"'{where}.scale' is {own!r} but the endpoint's scale is "
+                              f"{endpoint.scale!r}; they must agree (or leave out "
+                              f"'{where}.scale').")
+    control = tuple(table.control) if isinstance(table.control, list) else table.control
+    treatment = tuple(table.treatment) if isinstance(table.treatment, list) else \
+        table.treatment
+    return BetaRates(control, treatment, endpoint.scale)
+
+
+def _scipy_prior(table: Any, where: str) -> Any:
+    from scipy import stats
+
+    from ..priors import FromScipy
+
+    dist = getattr(stats, table.name, None)
+    if not isinstance(dist, stats.rv_continuous):
+        hint = did_you_mean(table.name, [n for n in dir(stats) if isinstance(
+            getattr(stats, n, None), stats.rv_continuous)])
+        raise DesignFileError(f"'{where}.name' must name a continuous scipy.stats "
+                              f"distribution (e.g. 'logistic', 'gamma'). Got "
+                              f"{table.name!r}.{hint}")
+    try:
+        frozen = dist(**table.parameters)
+        frozen.cdf(0.0)
+    except TypeError as exc:
+        raise DesignFileError(f"'{where}.parameters' do not fit scipy.stats.{table.name}: "
+                              f"{exc}.") from None
+    with np.errstate(all="ignore"):
+        finite = np.all(np.isfinite(frozen.support())) or np.isfinite(frozen.mean())
+    if not finite:
+        raise DesignFileError(f"scipy.stats.{table.name} with {table.parameters} has no finite "
+                              f"mean ('{where}').")
+    if not np.isfinite(frozen.cdf(0.0)) or np.isnan(frozen.mean()):
+        raise DesignFileError(f"'{where}.parameters' {table.parameters} are not valid for "
+                              f"scipy.stats.{table.name}.")
+    return FromScipy(frozen)
+
+
+def _elicited(table: Any, where: str, ratio: bool) -> tuple[Any, Any]:
+    from ..elicitation import Interval, Quantile, fit_prior
+
+    fit = table.fit
+    if ratio and fit not in ("lognormal", "best"):
+        raise DesignFileError(f"'{where}.fit' must be 'lognormal' (or 'best') for a ratio "
+                              f"endpoint: its prior is on the log ratio. Got {fit!r}.")
+    if not ratio and fit == "lognormal":
+        raise DesignFileError(f"'{where}.fit' = 'lognormal' is for ratio endpoints; use "
+                              "normal, t, beta, gamma or best.")
+    statements: list[Any] = [Quantile(v, p) for v, p in table.quantiles]
+    statements += [Interval(lo, hi, p) for lo, hi, p in table.intervals]
+    kwargs: dict[str, Any] = {}
+    if table.df is not None:
+        kwargs["df"] = table.df
+    if table.tolerance is not None:
+        kwargs["tolerance"] = table.tolerance
+    if ratio and fit == "best":
+        fit = "lognormal"
+    result = fit_prior(statements, family=fit, **kwargs)
+    return result.prior, result
+
+
+def _earlier_trial(table: Any, where: str, ratio: bool) -> tuple[Any, Any]:
+    from ..evidence import Estimate, prior_from_estimate
+
+    if table.ratio is not None:
+        if not ratio:
+            raise DesignFileError(f"'{where}.ratio' is for ratio endpoints; give 'estimate' "
+                                  "and 'se' on the effect scale.")
+        value, se = math.log(table.ratio), table.log_se
+    else:
+        value, se = table.estimate, table.se
+    options = {k: getattr(table, k) for k in ("power_weight", "shrinkage", "robust_weight",
+                                               "vague_sd", "vague_mean")
+               if getattr(table, k) is not None}
+    estimate = Estimate(value, se, "log ratio" if ratio else "effect")
+    prior = prior_from_estimate(estimate, **options)
+    shown = {"estimate": value, "se": se, **options}
+    text = ("Design prior from an earlier trial: "
+            + ", ".join(f"{k} {v:g}" for k, v in shown.items())
+            + f" (on the {'log ratio' if ratio else 'effect'} scale); result {prior.describe()}.")
+    return prior, text
+
+
+# ------------------------------------------------------------------------------------------
+# single tables, for Python callers and tests
+# ------------------------------------------------------------------------------------------
+class _RatioStandIn:
+    """Stands for an endpoint when only the scale of a prior table is known."""
+
+    def __init__(self, ratio: bool):
+        self.ratio_scale = ratio
+        self.effect_name = "log ratio" if ratio else "difference"
+
+    def to_dict(self) -> dict[str, Any]:
+        return {"kind": "ratio" if self.ratio_scale else "difference"}
+
+
+def _validated(annotation_name: str, table: Any, where: str, source: str) -> Any:
+    from pydantic import ValidationError
+
+    problems = Problems(source)
+    try:
+        return _adapters()[annotation_name].validate_python(table)
+    except ValidationError as exc:
+        problems.add_validation(exc, prefix=tuple(where.split(".")))
+    problems.raise_if_any()
+
+
+def prior_with_origin(table: dict[str, Any], where: str, source: str = "design", *,
+                      ratio: bool = False) -> tuple[Any, Any]:
+    """A prior from a design-file table, with the object that explains it (for the memo).
+
+    Families built from evidence: ``elicited``, ``earlier_trial`` and ``meta_analysis``
+    (see ``docs/design-file.md``); for the others the origin is None.
+
+    Examples
+    --------
+    >>> prior, fit = prior_with_origin({"family": "elicited", "fit": "normal",
+    ...                                 "quantiles": [[2.0, 0.5], [5.0, 0.9]]}, "design_prior")
+    >>> round(prior.mean(), 3), fit.family
+    (2.0, 'normal')
+    """
+    model = _validated("design_prior", table, where, source)
+    problems = Problems(source)
+    try:
+        return _prior_and_origin(model, where, None, _RatioStandIn(ratio))
+    except AssuranceInputError as exc:
+        if isinstance(exc, DesignFileError):
+            problems.add("", str(exc))
+        else:
+            problems.add_domain(exc, where)
+    problems.raise_if_any()
+    raise AssertionError("unreachable")  # pragma: no cover
+
+
+def prior_from_table(table: dict[str, Any], where: str, source: str = "design", *,
+                     ratio: bool = False) -> Any:
+    """The prior a design-file table describes.
+
+    Examples
+    --------
+    >>> prior_from_table({"family": "normal", "mean": 1.0, "sd": 2.0}, "design_prior")
+    Normal(mean=1, sd=2)
+    """
+    return prior_with_origin(table, where, source, ratio=ratio)[0]
+
+
+def endpoint_from_table(table: dict[str, Any], source: str = "design", *,
+                        assumed_effect: float | None = None) -> Any:
+    """Build the endpoint an ``[endpoint]`` table describes.
+
+    ``assumed_effect`` stands for ``[effect] assumed`` (the default planning hazard ratio of
+    a time-to-event endpoint).
+
+    Examples
+    --------
+    >>> endpoint_from_table({"type": "continuous", "sd": 4.0}).sigma
+    4.0
+    """
+    from .schema import EffectTable
+
+    model = _validated("endpoint", table, "endpoint", source)
+    problems = Problems(source)
+    builder = _Builder({}, problems, source)
+    made = builder.attempt("endpoint", lambda: _endpoint(
+        model, EffectTable(assumed=assumed_effect), builder))
+    problems.raise_if_any()
+    return made

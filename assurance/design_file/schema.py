@@ -1,0 +1,686 @@
+"""The design file's schema: every table and key, in one place.
+
+Each key is declared once, with its type, default, allowed values or range, the endpoint or
+rule it belongs to, the scale on which it is read, and one sentence of help. From these
+declarations come the reader's structural checks (all problems of a file in one pass), the
+normalised record of a design (``design.toml`` in the output folder), the key reference
+page ``docs/design-file.md`` and the JSON Schema for editors
+(``docs/design-file.schema.json``); see :mod:`assurance.design_file.reference`.
+
+Keys are checked strictly: numbers must be numbers (``10`` or ``10.0``, never ``"10"``),
+finite, and inside their range; flags are ``true`` or ``false``; a key this schema does not
+declare is an error that names the nearest declared key. What one table alone cannot decide
+(a hazard ratio prior on a continuous endpoint, a relevant effect with no prior mass beyond
+it) is checked when the design is built, in :mod:`assurance.design_file.reader`.
+"""
+
+from __future__ import annotations
+
+from typing import Annotated, Any, Literal, Union
+
+from pydantic import (
+    BaseModel,
+    ConfigDict,
+    Discriminator,
+    Field,
+    Tag,
+    WithJsonSchema,
+    create_model,
+    field_validator,
+    model_validator,
+)
+
+__all__ = [
+    "DesignFileModel",
+    "ENDPOINT_TABLES",
+    "PRIOR_TABLES",
+    "RULE_TABLES",
+    "TAGGED",
+    "EFFECT_SCALES",
+]
+
+#: How ``[effect]`` values, rule thresholds and prior parameters are read, per endpoint.
+EFFECT_SCALES = {
+    "continuous": "difference in means (treatment minus control), in the outcome's unit; "
+                  "priors on the same difference",
+    "binary": "difference in response rates, risk ratio or odds ratio (the endpoint's "
+              "'scale'); priors on the difference or on the log of the ratio",
+    "time_to_event": "hazard ratio (treatment over control); priors on the log hazard ratio "
+                     "(or 'log_normal' with a median ratio)",
+    "counts": "rate ratio (treatment over control); priors on the log rate ratio (or "
+              "'log_normal' with a median ratio)",
+}
+
+#: the two scales of the reference page's "Scales" section
+_EFFECT_SCALE_TEXT = "natural effect scale"
+_PRIOR_SCALE_TEXT = "prior scale"
+
+
+class Table(BaseModel):
+    """A table of a design file: known keys only, strict types, finite numbers."""
+
+    model_config = ConfigDict(extra="forbid", strict=True, allow_inf_nan=False,
+                              populate_by_name=True, frozen=True)
+
+
+def key(default: Any = ..., help: str = "", *, scale: str | None = None,
+        applies: str | None = None, alias: str | None = None, **constraints: Any) -> Any:
+    """Declare one key: its default (``...`` when required), help, scale and constraints."""
+    extra: dict[str, Any] = {}
+    if scale is not None:
+        extra["x-scale"] = scale
+    if applies is not None:
+        extra["x-applies-to"] = applies
+    if "default_factory" in constraints:
+        return Field(description=help, alias=alias, json_schema_extra=extra or None,
+                     **constraints)
+    return Field(default, description=help, alias=alias, json_schema_extra=extra or None,
+                 **constraints)
+
+
+Positive = Annotated[float, Field(gt=0)]
+Probability = Annotated[float, Field(gt=0, lt=1)]
+Pair = Annotated[list[Positive], Field(min_length=2, max_length=2)]
+_RATE_OR_PAIR_SCHEMA = WithJsonSchema({
+    "anyOf": [{"type": "number", "exclusiveMinimum": 0, "exclusiveMaximum": 1},
+              {"type": "array", "items": {"type": "number", "exclusiveMinimum": 0},
+               "minItems": 2, "maxItems": 2}]})
+_HAZARD_SCHEMA = WithJsonSchema({
+    "anyOf": [{"type": "number", "exclusiveMinimum": 0},
+              {"type": "array", "items": {"type": "number", "exclusiveMinimum": 0},
+               "minItems": 1}]})
+
+
+def _is_number(value: Any) -> bool:
+    import math
+
+    return (isinstance(value, int | float) and not isinstance(value, bool)
+            and math.isfinite(value))
+
+
+def _tag(field: str, prefix: str, default: str | None = None) -> Any:
+    """Discriminator reading ``field`` (``type``, ``family``, ``rule``) of a table."""
+    def get(value: Any) -> str | None:
+        found = value.get(field, default) if isinstance(value, dict) else getattr(
+            value, field, default)
+        if not isinstance(found, str):
+            return None
+        return f"{prefix}:{found}"
+    return Discriminator(get)
+
+
+# ------------------------------------------------------------------------------------------
+# priors
+# ------------------------------------------------------------------------------------------
+class NormalPrior(Table):
+    """Normal prior."""
+
+    family: Literal["normal"] = key("normal", "Normal distribution.")
+    mean: float = key(help="Mean.", scale=_PRIOR_SCALE_TEXT)
+    sd: Positive = key(help="Standard deviation, > 0.", scale=_PRIOR_SCALE_TEXT)
+
+
+class LogNormalPrior(Table):
+    """Log-normal prior on a ratio (ratio endpoints only)."""
+
+    family: Literal["log_normal"] = key("log_normal", "Log-normal belief about a ratio.")
+    median: Positive = key(help="Median of the ratio, > 0.", scale="ratio")
+    log_sd: Positive = key(help="SD of the log ratio, > 0.", scale="log ratio")
+
+
+class StudentTPrior(Table):
+    """Student t prior."""
+
+    family: Literal["student_t"] = key("student_t", "Student t distribution.")
+    df: Positive = key(help="Degrees of freedom, > 0.")
+    location: float = key(0.0, "Centre.", scale=_PRIOR_SCALE_TEXT)
+    scale: Positive = key(1.0, "Scale, > 0.", scale=_PRIOR_SCALE_TEXT)
+
+
+class UniformPrior(Table):
+    """Uniform prior."""
+
+    family: Literal["uniform"] = key("uniform", "Uniform distribution.")
+    lower: float = key(help="Lower end.", scale=_PRIOR_SCALE_TEXT)
+    upper: float = key(help="Upper end, above 'lower'.", scale=_PRIOR_SCALE_TEXT)
+
+    @model_validator(mode="after")
+    def _ordered(self) -> UniformPrior:
+        if not self.upper > self.lower:
+            raise ValueError(f"'upper' ({self.upper:g}) must be above 'lower' "
+                             f"({self.lower:g})")
+        return self
+
+
+class TruncatedNormalPrior(Table):
+    """Normal prior restricted to an interval."""
+
+    family: Literal["truncated_normal"] = key("truncated_normal",
+                                              "Normal distribution cut to [lower, upper].")
+    mean: float = key(help="Mean before truncation.", scale=_PRIOR_SCALE_TEXT)
+    sd: Positive = key(help="SD before truncation, > 0.", scale=_PRIOR_SCALE_TEXT)
+    lower: float | None = key(None, "Lower end (none: unbounded).", scale=_PRIOR_SCALE_TEXT)
+    upper: float | None = key(None, "Upper end (none: unbounded).", scale=_PRIOR_SCALE_TEXT)
+
+
+class PointMassPrior(Table):
+    """All the probability on one value."""
+
+    family: Literal["point_mass"] = key("point_mass", "All probability on one value.")
+    value: float = key(help="The value.", scale=_PRIOR_SCALE_TEXT)
+
+
+class ScaledInvChiSquarePrior(Table):
+    """Prior on a standard deviation (sd_prior)."""
+
+    family: Literal["scaled_inv_chi_square"] = key(
+        "scaled_inv_chi_square", "Scaled inverse chi-square on the variance (for sd_prior).")
+    df: Positive = key(help="Degrees of freedom (the SD's weight, like a pilot study's df).")
+    scale: Positive = key(help="Central value of the SD.", scale="outcome unit")
+
+
+class GammaPrecisionPrior(Table):
+    """Gamma prior on the precision 1/SD^2 (sd_prior)."""
+
+    family: Literal["gamma_precision"] = key("gamma_precision",
+                                             "Gamma on the precision 1/SD^2 (for sd_prior).")
+    shape: Positive = key(help="Shape, > 0.")
+    rate: Positive = key(help="Rate, > 0.", scale="outcome unit squared")
+
+
+class ScipyPrior(Table):
+    """Any continuous distribution of scipy.stats."""
+
+    family: Literal["scipy"] = key("scipy", "A continuous scipy.stats distribution by name.")
+    name: str = key(help="Name in scipy.stats, e.g. 'logistic' or 'gamma'.")
+    parameters: dict[str, float] = key(
+        {}, "Its parameters by name, e.g. { a = 36.0, scale = 0.0167 }.",
+        scale=_PRIOR_SCALE_TEXT)
+
+
+class BetaRatesPrior(Table):
+    """Beta priors on each arm's response rate (binary endpoints)."""
+
+    family: Literal["beta_rates"] = key("beta_rates",
+                                        "Beta priors on the response rate of each arm.")
+    control: Annotated[Any, _RATE_OR_PAIR_SCHEMA] = key(
+        help="Control arm: a beta pair [a, b], or a fixed rate in (0, 1).", applies="binary")
+    treatment: Annotated[Any, _RATE_OR_PAIR_SCHEMA] = key(
+        help="Treatment arm: a beta pair [a, b], or a fixed rate in (0, 1).",
+        applies="binary")
+    scale: Literal["difference", "risk_ratio", "odds_ratio"] | None = key(
+        None, "Effect scale; must agree with the endpoint's 'scale' (none: the endpoint's).",
+        applies="binary")
+
+    @field_validator("control", "treatment")
+    @classmethod
+    def _arm(cls, value: Any) -> Any:
+        if _is_number(value):
+            if not 0 < value < 1:
+                raise ValueError(f"a fixed rate must lie in (0, 1); got {value!r}")
+            return float(value)
+        if (isinstance(value, list) and len(value) == 2 and all(_is_number(v) and v > 0
+                                                                for v in value)):
+            return [float(v) for v in value]
+        raise ValueError(f"must be a pair [a, b] of beta parameters > 0 or a fixed rate in "
+                         f"(0, 1); got {value!r}")
+
+
+class ElicitedPrior(Table):
+    """A prior fitted to experts' judgements."""
+
+    family: Literal["elicited"] = key("elicited", "Fitted to experts' quantiles and intervals.")
+    fit: Literal["normal", "t", "lognormal", "beta", "gamma", "best"] = key(
+        "normal", "Family to fit ('lognormal' and 'best' for ratio endpoints).")
+    quantiles: list[Annotated[list[float], Field(min_length=2, max_length=2)]] = key(
+        [], "Judged quantiles as [value, probability] pairs.", scale=_EFFECT_SCALE_TEXT)
+    intervals: list[Annotated[list[float], Field(min_length=3, max_length=3)]] = key(
+        [], "Judged intervals as [lower, upper, probability] triples.",
+        scale=_EFFECT_SCALE_TEXT)
+    tolerance: Positive | None = key(None, "Largest acceptable miss of a judged probability "
+                                     "(none: 0.05).")
+    df: Positive | None = key(None, "Degrees of freedom for fit = 't' (none: fitted).")
+
+
+class EarlierTrialPrior(Table):
+    """A prior from an earlier trial's estimate, discounted."""
+
+    family: Literal["earlier_trial"] = key("earlier_trial",
+                                           "From an earlier trial's estimate, discounted.")
+    estimate: float | None = key(None, "The earlier estimate (not for ratio endpoints given "
+                                 "by 'ratio').", scale=_PRIOR_SCALE_TEXT)
+    se: Positive | None = key(None, "Its standard error.", scale=_PRIOR_SCALE_TEXT)
+    ratio: Positive | None = key(None, "For ratio endpoints: the earlier ratio estimate.",
+                                 scale="ratio")
+    log_se: Positive | None = key(None, "For ratio endpoints: SE of the log ratio.",
+                                  scale="log ratio")
+    power_weight: Annotated[float, Field(gt=0, le=1)] = key(
+        1.0, "Share of the earlier information kept (power prior weight), in (0, 1].")
+    shrinkage: Annotated[float, Field(ge=0, le=1)] = key(
+        1.0, "Factor pulling the estimate toward no effect, in [0, 1].")
+    robust_weight: Annotated[float, Field(ge=0, le=1)] = key(
+        1.0, "Weight of the informative part; the rest goes to a vague part.")
+    vague_sd: Positive | None = key(None, "SD of the vague part (needed when robust_weight < 1).",
+                                    scale=_PRIOR_SCALE_TEXT)
+    vague_mean: float | None = key(None, "Centre of the vague part (none: no effect).",
+                                   scale=_PRIOR_SCALE_TEXT)
+
+    @model_validator(mode="after")
+    def _one_form(self) -> EarlierTrialPrior:
+        plain = self.estimate is not None or self.se is not None
+        ratio = self.ratio is not None or self.log_se is not None
+        if plain and ratio:
+            raise ValueError("give either 'estimate' and 'se', or 'ratio' and 'log_se', "
+                             "not both")
+        if ratio and (self.ratio is None or self.log_se is None):
+            raise ValueError("the ratio form needs both 'ratio' and 'log_se'")
+        if not ratio and (self.estimate is None or self.se is None):
+            raise ValueError("needs 'estimate' and 'se' (or, for a ratio endpoint, 'ratio' "
+                             "and 'log_se')")
+        return self
+
+
+class MetaAnalysisPrior(Table):
+    """A meta-analytic prior from several earlier studies."""
+
+    family: Literal["meta_analysis"] = key("meta_analysis",
+                                           "Predictive distribution of a new study's effect.")
+    estimates: list[float] = key(help="One estimate per earlier study (at least two).",
+                                 scale=_PRIOR_SCALE_TEXT, min_length=2)
+    ses: list[Positive] = key(help="Their standard errors, in the same order.",
+                              scale=_PRIOR_SCALE_TEXT, min_length=2)
+    method: Literal["paule_mandel", "dersimonian_laird"] = key(
+        "paule_mandel", "Estimator of the between-study variance.")
+
+    @model_validator(mode="after")
+    def _same_length(self) -> MetaAnalysisPrior:
+        if len(self.estimates) != len(self.ses):
+            raise ValueError(f"'estimates' ({len(self.estimates)}) and 'ses' "
+                             f"({len(self.ses)}) must have the same length")
+        return self
+
+
+_SIMPLE_PRIORS: dict[str, type[Table]] = {
+    "normal": NormalPrior,
+    "log_normal": LogNormalPrior,
+    "student_t": StudentTPrior,
+    "uniform": UniformPrior,
+    "truncated_normal": TruncatedNormalPrior,
+    "point_mass": PointMassPrior,
+    "scaled_inv_chi_square": ScaledInvChiSquarePrior,
+    "gamma_precision": GammaPrecisionPrior,
+    "scipy": ScipyPrior,
+}
+_EVIDENCE_PRIORS: dict[str, type[Table]] = {
+    "elicited": ElicitedPrior,
+    "earlier_trial": EarlierTrialPrior,
+    "meta_analysis": MetaAnalysisPrior,
+}
+
+#: mixture parts: each simple family with a weight
+_PARTS: dict[str, type[Table]] = {
+    name: create_model(f"{cls.__name__}Part", __base__=cls, __doc__=cls.__doc__,
+                       weight=(Positive, key(help="Weight of this part; weights are "
+                                             "normalised to sum to one.")))
+    for name, cls in _SIMPLE_PRIORS.items()
+}
+
+PartTable = Annotated[
+    Union[tuple(Annotated[cls, Tag(f"part:{name}")]  # noqa: UP007 - built from a tuple
+                for name, cls in _PARTS.items())],
+    _tag("family", "part"),
+]
+
+
+class MixturePrior(Table):
+    """A weighted mixture of simple priors (e.g. a point mass at no effect plus a normal)."""
+
+    family: Literal["mixture"] = key("mixture", "Weighted mixture of simple priors.")
+    parts: list[PartTable] = key(help="The parts: inline tables, each with a 'weight' and a "
+                                 "'family' with its keys.", min_length=1)
+
+
+PRIOR_TABLES: dict[str, type[Table]] = {
+    **_SIMPLE_PRIORS, "mixture": MixturePrior, "beta_rates": BetaRatesPrior,
+    **_EVIDENCE_PRIORS,
+}
+
+PriorTable = Annotated[
+    Annotated[NormalPrior, Tag("prior:normal")]
+    | Annotated[LogNormalPrior, Tag("prior:log_normal")]
+    | Annotated[StudentTPrior, Tag("prior:student_t")]
+    | Annotated[UniformPrior, Tag("prior:uniform")]
+    | Annotated[TruncatedNormalPrior, Tag("prior:truncated_normal")]
+    | Annotated[PointMassPrior, Tag("prior:point_mass")]
+    | Annotated[ScaledInvChiSquarePrior, Tag("prior:scaled_inv_chi_square")]
+    | Annotated[GammaPrecisionPrior, Tag("prior:gamma_precision")]
+    | Annotated[ScipyPrior, Tag("prior:scipy")]
+    | Annotated[MixturePrior, Tag("prior:mixture")]
+    | Annotated[BetaRatesPrior, Tag("prior:beta_rates")]
+    | Annotated[ElicitedPrior, Tag("prior:elicited")]
+    | Annotated[EarlierTrialPrior, Tag("prior:earlier_trial")]
+    | Annotated[MetaAnalysisPrior, Tag("prior:meta_analysis")],
+    _tag("family", "prior"),
+]
+
+# ------------------------------------------------------------------------------------------
+# endpoints
+# ------------------------------------------------------------------------------------------
+_ALLOCATION = "Patients on treatment per patient on control (two arms), > 0."
+
+
+class ContinuousTable(Table):
+    """A normally distributed outcome."""
+
+    type: Literal["continuous"] = key("continuous", "Outcome measured on a scale.")
+    sd: Positive = key(help="Planning SD of the outcome (of the change, for one arm).",
+                       scale="outcome unit")
+    layout: Literal["two_arm", "single_arm"] = key(
+        "two_arm", "Two parallel arms, or one arm (or paired changes) against a reference.")
+    allocation: Positive = key(1.0, _ALLOCATION)
+    analysis: Literal["t", "z"] = key(
+        "t", "'t': the SD is estimated at the analysis; 'z': the SD is taken as known.")
+    better: Literal["higher", "lower"] = key("higher", "Which direction of the effect is good.")
+
+
+class BinaryTable(Table):
+    """A yes/no response."""
+
+    type: Literal["binary"] = key("binary", "Response (yes/no) outcome.")
+    control_rate: Probability | None = key(None, "Planning response rate on control (two "
+                                           "arms); give this or reference_rate.")
+    reference_rate: Probability | None = key(None, "Fixed reference rate (one arm); give this "
+                                             "or control_rate.")
+    layout: Literal["two_arm", "single_arm"] | None = key(
+        None, "Two arms or one (none: one arm with reference_rate, two with control_rate).")
+    allocation: Positive = key(1.0, _ALLOCATION)
+    scale: Literal["difference", "risk_ratio", "odds_ratio"] = key(
+        "difference", "Scale of the effect: rate difference, risk ratio or odds ratio.")
+    test: Literal["z", "chi_square", "fisher_exact", "exact_binomial"] = key(
+        "z", "Test at the analysis (exact_binomial: one arm); power by exact enumeration.")
+    continuity_correction: bool = key(False, "Continuity correction for the z or chi-square "
+                                      "test.")
+    better: Literal["higher", "lower"] = key("higher", "Whether a higher response rate is good.")
+    control_prior: Pair | None = key(None, "Beta pair [a, b] for the control rate when the "
+                                     "design prior is on the effect alone.")
+    exact_up_to: Annotated[int, Field(ge=1)] = key(
+        500, "Largest arm size enumerated exactly; beyond it a normal approximation.")
+
+    @model_validator(mode="after")
+    def _one_rate(self) -> BinaryTable:
+        given = [k for k in ("control_rate", "reference_rate") if getattr(self, k) is not None]
+        if len(given) != 1:
+            raise ValueError("needs exactly one of 'control_rate' (two arms) and "
+                             f"'reference_rate' (one arm); got {' and '.join(given) or 'neither'}")
+        if given == ["reference_rate"] and self.layout == "two_arm":
+            raise ValueError("'reference_rate' is for one arm; use 'control_rate' for two arms")
+        return self
+
+
+class TimeToEventTable(Table):
+    """Time to an event, compared by the hazard ratio."""
+
+    type: Literal["time_to_event"] = key("time_to_event", "Time to an event (log-rank test).")
+    assumed_hazard_ratio: Positive | None = key(
+        None, "Hazard ratio at which the expected events are planned (none: effect.assumed).",
+        scale="hazard ratio")
+    accrual_time: Positive = key(help="Time over which patients enter.", scale="time unit")
+    follow_up_time: Annotated[float, Field(ge=0)] = key(
+        0.0, "Follow-up after the last patient enters, until the analysis.", scale="time unit")
+    control_median: Positive | None = key(
+        None, "Median time to the event on control (exponential); or give control_hazard.",
+        scale="time unit")
+    control_hazard: Annotated[Any, _HAZARD_SCHEMA] = key(
+        None, "Control hazard per time unit: a number, or a list with hazard_starts "
+        "(piecewise).", scale="events per time unit")
+    hazard_starts: list[Annotated[float, Field(ge=0)]] | None = key(
+        None, "Start times of the pieces of a piecewise control hazard (first 0).",
+        scale="time unit")
+    accrual_ramp: Annotated[float, Field(ge=0)] = key(
+        0.0, "Time over which the entry rate rises linearly to its plateau.",
+        scale="time unit")
+    dropout_per_year: Annotated[float, Field(ge=0, lt=1)] = key(
+        0.0, "Share of patients lost to follow-up per year.")
+    time_unit: Literal["days", "weeks", "months", "years"] = key(
+        "months", "Unit of every time in the table.")
+    allocation: Positive = key(1.0, _ALLOCATION)
+    better: Literal["higher", "lower"] = key(
+        "lower", "Whether a lower hazard ratio (fewer events) is good.")
+    events_follow_true_effect: bool = key(
+        False, "true: the number of events follows each true hazard ratio; false: fixed at "
+        "the planning ratio.")
+    median_prior: PriorTable | None = key(
+        None, "Prior on the control median (a table written like any prior).",
+        scale="time unit")
+
+    @field_validator("control_hazard")
+    @classmethod
+    def _hazard(cls, value: Any) -> Any:
+        if value is None:
+            return None
+        if _is_number(value) and value > 0:
+            return float(value)
+        if isinstance(value, list) and value and all(_is_number(v) and v > 0 for v in value):
+            return [float(v) for v in value]
+        raise ValueError(f"must be a hazard > 0 or a non-empty list of them; got {value!r}")
+
+    @model_validator(mode="after")
+    def _control(self) -> TimeToEventTable:
+        if (self.control_median is None) == (self.control_hazard is None):
+            raise ValueError("give exactly one of 'control_median' (exponential) and "
+                             "'control_hazard' (with 'hazard_starts' for piecewise hazards)")
+        return self
+
+
+class CountsTable(Table):
+    """Counts of events per patient, compared by the rate ratio."""
+
+    type: Literal["counts"] = key("counts", "Event counts (Poisson or negative binomial).")
+    control_rate: Positive = key(help="Planning event rate on control per unit of time.",
+                                 scale="events per patient-time unit")
+    follow_up: Positive = key(help="Planned follow-up per patient.", scale="time unit")
+    overdispersion: Annotated[float, Field(ge=0)] = key(
+        0.0, "Negative binomial k (Var = mu + k mu^2); 0 for Poisson.")
+    dropout_rate: Annotated[float, Field(ge=0)] = key(
+        0.0, "Dropout hazard per unit of time (shortens exposure).")
+    layout: Literal["two_arm", "single_arm"] = key(
+        "two_arm", "Two arms, or one arm against the control rate.")
+    allocation: Positive = key(1.0, _ALLOCATION)
+    better: Literal["higher", "lower"] = key("lower", "Whether a lower rate ratio is good.")
+    variance_at: Literal["true_effect", "planning_ratio"] = key(
+        "true_effect", "Standard error at each true rate ratio, or frozen at the planning one.")
+    planning_rate_ratio: Positive | None = key(
+        None, "Rate ratio for variance_at = 'planning_ratio' (none: the prior's centre).",
+        scale="rate ratio")
+    test_variance: Literal["observed_rates", "pooled_null"] = key(
+        "observed_rates", "Variance in the test statistic: at the observed rates or at the "
+        "pooled rates under no effect.")
+    control_rate_prior: PriorTable | None = key(
+        None, "Prior on the control rate (a table written like any prior).",
+        scale="events per patient-time unit")
+
+
+ENDPOINT_TABLES: dict[str, type[Table]] = {
+    "continuous": ContinuousTable,
+    "binary": BinaryTable,
+    "time_to_event": TimeToEventTable,
+    "counts": CountsTable,
+}
+
+EndpointTable = Annotated[
+    Annotated[ContinuousTable, Tag("endpoint:continuous")]
+    | Annotated[BinaryTable, Tag("endpoint:binary")]
+    | Annotated[TimeToEventTable, Tag("endpoint:time_to_event")]
+    | Annotated[CountsTable, Tag("endpoint:counts")],
+    _tag("type", "endpoint", "continuous"),
+]
+
+# ------------------------------------------------------------------------------------------
+# success rules
+# ------------------------------------------------------------------------------------------
+_MIN_ESTIMATE = ("The observed effect must also reach this value (none: no such "
+                 "condition).")
+
+
+class SignificanceTable(Table):
+    """Success when the test is significant in the favourable direction."""
+
+    rule: Literal["significance"] = key("significance",
+                                        "Significance of the test in the good direction.")
+    alpha: Annotated[float, Field(gt=0, lt=0.5)] = key(0.025, "Type I error level.")
+    sided: Literal["one", "two"] = key(
+        "one", "'one': alpha is one-sided; 'two': alpha is two-sided, success only in the "
+        "good direction.")
+    margin: Annotated[float, Field(ge=0)] = key(
+        0.0, "Non-inferiority margin (0: superiority); a ratio above 1 for ratio endpoints "
+        "other than risk differences.", scale=_EFFECT_SCALE_TEXT)
+    min_estimate: float | None = key(None, _MIN_ESTIMATE, scale=_EFFECT_SCALE_TEXT)
+
+
+class PosteriorProbabilityTable(Table):
+    """Success when the posterior probability of a good effect is high enough."""
+
+    rule: Literal["posterior_probability"] = key(
+        "posterior_probability", "Posterior probability under the analysis prior.")
+    level: Probability = key(0.975, "Success needs P(effect better than 'beyond' | data) at "
+                             "least this.")
+    beyond: float | None = key(None, "Value the effect must beat (none: no effect).",
+                               scale=_EFFECT_SCALE_TEXT)
+    min_estimate: float | None = key(None, _MIN_ESTIMATE, scale=_EFFECT_SCALE_TEXT)
+
+
+RULE_TABLES: dict[str, type[Table]] = {
+    "significance": SignificanceTable,
+    "posterior_probability": PosteriorProbabilityTable,
+}
+
+SuccessTable = Annotated[
+    Annotated[SignificanceTable, Tag("rule:significance")]
+    | Annotated[PosteriorProbabilityTable, Tag("rule:posterior_probability")],
+    _tag("rule", "rule", "significance"),
+]
+
+
+# ------------------------------------------------------------------------------------------
+# the rest
+# ------------------------------------------------------------------------------------------
+class EffectTable(Table):
+    """Effects at which classical power is computed."""
+
+    assumed: float | None = key(None, "The effect classical power is computed at (none: the "
+                                "design prior's mean).", scale=_EFFECT_SCALE_TEXT)
+    relevant: float | None = key(None, "Smallest clinically relevant effect (for conditional "
+                                 "assurance).", scale=_EFFECT_SCALE_TEXT)
+    also_power_at: list[float] = key([], "Further effects at which to show power.",
+                                      scale=_EFFECT_SCALE_TEXT)
+
+
+MAX_SIZES = 5000
+
+
+class SizesTable(Table):
+    """Total sample sizes to evaluate."""
+
+    from_: Annotated[int, Field(ge=1)] | None = key(None, "Smallest total size.", alias="from",
+                                                    scale="patients")
+    to: Annotated[int, Field(ge=1)] | None = key(None, "Largest total size.", scale="patients")
+    step: Annotated[int, Field(ge=1)] | None = key(
+        None, "Step between sizes (none: about 50 sizes).", scale="patients")
+    list_: list[Annotated[int, Field(ge=1)]] | None = key(
+        None, "Explicit total sizes instead of from/to/step.", alias="list", scale="patients",
+        min_length=1)
+
+    @model_validator(mode="after")
+    def _one_form(self) -> SizesTable:
+        ranged = [k for k in ("from_", "to", "step") if getattr(self, k) is not None]
+        if self.list_ is not None:
+            if ranged:
+                raise ValueError("give either 'list' or 'from'/'to'/'step', not both")
+            return self
+        missing = [k.rstrip("_") for k in ("from_", "to") if getattr(self, k) is None]
+        if missing:
+            raise ValueError(f"needs {' and '.join(repr(m) for m in missing)} (or a 'list')")
+        if self.to < self.from_:
+            raise ValueError(f"'to' ({self.to}) must be >= 'from' ({self.from_})")
+        step = self.step if self.step is not None else max(1, (self.to - self.from_) // 50)
+        if (self.to - self.from_) // step + 1 > MAX_SIZES:
+            raise ValueError(f"asks for {(self.to - self.from_) // step + 1} sizes; use a "
+                             f"larger 'step' (at most {MAX_SIZES} sizes)")
+        return self
+
+
+class TargetsTable(Table):
+    """Targets to solve the sample size for."""
+
+    power: Probability | None = key(None, "Target classical power at the assumed effect.")
+    assurance: Probability | None = key(None, "Target assurance (probability of success).")
+    conditional_assurance: Probability | None = key(
+        None, "Target P(success | effect at least the relevant one); needs effect.relevant.")
+
+
+class ZonesTable(Table):
+    """Go / consider / stop zones on the posterior of the effect."""
+
+    min_acceptable: float = key(help="Minimum acceptable effect.", scale=_EFFECT_SCALE_TEXT)
+    target: float = key(help="Target effect, better than min_acceptable.",
+                        scale=_EFFECT_SCALE_TEXT)
+    go_min_prob: Probability = key(0.9, "Go needs P(effect better than min_acceptable) at "
+                                   "least this.")
+    go_target_prob: Probability = key(0.5, "... and P(effect better than target) at least "
+                                      "this.")
+    stop_target_prob: Probability = key(0.1, "Stop when P(effect better than target) is "
+                                        "below this.")
+
+
+class PrecisionTable(Table):
+    """Posterior interval width against n."""
+
+    length: Positive = key(help="Target width of the posterior interval (of the log ratio "
+                           "for ratio endpoints).", scale=_PRIOR_SCALE_TEXT)
+    coverage: Probability = key(0.95, "Probability content of the interval.")
+    interval: Literal["highest_density", "equal_tailed"] = key(
+        "highest_density", "Kind of interval.")
+    criteria: list[Literal["ALC", "ACC", "WOC", "MWOC"]] = key(
+        ["ALC", "ACC", "WOC", "MWOC"], "Criteria to solve n for: average length, average "
+        "coverage, worst outcome, modified worst outcome.", min_length=1)
+    likely_share: Probability = key(0.95, "Share of likely data sets the modified worst "
+                                    "outcome criterion covers.")
+
+
+class MonteCarloTable(Table):
+    """Monte Carlo settings (used where no exact route exists)."""
+
+    draws: Annotated[int, Field(ge=100)] = key(20_000, "Number of Monte Carlo draws.")
+    seed: Annotated[int, Field(ge=0)] = key(20260101, "Seed: the same seed gives the same "
+                                            "numbers.")
+
+
+class DesignFileModel(Table):
+    """A whole design file."""
+
+    title: Annotated[str, Field(min_length=1)] | None = key(
+        None, "Name of the trial for the memo (none: the file's name).")
+    endpoint: EndpointTable = key(help="What is measured and how it is analysed.")
+    success: SuccessTable = key(default_factory=SignificanceTable,
+                                help="When the trial counts as a success.")
+    effect: EffectTable = key(default_factory=EffectTable,
+                              help="Effects for classical power and relevance.")
+    design_prior: PriorTable = key(help="What is believed about the true effect.")
+    analysis_prior: PriorTable | None = key(
+        None, "Prior used by the final analysis (posterior rules, zones, precision).")
+    sd_prior: PriorTable | None = key(None, "Prior on the outcome SD (continuous only).")
+    sizes: SizesTable | None = key(None, "Sizes to evaluate (none: chosen from the targets).")
+    targets: TargetsTable = key(default_factory=TargetsTable, help="Targets to solve n for.")
+    zones: ZonesTable | None = key(None, "Go / consider / stop zones.")
+    precision: PrecisionTable | None = key(None, "Posterior interval width planning.")
+    monte_carlo: MonteCarloTable = key(default_factory=MonteCarloTable,
+                                       help="Monte Carlo settings.")
+
+
+#: tag of a discriminated table -> its model (used to find the keys a table allows)
+TAGGED: dict[str, type[Table]] = {
+    **{f"prior:{k}": v for k, v in PRIOR_TABLES.items()},
+    **{f"part:{k}": v for k, v in _PARTS.items()},
+    **{f"endpoint:{k}": v for k, v in ENDPOINT_TABLES.items()},
+    **{f"rule:{k}": v for k, v in RULE_TABLES.items()},
+}
