@@ -33,6 +33,7 @@ from .workflow import DEFAULT_SEED, ProgressCallback, check_plan_inputs, run_pla
 from .zones import GoConsiderStop
 
 if TYPE_CHECKING:  # pragma: no cover
+    import numpy as np
     from matplotlib.figure import Figure
 
     from .precision import PrecisionAnswer
@@ -392,7 +393,7 @@ def plan(
     design: TrialDesign,
     *,
     targets: Mapping[str, float] | None = None,
-    sizes: Sequence[int] | Any | None = None,
+    sizes: Sequence[int] | np.ndarray | None = None,
     zones: GoConsiderStop | None = None,
     precision: PrecisionPlan | None = None,
     draws: int = DEFAULT_DRAWS,

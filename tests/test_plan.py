@@ -464,6 +464,35 @@ def test_plan_is_the_function_even_after_importing_the_module():
     assert asr.read_design is read_design_file
 
 
+def _imported_modules(path: Path) -> set[str]:
+    """Package modules ``path`` imports, at the top or inside functions ("assurance.x")."""
+    import ast
+
+    package = ["assurance", *path.relative_to(ROOT / "assurance").parent.parts]
+    found = set()
+    for node in ast.walk(ast.parse(path.read_text(encoding="utf-8"))):
+        if isinstance(node, ast.ImportFrom):
+            base = package[:len(package) - node.level + 1] if node.level else []
+            name = ".".join([*base, *(node.module.split(".") if node.module else [])])
+            found.add(name)
+            found.update(f"{name}.{alias.name}" for alias in node.names)
+        elif isinstance(node, ast.Import):
+            found.update(alias.name for alias in node.names)
+    return found
+
+
+def test_layers_import_downwards_only():
+    upper = {"assurance.plan", "assurance.cli", "assurance.outputs", "assurance.design_file"}
+    for path in [ROOT / "assurance" / "workflow.py",
+                 *sorted((ROOT / "assurance" / "report").glob("*.py"))]:
+        wrong = {m for m in _imported_modules(path)
+                 if any(m == u or m.startswith(f"{u}.") for u in upper)}
+        assert wrong == set(), (path.name, wrong)
+    cli = _imported_modules(ROOT / "assurance" / "cli.py")
+    assert not {m for m in cli if m.split(".")[0] in ("numpy", "scipy", "xarray")}
+    assert not {m for m in cli if m.startswith(("assurance.planning", "assurance.workflow"))}
+
+
 def test_from_file_reports_a_missing_file(tmp_path):
     with pytest.raises(DesignFileError, match="not found"):
         Plan.from_file(tmp_path / "missing.toml")
