@@ -17,8 +17,6 @@ True
 from __future__ import annotations
 
 import importlib
-import sys
-import types
 from typing import TYPE_CHECKING, Any
 
 __version__ = "0.1.0"
@@ -82,8 +80,8 @@ _PUBLIC = {
     "solve_precision_n": "precision",
     "PrecisionPlan": "precision_design",
     "precision_model_for": "precision_design",
-    "Plan": "plan",
-    "plan": "plan",
+    "Plan": "planner",
+    "plan": "planner",
     "read_design": "design_file:read_design_file",  # name here : name in the module
 }
 
@@ -182,7 +180,7 @@ if TYPE_CHECKING:  # pragma: no cover - for type checkers and editors only
         robust_mixture,
     )
     from .joint import evaluate_joint
-    from .plan import Plan, plan
+    from .planner import Plan, plan
     from .planning import SampleSizeAnswer, evaluate, solve_sample_size
     from .posterior_rules import AllOf, AnyOf, MinimumEstimate, PosteriorProbability
     from .precision import interval_width_curve, solve_precision_n
@@ -212,23 +210,6 @@ def __getattr__(name: str) -> Any:
     value = getattr(importlib.import_module(f".{module}", __name__), inner or name)
     globals()[name] = value
     return value
-
-
-class _Package(types.ModuleType):
-    """This package's module type: ``assurance.plan`` stays the function.
-
-    Importing the submodule ``assurance.plan`` would otherwise bind the name ``plan`` on the
-    package to the module, hiding the function of the same name. The submodule is still in
-    ``sys.modules`` (``from assurance.plan import Plan`` works).
-    """
-
-    def __setattr__(self, name: str, value: Any) -> None:
-        if name == "plan" and isinstance(value, types.ModuleType):
-            return
-        super().__setattr__(name, value)
-
-
-sys.modules[__name__].__class__ = _Package
 
 
 def __dir__() -> list[str]:

@@ -32,8 +32,9 @@ def _parser() -> argparse.ArgumentParser:
 
     plan = sub.add_parser("plan", help="compute power and assurance and write the memo",
                           description="Read a design file; write results.csv, results.nc, "
-                          "sample_sizes.csv, design.json, design_as_given.toml (a copy of the "
-                          "design file), figures/ and memo.html into the output folder.")
+                          "sample_sizes.csv, design.toml (the design with every key in "
+                          "force), design_as_given.toml (a copy of the design file), "
+                          "figures/ and memo.html into the output folder.")
     plan.add_argument("design", help="TOML design file")
     plan.add_argument("-o", "--out", help="output folder (default: <design name>-plan next to "
                       "the current directory)")
@@ -84,8 +85,15 @@ def _check(args: argparse.Namespace) -> int:
     from .design_file import read_design_file
 
     spec = read_design_file(args.design)
+    _say_notes(spec.notes)
     print(f"{args.design}: ok - {spec.design.title}")
     return 0
+
+
+def _say_notes(notes: tuple[str, ...]) -> None:
+    """The reader's warnings about a design (not errors), one per line on stderr."""
+    for note in notes:
+        print(f"assurance: note: {note}", file=sys.stderr)
 
 
 class _Progress:
@@ -130,15 +138,17 @@ def _plan(args: argparse.Namespace) -> int:
     progress = _Progress(args.quiet)
     progress(f"reading {design_path}")
 
-    from .plan import Plan
+    from .planner import Plan
 
     plan = Plan.from_file(design_path, progress=progress)
+    _say_notes(plan.source.notes if plan.source is not None else ())
     progress("writing results, figures and memo")
     plan.write(out, overwrite=args.overwrite)
     if not args.quiet:
         print(plan.summary())
         print(f"\nWritten to {out}/ (memo.html, results.csv, results.nc, sample_sizes.csv, "
-              "figures/,\n  and design_as_given.toml: the design file as given)")
+              "figures/,\n  design.toml: every key in force, and design_as_given.toml: the "
+              "file as given)")
     progress("done")
     return 0
 

@@ -8,7 +8,6 @@ caller asks (``overwrite=True``); if anything fails, the old folder is left as i
 from __future__ import annotations
 
 import csv
-import json
 import os
 import shutil
 import tempfile
@@ -19,7 +18,7 @@ from typing import TYPE_CHECKING, Any
 from .errors import AssuranceInputError
 
 if TYPE_CHECKING:  # pragma: no cover
-    from .plan import Plan
+    from .planner import Plan
 
 __all__ = ["write_outputs", "write_results_csv", "write_sample_sizes_csv"]
 
@@ -27,10 +26,11 @@ __all__ = ["write_outputs", "write_results_csv", "write_sample_sizes_csv"]
 def write_outputs(out: str | Path, plan: Plan, *, overwrite: bool = False) -> Path:
     """Write a plan's results (CSV, netCDF), sample sizes, figures and memo into ``out``.
 
-    The folder holds ``results.csv``, ``results.nc``, ``sample_sizes.csv``, ``design.json``,
-    ``figures/`` (PNG and SVG of each of :meth:`Plan.figures <assurance.Plan.figures>`) and
-    ``memo.html``; when the plan was read from a design file, also
-    ``design_as_given.toml``, a byte-for-byte copy of that file.
+    The folder holds ``results.csv``, ``results.nc``, ``sample_sizes.csv``, ``design.toml``
+    (the normalised design: every key in force, in the design file's names, which
+    ``assurance plan`` reads back to the same numbers), ``figures/`` (PNG and SVG of each of
+    :meth:`Plan.figures <assurance.Plan.figures>`) and ``memo.html``; when the plan was read
+    from a design file, also ``design_as_given.toml``, a byte-for-byte copy of that file.
 
     Parameters
     ----------
@@ -56,7 +56,7 @@ def write_outputs(out: str | Path, plan: Plan, *, overwrite: bool = False) -> Pa
     >>> with tempfile.TemporaryDirectory() as folder:
     ...     written = write_outputs(pathlib.Path(folder) / "plan", p)
     ...     print(sorted(f.name for f in written.iterdir()))
-    ['design.json', 'figures', 'memo.html', 'results.csv', 'results.nc', 'sample_sizes.csv']
+    ['design.toml', 'figures', 'memo.html', 'results.csv', 'results.nc', 'sample_sizes.csv']
     """
     from .report import save_figure, write_memo
 
@@ -76,7 +76,9 @@ def write_outputs(out: str | Path, plan: Plan, *, overwrite: bool = False) -> Pa
         write_results_csv(ds, tmp / "results.csv")
         write_sample_sizes_csv(answers, tmp / "sample_sizes.csv")
         ds.to_netcdf(tmp / "results.nc", engine="scipy")
-        (tmp / "design.json").write_text(json.dumps(json.loads(ds.attrs["design"]), indent=2))
+        record = plan.design_record()
+        if record is not None:
+            (tmp / "design.toml").write_text(record, encoding="utf-8")
         if plan.source is not None:
             (tmp / "design_as_given.toml").write_bytes(plan.source.content)
         figures = tmp / "figures"
@@ -86,7 +88,8 @@ def write_outputs(out: str | Path, plan: Plan, *, overwrite: bool = False) -> Pa
             png, _svg = save_figure(fig, figures / name)
             rendered[name] = png.read_bytes()
         write_memo(plan.design, ds, answers, tmp / "memo.html", rendered=rendered,
-                   prior_origin=plan.prior_origin, precision=plan.precision)
+                   prior_origin=plan.prior_origin, precision=plan.precision,
+                   design_record=record)
         os.chmod(tmp, 0o755)
         _swap_into_place(tmp, out)
     except BaseException:

@@ -24,7 +24,7 @@ PROMISED = [
     "results.csv",
     "results.nc",
     "sample_sizes.csv",
-    "design.json",
+    "design.toml",
     "design_as_given.toml",
     "figures/prior.png",
     "figures/prior.svg",
@@ -121,26 +121,26 @@ def test_overwrite_replaces_the_folder(tmp_path):
 
 BAD_CASES = [
     # (replacement in GOOD, words the message must contain)
-    (("sd = 10.0", "sd = -1.0"), ["'sd'", "-1.0", "> 0"]),
-    (("sd = 10.0", "sd = nan"), ["'sd'", "nan"]),
-    (("sd = 10.0", "sd = inf"), ["'sd'", "inf"]),
-    (("alpha = 0.025", "alpha = 0.7"), ["'alpha'", "0.7", "(0, 0.5]"]),
-    (("analysis = \"z\"", "analysis = \"z\"\nallocation = 0"), ["'allocation'", "0"]),
+    (("sd = 10.0", "sd = -1.0"), ["'endpoint.sd'", "-1.0", "> 0"]),
+    (("sd = 10.0", "sd = nan"), ["'endpoint.sd'", "finite", "nan"]),
+    (("sd = 10.0", "sd = inf"), ["'endpoint.sd'", "finite", "inf"]),
+    (("alpha = 0.025", "alpha = 0.7"), ["'success.alpha'", "0.7", "< 0.5"]),
+    (("analysis = \"z\"", "analysis = \"z\"\nallocation = 0"), ["'endpoint.allocation'", "0"]),
     (("[effect]", "[effect]\nasumed = 3"), ["asumed", "Did you mean 'assumed'"]),
     (("family = \"normal\"", "family = \"normall\""), ["normall", "Did you mean 'normal'"]),
-    (("list = [50, 100, 200]", "list = [1, 100]"), ["'sizes'", ">= 2"]),
+    (("list = [50, 100, 200]", "list = [1, 100]"), ["[sizes]", ">= 2"]),
     (("assurance = 0.6", "assurance = 1.2"), ["targets.assurance", "1.2"]),
     (("relevant = 3.0", "relevant = 30.0"), ["relevant", "30"]),
     (
         ("family = \"normal\"\nmean = 4.0\nsd = 2.0",
          "family = \"mixture\"\nparts = [{weight = 0.5, family = \"point_mass\", value = 0.0},"
          " {weight = 0.6, family = \"normal\", mean = 4.0, sd = 2.0}]"),
-        ["'weights'", "sum to 1"],
+        ["weights of 'design_prior.parts'", "sum to 1"],
     ),
     (("[sizes]", "[sd_prior]\nfamily = \"normal\"\nmean = 1.0\nsd = 1.0\n[sizes]"),
      ["sd_prior", "sigma > 0"]),
     (("title = \"Test design\"", "title = \"Test design\"\ncolour = \"red\""),
-     ["unknown key 'colour'"]),
+     ["unknown table or key 'colour'"]),
     (("[design_prior]", "[design_prior"), ["not valid TOML"]),
 ]
 
@@ -180,7 +180,7 @@ def test_real_process_exits_2_without_traceback(tmp_path):
                            str(tmp_path / "o")], capture_output=True, text=True)
     assert proc.returncode == 2
     assert "Traceback" not in proc.stderr
-    assert "'sd'" in proc.stderr
+    assert "'endpoint.sd'" in proc.stderr
 
 
 def test_help_imports_nothing_heavy():
@@ -232,4 +232,4 @@ def test_bad_precision_table(tmp_path, capsys):
     design.write_text(GOOD + "[precision]\nlength = -1.0\n")
     assert main(["plan", str(design), "--out", str(tmp_path / "o"), "--quiet"]) == 2
     err = capsys.readouterr().err
-    assert "'length'" in err and "-1.0" in err
+    assert "'precision.length'" in err and "-1.0" in err

@@ -26,7 +26,7 @@ from scipy import stats
 import assurance as asr
 from assurance.cli import main
 from assurance.errors import AssuranceInputError, DesignFileError
-from assurance.plan import DesignSource, Plan, PlanSettings
+from assurance.planner import DesignSource, Plan, PlanSettings
 from assurance.report import memo_text_summary
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -364,7 +364,7 @@ def test_write_makes_the_folder_with_a_copy_of_the_design_file(small, small_file
     out = small.write(tmp_path / "plan")
     assert out == tmp_path / "plan"
     names = {str(p.relative_to(out)) for p in out.rglob("*") if p.is_file()}
-    assert {"memo.html", "results.csv", "results.nc", "sample_sizes.csv", "design.json",
+    assert {"memo.html", "results.csv", "results.nc", "sample_sizes.csv", "design.toml",
             "design_as_given.toml", "figures/prior.png", "figures/power_and_assurance.svg",
             "figures/interval_width.png"} <= names
     assert (out / "design_as_given.toml").read_bytes() == small_file.read_bytes()
@@ -403,7 +403,7 @@ def test_a_plan_made_in_python_has_no_design_copy(tmp_path):
                              asr.Normal(4.0, 2.0))
     out = asr.plan(design, sizes=[100, 200]).write(tmp_path / "plan")
     assert not (out / "design_as_given.toml").exists()
-    assert (out / "design.json").is_file()
+    assert (out / "design.toml").is_file()
 
 
 def test_write_memo_alone_and_never_silently_over_a_file(small, tmp_path):
@@ -454,8 +454,8 @@ def test_progress_reports_each_step(small_file):
                      "solving n for precision (ALC)", "solving n for precision (WOC)"]
 
 
-def test_plan_is_the_function_even_after_importing_the_module():
-    import assurance.plan as module  # noqa: F401 - the import itself is what is checked
+def test_plan_is_the_function_even_after_importing_its_module():
+    import assurance.planner  # noqa: F401 - the import itself is what is checked
 
     assert callable(asr.plan) and asr.plan.__name__ == "plan"
     assert asr.Plan is Plan
@@ -482,7 +482,7 @@ def _imported_modules(path: Path) -> set[str]:
 
 
 def test_layers_import_downwards_only():
-    upper = {"assurance.plan", "assurance.cli", "assurance.outputs", "assurance.design_file"}
+    upper = {"assurance.planner", "assurance.cli", "assurance.outputs", "assurance.design_file"}
     for path in [ROOT / "assurance" / "workflow.py",
                  *sorted((ROOT / "assurance" / "report").glob("*.py"))]:
         wrong = {m for m in _imported_modules(path)

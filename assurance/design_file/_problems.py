@@ -233,14 +233,27 @@ def _num(value: Any) -> str:
     return f"{float(value):g}" if isinstance(value, int | float) else str(value)
 
 
+def _constraints(annotation: Any) -> list[Any]:
+    """The annotated-types constraints inside an annotation (through Optional, Annotated)."""
+    found: list[Any] = []
+    origin = typing.get_origin(annotation)
+    if origin is typing.Annotated:
+        for meta in typing.get_args(annotation)[1:]:
+            found += list(getattr(meta, "metadata", [meta]))
+    elif origin in (typing.Union, types.UnionType):
+        for arg in typing.get_args(annotation):
+            found += _constraints(arg)
+    return found
+
+
 def _range_text(f: Any) -> str:
     """'> 0 and < 1' from a field's constraints, or ''."""
     if f is None:
         return ""
     parts = []
-    for meta in f.metadata:
+    for meta in [*f.metadata, *_constraints(f.annotation)]:
         for attr, sign in (("gt", ">"), ("ge", ">="), ("lt", "<"), ("le", "<=")):
             bound = getattr(meta, attr, None)
             if bound is not None:
                 parts.append(f"{sign} {_num(bound)}")
-    return " and ".join(parts)
+    return " and ".join(dict.fromkeys(parts))

@@ -59,7 +59,7 @@ from __future__ import annotations
 import math
 import tomllib
 from collections.abc import Callable
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from functools import cache
 from pathlib import Path
 from typing import Any
@@ -101,6 +101,8 @@ class DesignFile:
         :func:`assurance.design_file.record.design_toml` writes it as ``design.toml``.
     notes
         Warnings for the reader of the design (not errors).
+    content
+        The file's exact bytes, as read (None when parsed from a mapping).
     """
 
     design: Any
@@ -114,6 +116,7 @@ class DesignFile:
     precision: Any = None
     record: dict[str, Any] = field(default_factory=dict, compare=False)
     notes: tuple[str, ...] = ()
+    content: bytes | None = field(default=None, repr=False, compare=False)
 
 
 def read_design_file(path: str | Path) -> DesignFile:
@@ -160,12 +163,17 @@ def read_design_file(path: str | Path) -> DesignFile:
         raise DesignFileError(f"{path} is {path.stat().st_size:,} bytes; a design file is a "
                               f"short text file (at most {MAX_FILE_BYTES:,} bytes).")
     try:
-        raw = tomllib.loads(path.read_text(encoding="utf-8"))
+        content = path.read_bytes()
+    except OSError as exc:
+        raise DesignFileError(f"The design file {str(path)!r} cannot be read: "
+                              f"{exc.strerror}.") from None
+    try:
+        raw = tomllib.loads(content.decode("utf-8"))
     except tomllib.TOMLDecodeError as exc:
         raise DesignFileError(f"{path} is not valid TOML: {exc}.") from None
     except UnicodeDecodeError:
         raise DesignFileError(f"{path} is not a UTF-8 text file.") from None
-    return parse_design(raw, source=str(path))
+    return replace(parse_design(raw, source=str(path)), content=content)
 
 
 def parse_design(raw: dict[str, Any], *, source: str = "design") -> DesignFile:
@@ -560,7 +568,12 @@ def _prior_and_origin(table: Any, where: str, builder: _Builder | None, endpoint
     if family == "mixture":
         comps = [_prior_and_origin(part, f"{where}.parts[{i}]", builder, endpoint)[0]
                  for i, part in enumerate(table.parts)]
-        return priors.Mixture(comps, [part.weight for part in table.parts]), None
+        weights = [part.weight for part in table.parts]
+        if abs(math.fsum(weights) - 1.0) > 1e-9:
+            raise DesignFileError(
+                f"the weights of '{where}.parts' must sum to 1; they sum to "
+                f"{math.fsum(weights):g} ({' + '.join(f'{w:g}' for w in weights)}).")
+        return priors.Mixture(comps, weights), None
     if family == "scipy":
         return _scipy_prior(table, where), None
     if family == "elicited":
@@ -747,7 +760,7 @@ def prior_from_table(table: dict[str, Any], where: str, source: str = "design", 
     Examples
     --------
     >>> prior_from_table({"family": "normal", "mean": 1.0, "sd": 2.0}, "design_prior")
-    Normal(mean=1, sd=2)
+    normal(mean=1, sd=2)
     """
     return prior_with_origin(table, where, source, ratio=ratio)[0]
 

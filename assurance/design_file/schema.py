@@ -320,8 +320,8 @@ _EVIDENCE_PRIORS: dict[str, type[Table]] = {
 #: mixture parts: each simple family with a weight
 _PARTS: dict[str, type[Table]] = {
     name: create_model(f"{cls.__name__}Part", __base__=cls, __doc__=cls.__doc__,
-                       weight=(Positive, key(help="Weight of this part; weights are "
-                                             "normalised to sum to one.")))
+                       weight=(Positive, key(help="Weight of this part; the weights of all "
+                                             "parts sum to 1.")))
     for name, cls in _SIMPLE_PRIORS.items()
 }
 

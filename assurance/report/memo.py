@@ -561,6 +561,7 @@ def memo_html(
     rendered: Mapping[str, bytes] | None = None,
     prior_origin: Any = None,
     precision: Sequence[Any] = (),
+    design_record: str | None = None,
 ) -> str:
     """The decision memo as one HTML string (see :func:`write_memo`).
 
@@ -607,7 +608,11 @@ def memo_html(
     if draws > 0:
         run.append(f"Monte Carlo draws: {draws}; seed: "
                    + ("not fixed" if seed is None or int(seed) < 0 else str(seed)))
-    design_json = json.dumps(json.loads(ds.attrs["design"]), indent=2)
+    if design_record is None:
+        recorded = json.dumps(json.loads(ds.attrs["design"]), indent=2)
+        recorded_title = "Design as recorded with the results"
+    else:
+        recorded, recorded_title = design_record, "Design file as planned (design.toml)"
     caution_items = "".join(f"<li>{_e(c)}</li>" for c in cautions)
     figure_block = (f"<section><h2>Figures</h2>{_figures(design, ds, answers, rendered)}"
                     "</section>"
@@ -631,8 +636,8 @@ def memo_html(
         f'<section class="cautions"><h2>Cautions</h2><ul>{caution_items}</ul></section>'
         '<section class="provenance"><h2>Provenance</h2>'
         f"<pre>{_e(chr(10).join(run))}\n\n{_e(versions)}</pre>"
-        f"<details><summary>Design as recorded with the results</summary>"
-        f"<pre>{_e(design_json)}</pre></details></section>"
+        f"<details><summary>{_e(recorded_title)}</summary>"
+        f"<pre>{_e(recorded)}</pre></details></section>"
         "</main></body></html>\n"
     )
 
@@ -657,6 +662,7 @@ def write_memo(
     rendered: Mapping[str, bytes] | None = None,
     prior_origin: Any = None,
     precision: Sequence[Any] = (),
+    design_record: str | None = None,
 ) -> Path:
     """Write the decision memo for a design as one self-contained HTML file.
 
@@ -695,6 +701,9 @@ def write_memo(
     precision
         Precision answers (one per criterion), shown with the interval-width figure when
         ``ds`` holds ``width_mean``.
+    design_record
+        The normalised design file (``design.toml`` text) shown under provenance; without
+        it, the design as recorded in ``ds``.
 
     Returns
     -------
@@ -724,5 +733,5 @@ def write_memo(
     target = check_target(path, "write_memo", overwrite)
     page = memo_html(design, ds, answers, cautions=cautions, versions=versions, date=date,
                      figures=figures, rendered=rendered, prior_origin=prior_origin,
-                     precision=precision)
+                     precision=precision, design_record=design_record)
     return write_atomic(target, page.encode("utf-8"), overwrite=overwrite, owner="write_memo")

@@ -76,7 +76,11 @@ class PlanSettings:
 
 @dataclass(frozen=True)
 class DesignSource:
-    """The design file a plan was read from: its path and its exact bytes.
+    """The design file a plan was read from: its path, exact bytes and normalised record.
+
+    ``record`` holds every table with every key in force, in the file's names
+    (:attr:`DesignFile.record <assurance.design_file.DesignFile.record>`); ``notes`` are the
+    reader's warnings (an assumed effect on the harmful side, say).
 
     Examples
     --------
@@ -86,6 +90,8 @@ class DesignSource:
 
     path: Path
     content: bytes = field(repr=False)
+    record: Mapping[str, Any] = field(default_factory=dict, repr=False, compare=False)
+    notes: tuple[str, ...] = ()
 
     def text(self) -> str:
         """The file's text (UTF-8, as the design-file reader requires)."""
@@ -207,20 +213,11 @@ class Plan:
                 "The 'path' parameter of Plan.from_file must be a file path (str or "
                 f"pathlib.Path). Got {path!r} instead.")
         path = Path(path)
-        try:
-            before = path.read_bytes()
-        except OSError:
-            before = None  # the reader gives the plain message (not found, not a file)
         spec = read_design_file(path)
-        content = path.read_bytes()
-        if before != content:
-            raise AssuranceInputError(
-                f"The design file {str(path)!r} changed while it was being read. Read it "
-                "again once it is saved.")
         made = plan(spec.design, targets=spec.targets, sizes=spec.sizes, zones=spec.zones,
                     precision=spec.precision, draws=spec.draws, seed=spec.seed,
                     prior_origin=spec.prior_origin, progress=progress)
-        return replace(made, source=DesignSource(path, content))
+        return replace(made, source=DesignSource(path, spec.content, spec.record, spec.notes))
 
     # --------------------------------------------------------------------------------------
     # saving
@@ -345,6 +342,31 @@ class Plan:
             figures["interval_width"] = plot_interval_width(self.results,
                                                             self.precision).figure
         return figures
+
+    def design_record(self) -> str | None:
+        """The normalised design file (``design.toml`` text), or None if it cannot be written.
+
+        Every key in force, in the design file's own names, defaults filled in; reading it
+        back gives the same plan. A plan read from a file records that file's tables (a prior
+        elicited from judgements stays elicited); a plan made in Python records its objects.
+
+        Examples
+        --------
+        >>> import assurance as asr
+        >>> design = asr.TrialDesign(asr.ContinuousEndpoint(sigma=10.0, analysis="z"),
+        ...                          asr.Normal(4.0, 2.0), title="Record")
+        >>> p = asr.plan(design, sizes=[100, 200])
+        >>> 'sd = 10.0' in p.design_record()
+        True
+        """
+        from .design_file.record import design_toml
+
+        if self.source is not None and self.source.record:
+            return design_toml(dict(self.source.record), source=str(self.source.path))
+        from .design_file.from_objects import record_from_plan
+
+        record = record_from_plan(self)
+        return None if record is None else design_toml(record)
 
     def summary(self) -> str:
         """A few plain lines: the headline numbers and each target's sample size.
