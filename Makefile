@@ -4,7 +4,7 @@ VENV   ?= .venv
 BIN    := $(VENV)/bin
 STAMP  := $(VENV)/.installed
 
-.PHONY: demo test lint bench clean
+.PHONY: demo test lint bench reference clean
 
 $(STAMP): pyproject.toml
 	$(PYTHON) -m venv $(VENV)
@@ -26,6 +26,10 @@ lint: $(STAMP)
 ## bench: speed benchmarks (not part of the tests); figures go to the terminal
 bench: $(STAMP)
 	$(BIN)/python benchmarks/run.py
+
+## reference: regenerate docs/design-file.md and docs/design-file.schema.json from the schema
+reference: $(STAMP)
+	$(BIN)/python -m assurance.design_file.reference docs
 
 clean:
 	rm -rf $(VENV) demo-output .pytest_cache .hypothesis

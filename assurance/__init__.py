@@ -42,44 +42,44 @@ _PUBLIC = {
     "BetaRates": "endpoints.binary",
     "SurvivalEndpoint": "endpoints.survival",
     "events_needed": "endpoints.survival",
-    "simulate_trials": "compute.survival_sim",
-    "simulate_assurance": "compute.survival_sim",
+    "simulate_trials": "simulation.survival",
+    "simulate_assurance": "simulation.survival",
     "sample_size_for_rate_ratio": "endpoints.counts",
     "simulate_rejection_rate": "endpoints.counts",
     "Significance": "rules",
-    "PosteriorProbability": "posterior_rules",
-    "AllOf": "posterior_rules",
-    "AnyOf": "posterior_rules",
-    "MinimumEstimate": "posterior_rules",
-    "GoConsiderStop": "zones",
-    "evaluate_zones": "zones",
+    "PosteriorProbability": "rules.posterior",
+    "AllOf": "rules.posterior",
+    "AnyOf": "rules.posterior",
+    "MinimumEstimate": "rules.posterior",
+    "GoConsiderStop": "rules.zones",
+    "evaluate_zones": "rules.zones",
     "evaluate_joint": "joint",
     "TrialDesign": "design",
     "evaluate": "planning",
     "solve_sample_size": "planning",
     "SampleSizeAnswer": "planning",
     "show_versions": "versions",
-    "fit_prior": "elicitation",
-    "linear_pool": "elicitation",
-    "plot_fit": "elicitation",
-    "Quantile": "elicitation",
-    "Interval": "elicitation",
-    "PriorFit": "elicitation",
-    "Beta": "elicitation",
-    "Gamma": "elicitation",
-    "Estimate": "evidence",
-    "estimate_from_events": "evidence",
-    "estimate_from_means": "evidence",
-    "prior_from_estimate": "evidence",
-    "robust_mixture": "evidence",
-    "arm_estimates": "evidence",
-    "meta_analytic_prior": "evidence",
-    "meta_analytic_prior_mcmc": "evidence",
-    "prior_predictive_summary": "evidence",
+    "fit_prior": "priors.elicitation",
+    "linear_pool": "priors.elicitation",
+    "plot_fit": "report.figures",
+    "Quantile": "priors.elicitation",
+    "Interval": "priors.elicitation",
+    "PriorFit": "priors.elicitation",
+    "Beta": "priors.elicitation",
+    "Gamma": "priors.elicitation",
+    "Estimate": "priors.evidence",
+    "estimate_from_events": "priors.evidence",
+    "estimate_from_means": "priors.evidence",
+    "prior_from_estimate": "priors.evidence",
+    "robust_mixture": "priors.evidence",
+    "arm_estimates": "priors.evidence",
+    "meta_analytic_prior": "priors.evidence",
+    "meta_analytic_prior_mcmc": "priors.evidence",
+    "prior_predictive_summary": "priors.evidence",
     "interval_width_curve": "precision",
     "solve_precision_n": "precision",
-    "PrecisionPlan": "precision_design",
-    "precision_model_for": "precision_design",
+    "PrecisionPlan": "precision.for_design",
+    "precision_model_for": "precision.for_design",
     "Plan": "planner",
     "plan": "planner",
     "read_design": "design_file:read_design_file",  # name here : name in the module
@@ -150,10 +150,19 @@ __all__ = [
 ]
 
 if TYPE_CHECKING:  # pragma: no cover - for type checkers and editors only
-    from .compute.survival_sim import simulate_assurance, simulate_trials
     from .design import TrialDesign
     from .design_file import read_design_file as read_design
-    from .elicitation import (
+    from .endpoints.binary import BetaRates, BinaryEndpoint
+    from .endpoints.continuous import ContinuousEndpoint
+    from .endpoints.counts import CountEndpoint, sample_size_for_rate_ratio, simulate_rejection_rate
+    from .endpoints.survival import SurvivalEndpoint, events_needed
+    from .errors import AssuranceInputError, AssuranceWarning, DesignFileError
+    from .joint import evaluate_joint
+    from .planner import Plan, plan
+    from .planning import SampleSizeAnswer, evaluate, solve_sample_size
+    from .precision.for_design import PrecisionPlan, precision_model_for
+    from .precision.widths import interval_width_curve, solve_precision_n
+    from .priors.elicitation import (
         Beta,
         Gamma,
         Interval,
@@ -161,14 +170,8 @@ if TYPE_CHECKING:  # pragma: no cover - for type checkers and editors only
         Quantile,
         fit_prior,
         linear_pool,
-        plot_fit,
     )
-    from .endpoints.binary import BetaRates, BinaryEndpoint
-    from .endpoints.continuous import ContinuousEndpoint
-    from .endpoints.counts import CountEndpoint, sample_size_for_rate_ratio, simulate_rejection_rate
-    from .endpoints.survival import SurvivalEndpoint, events_needed
-    from .errors import AssuranceInputError, AssuranceWarning, DesignFileError
-    from .evidence import (
+    from .priors.evidence import (
         Estimate,
         arm_estimates,
         estimate_from_events,
@@ -179,13 +182,7 @@ if TYPE_CHECKING:  # pragma: no cover - for type checkers and editors only
         prior_predictive_summary,
         robust_mixture,
     )
-    from .joint import evaluate_joint
-    from .planner import Plan, plan
-    from .planning import SampleSizeAnswer, evaluate, solve_sample_size
-    from .posterior_rules import AllOf, AnyOf, MinimumEstimate, PosteriorProbability
-    from .precision import interval_width_curve, solve_precision_n
-    from .precision_design import PrecisionPlan, precision_model_for
-    from .priors import (
+    from .priors.families import (
         FromScipy,
         GammaPrecision,
         Mixture,
@@ -197,9 +194,12 @@ if TYPE_CHECKING:  # pragma: no cover - for type checkers and editors only
         TruncatedNormal,
         Uniform,
     )
-    from .rules import Significance
+    from .report.figures import plot_fit
+    from .rules.posterior import AllOf, AnyOf, MinimumEstimate, PosteriorProbability
+    from .rules.significance import Significance
+    from .rules.zones import GoConsiderStop, evaluate_zones
+    from .simulation.survival import simulate_assurance, simulate_trials
     from .versions import show_versions
-    from .zones import GoConsiderStop, evaluate_zones
 
 
 def __getattr__(name: str) -> Any:

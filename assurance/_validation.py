@@ -14,6 +14,9 @@ import numpy as np
 
 from .errors import AssuranceInputError
 
+#: Largest total sample size any function accepts (keeps integer arithmetic exact).
+MAX_TOTAL = 10**15
+
 
 def _fail(name: str, owner: str, allowed: str, value: object) -> AssuranceInputError:
     return AssuranceInputError(

@@ -13,8 +13,8 @@ from ._validation import check_real
 from .endpoints.base import Endpoint
 from .endpoints.continuous import ContinuousEndpoint
 from .errors import AssuranceInputError
-from .priors import Prior, as_prior
-from .rules import Significance
+from .priors.families import Prior, as_prior
+from .rules.significance import Significance
 
 __all__ = ["TrialDesign"]
 

@@ -28,15 +28,15 @@ from typing import TYPE_CHECKING, Any
 from .design import TrialDesign
 from .errors import AssuranceInputError
 from .planning import DEFAULT_DRAWS, SampleSizeAnswer
-from .precision_design import PrecisionPlan
+from .precision.for_design import PrecisionPlan
+from .rules.zones import GoConsiderStop
 from .workflow import DEFAULT_SEED, ProgressCallback, check_plan_inputs, run_plan
-from .zones import GoConsiderStop
 
 if TYPE_CHECKING:  # pragma: no cover
     import numpy as np
     from matplotlib.figure import Figure
 
-    from .precision import PrecisionAnswer
+    from .precision.widths import PrecisionAnswer
 
 __all__ = ["Plan", "PlanSettings", "DesignSource", "plan"]
 
@@ -260,7 +260,7 @@ class Plan:
         ...     print((out / "memo.html").is_file(), (out / "results.nc").is_file())
         True True
         """
-        from .outputs import write_outputs
+        from .report.output_folder import write_outputs
 
         _check_overwrite(overwrite, "Plan.write")
         if not isinstance(out, str | os.PathLike):
@@ -335,7 +335,7 @@ class Plan:
                 self.results, answers=list(self.sample_sizes)).figure,
         }
         if type(self.prior_origin).__name__ == "PriorFit":
-            from .elicitation import plot_fit
+            from .report.figures import plot_fit
 
             figures["prior_fit"] = plot_fit(self.prior_origin).figure
         if "width_mean" in self.results:

@@ -17,7 +17,7 @@ from typing import Any, Literal
 
 import numpy as np
 
-from ._validation import check_choice, check_int, check_real, check_real_array
+from ._validation import MAX_TOTAL, check_choice, check_int, check_real, check_real_array
 from .compute.normal_outcome import Cut
 from .design import TrialDesign
 from .errors import AssuranceInputError, AssuranceWarning
@@ -27,8 +27,6 @@ __all__ = ["evaluate", "solve_sample_size", "SampleSizeAnswer", "Quantity"]
 Quantity = Literal["power", "assurance", "conditional_assurance"]
 QUANTITIES: tuple[str, ...] = ("power", "assurance", "conditional_assurance")
 DEFAULT_DRAWS = 20_000
-#: Largest total sample size any function accepts (keeps integer arithmetic exact).
-MAX_TOTAL = 10**15
 ProgressCallback = Callable[[int, int], None]
 
 

@@ -36,11 +36,11 @@ from .planning import (
     evaluate,
     solve_sample_size,
 )
-from .precision_design import PrecisionPlan
-from .zones import GoConsiderStop
+from .precision.for_design import PrecisionPlan
+from .rules.zones import GoConsiderStop
 
 if TYPE_CHECKING:  # pragma: no cover
-    from .precision import PrecisionAnswer
+    from .precision.widths import PrecisionAnswer
 
 __all__ = [
     "PlanResults",
@@ -245,7 +245,7 @@ def _add_zones(ds: Any, design: TrialDesign, zones: GoConsiderStop, sizes: np.nd
                draws: int, seed: int, say: Callable[..., Any]) -> Any:
     import xarray as xr
 
-    from .zones import evaluate_zones
+    from .rules.zones import evaluate_zones
 
     say("go / consider / stop probabilities")
     probabilities = evaluate_zones(design, zones, sizes, draws=draws, seed=seed)
@@ -257,8 +257,8 @@ def _add_zones(ds: Any, design: TrialDesign, zones: GoConsiderStop, sizes: np.nd
 
 def _add_precision(ds: Any, design: TrialDesign, plan: PrecisionPlan, *, seed: int,
                    say: Callable[..., Any]) -> tuple[Any, list[Any]]:
-    from .precision import interval_width_curve, solve_precision_n
-    from .precision_design import precision_model_for
+    from .precision.for_design import precision_model_for
+    from .precision.widths import interval_width_curve, solve_precision_n
 
     say("posterior interval width against n")
     model = precision_model_for(design)

@@ -1,4 +1,4 @@
-"""Priors fitted to elicited judgements (assurance.elicitation).
+"""Priors fitted to elicited judgements (assurance.priors.elicitation).
 
 References: scipy.stats distributions built inside each test. Their quantiles are exact
 statements, so the true parameters give a zero sum of squares and a correct fit must find
@@ -21,7 +21,9 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from scipy import stats
 
-from assurance.elicitation import (
+from assurance.errors import AssuranceInputError, AssuranceWarning
+from assurance.priors import Mixture, Normal, StudentT
+from assurance.priors.elicitation import (
     Beta,
     Gamma,
     Interval,
@@ -29,10 +31,8 @@ from assurance.elicitation import (
     Quantile,
     fit_prior,
     linear_pool,
-    plot_fit,
 )
-from assurance.errors import AssuranceInputError, AssuranceWarning
-from assurance.priors import Mixture, Normal, StudentT
+from assurance.report import plot_fit
 
 LEVELS = [0.05, 0.25, 0.5, 0.75, 0.95]
 

@@ -1,4 +1,4 @@
-"""Priors from earlier trials and the prior predictive summary (assurance.evidence).
+"""Priors from earlier trials and the prior predictive summary (assurance.priors.evidence).
 
 Outside references, named beside each check:
 
@@ -30,7 +30,8 @@ from hypothesis import strategies as st
 from scipy import integrate, optimize, stats
 
 from assurance.errors import AssuranceInputError
-from assurance.evidence import (
+from assurance.priors import Mixture, Normal, PointMass, StudentT
+from assurance.priors.evidence import (
     Estimate,
     arm_estimates,
     estimate_from_events,
@@ -41,7 +42,6 @@ from assurance.evidence import (
     prior_predictive_summary,
     robust_mixture,
 )
-from assurance.priors import Mixture, Normal, PointMass, StudentT
 
 # Kacker 2004, Metrologia 41:132-136, Table 1
 KACKER_Y = np.array([61.00, 61.40, 62.21, 62.30, 62.34, 62.60, 62.70, 62.84, 65.90])
@@ -244,7 +244,7 @@ def test_pymc_map_prior_agrees_with_closed_form():
 def test_normal_mixture_em_recovers_a_two_component_mixture():
     # EM on draws from a known mixture (invented; scipy.stats draws): weights and means
     # within 4 standard errors of a 20000-draw sample (sd / sqrt(n w) for a mean).
-    from assurance.evidence import _normal_mixture_em
+    from assurance.priors.evidence import _normal_mixture_em
 
     rng = np.random.default_rng(3)
     n = 20000

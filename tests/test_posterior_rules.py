@@ -13,7 +13,7 @@ from scipy import integrate, stats
 import assurance as asr
 from assurance.design_file import parse_design
 from assurance.errors import AssuranceInputError, DesignFileError
-from assurance.posterior_rules import posterior_prob_above
+from assurance.rules.posterior import posterior_prob_above
 
 SIZES = [20, 60, 150, 400, 1000]
 

@@ -135,9 +135,9 @@ def _python_defaults(cls):
     ("TimeToEventTable", "assurance.endpoints.survival:SurvivalEndpoint", {}),
     ("CountsTable", "assurance.endpoints.counts:CountEndpoint", {}),
     ("SignificanceTable", "assurance.rules:Significance", {}),
-    ("PosteriorProbabilityTable", "assurance.posterior_rules:PosteriorProbability", {}),
-    ("ZonesTable", "assurance.zones:GoConsiderStop", {}),
-    ("PrecisionTable", "assurance.precision_design:PrecisionPlan", {}),
+    ("PosteriorProbabilityTable", "assurance.rules.posterior:PosteriorProbability", {}),
+    ("ZonesTable", "assurance.rules.zones:GoConsiderStop", {}),
+    ("PrecisionTable", "assurance.precision.for_design:PrecisionPlan", {}),
     ("StudentTPrior", "assurance.priors:StudentT", {"location": "loc"}),
 ])
 def test_schema_defaults_are_the_python_defaults(table, cls_path, renamed):
@@ -278,6 +278,8 @@ CATALOGUE = {
                                 sd_prior={"family": "scaled_inv_chi_square", "df": 10,
                                           "scale": 1.0}),
     "size below the smallest": _with(sizes={"list": [1, 100]}),
+    "size above the largest": _with(sizes={"list": [100, 10**16]}),
+    "too few draws": _with(monte_carlo={"draws": 10}),
     "conditional target without relevant": _with(
         effect={"assumed": 4.0}, targets={"conditional_assurance": 0.8}),
     "zones in the wrong direction": _with(zones={"min_acceptable": 4.0, "target": 2.0}),
@@ -301,7 +303,7 @@ CATALOGUE = {
         success={"rule": "posterior_probability"}),
     "beta rates on a continuous endpoint": _with(
         design_prior={"family": "beta_rates", "control": [3, 7], "treatment": [4, 6]}),
-    "hazard ratio of zero": _with(
+    "hazard ratio of zero (the planning ratio comes from [effect])": _with(
         endpoint={"type": "time_to_event", "accrual_time": 12.0, "control_median": 10.0},
         design_prior={"family": "log_normal", "median": 0.8, "log_sd": 0.2},
         effect={"assumed": 0.0}),
@@ -326,7 +328,15 @@ def test_check_and_plan_refuse_the_same_files(name, tmp_path, capsys):
     from_plan = capsys.readouterr().err
     assert from_check == from_plan  # the same message, from the same checks
     assert "Traceback" not in from_check and not out.exists()
-    assert "TrialDesign" not in from_check and "PrecisionPlan" not in from_check
+    for python_name in ("TrialDesign", "PrecisionPlan", "BinaryEndpoint", "BetaRates",
+                        "Significance", "PosteriorProbability", "None", "sigma"):
+        assert python_name not in from_check, python_name
+
+
+def test_a_borrowed_planning_ratio_is_named_as_written():
+    raw = CATALOGUE["hazard ratio of zero (the planning ratio comes from [effect])"]
+    with pytest.raises(DesignFileError, match="'effect.assumed' must be a number > 0"):
+        parse_design(raw)
 
 
 def test_the_good_design_passes_both(tmp_path, capsys):

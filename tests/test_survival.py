@@ -45,14 +45,14 @@ from assurance import (
     solve_sample_size,
 )
 from assurance.compute.normal_outcome import Cut
-from assurance.compute.survival_sim import (
+from assurance.design_file import endpoint_from_table, read_design_file
+from assurance.endpoints.survival import SurvivalEndpoint, events_needed
+from assurance.errors import AssuranceInputError, DesignFileError
+from assurance.simulation.survival import (
     logrank_by_row,
     simulate_assurance,
     simulate_trials,
 )
-from assurance.design_file import endpoint_from_table, read_design_file
-from assurance.endpoints.survival import SurvivalEndpoint, events_needed
-from assurance.errors import AssuranceInputError, DesignFileError
 
 ROOT = Path(__file__).resolve().parents[1]
 Z975 = stats.norm.isf(0.025)

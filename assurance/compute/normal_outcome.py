@@ -20,8 +20,8 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import special
 
-from ..priors import Prior
-from ..rules import Significance
+from ..priors.families import Prior
+from ..rules.significance import Significance
 from .prior_predictive import prob_estimate_above
 from .sd_quadrature import sd_ratio_nodes
 

@@ -18,7 +18,7 @@ from __future__ import annotations
 import numpy as np
 from scipy import integrate, special
 
-from ..priors import Normal, PointMass, Prior
+from ..priors.families import Normal, PointMass, Prior
 
 __all__ = ["prob_estimate_above", "upper_orthant_normal"]
 

@@ -35,6 +35,24 @@ def did_you_mean(value: Any, options: Any, cutoff: float = 0.6) -> str:
 #: Python parameter names -> design-file keys, where they differ
 _PARAMETER_KEYS = {"sigma": "sd", "loc": "location"}
 
+#: Python names in the package's messages -> what a design file says (longest first)
+_FILE_WORDS = [
+    ("a design with a BinaryEndpoint and a PosteriorProbability rule",
+     'a binary endpoint with rule = "posterior_probability"'),
+    ("a design with a BinaryEndpoint", "a binary endpoint"),
+    ("with a BinaryEndpoint", "with a binary endpoint"),
+    ("BinaryEndpoint(control_prior=...)", "'endpoint.control_prior'"),
+    ("a Significance rule", 'rule = "significance"'),
+    ("a PosteriorProbability rule", 'rule = "posterior_probability"'),
+    ("a BetaRates design prior", 'a design prior with family = "beta_rates"'),
+    ("a BetaRates prior", 'a prior with family = "beta_rates"'),
+    ("BetaRates", '"beta_rates"'),
+    ("must be None (flat), a Normal, or a Mixture of Normal and PointMass parts",
+     'must be left out (flat), family = "normal", or a "mixture" of "normal" and '
+     '"point_mass" parts'),
+    ("must be None", "must be left out"),
+]
+
 _TYPE_WORDS = {
     "float_type": "a number",
     "float_parsing": "a number",
@@ -147,6 +165,8 @@ class Problems:
             return f"'{where}.{name}'" if where else f"'{name}'"
 
         text = re.sub(r"The '([\w.]+)' parameter of \w+", key, str(exc))
+        for python, file_words in _FILE_WORDS:
+            text = text.replace(python, file_words)
         text = re.sub(r"\bGot (.*) instead\.$", r"Got \1.", text)
         self.add(where, text + note)
 
@@ -198,7 +218,10 @@ class Problems:
             f = _field(_model_at(loc[:-1]), str(shown[-1]))
             allowed = _range_text(f) or bounds[kind].format(**{k: _num(v)
                                                               for k, v in ctx.items()})
-            return f"'{path}' must be a number {allowed}. Got {_shown(value)}."
+            what = "a whole number" if isinstance(value, int) and not isinstance(
+                value, bool) and kind.startswith(("greater", "less")) and _is_int_field(
+                _model_at(loc[:-1]), str(shown[-1])) else "a number"
+            return f"'{path}' must be {what} {allowed}. Got {_shown(value)}."
         if kind == "too_short":
             return (f"'{path}' must have at least {ctx.get('min_length')} "
                     f"entr{'y' if ctx.get('min_length') == 1 else 'ies'}. Got {_shown(value)}.")
@@ -227,6 +250,15 @@ class Problems:
         error = DesignFileError(message)
         error.problems = list(self.items)  # type: ignore[attr-defined]
         raise error
+
+
+def _is_int_field(model: Any, key: str) -> bool:
+    """Whether ``key`` of ``model`` holds whole numbers (or lists of them)."""
+    f = _field(model, key)
+    if f is None:  # a list entry: its field is the list
+        return True
+    text = str(f.annotation)
+    return "int" in text and "float" not in text
 
 
 def _num(value: Any) -> str:

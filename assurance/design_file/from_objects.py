@@ -123,8 +123,8 @@ def _endpoint_value(ep: Any, kind: str, key: str) -> Any:
 
 
 def _rule(rule: Any) -> dict[str, Any]:
-    from ..posterior_rules import AllOf, MinimumEstimate, PosteriorProbability
-    from ..rules import Significance
+    from ..rules.posterior import AllOf, MinimumEstimate, PosteriorProbability
+    from ..rules.significance import Significance
 
     if isinstance(rule, Significance):
         out: dict[str, Any] = {"rule": "significance", "alpha": rule.alpha,
@@ -149,7 +149,7 @@ def _rule(rule: Any) -> dict[str, Any]:
 
 def _prior(prior: Any) -> dict[str, Any]:
     from ..endpoints.binary import BetaRates
-    from ..priors import (
+    from ..priors.families import (
         FromScipy,
         GammaPrecision,
         Mixture,

@@ -288,7 +288,11 @@ class _Builder:
         effect = t["effect"]
         endpoint = _FAILED
         if _ok(t["endpoint"], effect):
-            endpoint = self.attempt("endpoint", lambda: _endpoint(t["endpoint"], effect, self))
+            borrowed = (getattr(t["endpoint"], "assumed_hazard_ratio", 0) is None
+                        and effect.assumed is not None)
+            endpoint = self.attempt(
+                "endpoint", lambda: _endpoint(t["endpoint"], effect, self),
+                {"assumed_hazard_ratio": "effect.assumed"} if borrowed else None)
         rule = _FAILED if t["success"] is _FAILED else self.attempt(
             "success", lambda: _rule(t["success"]))
         design_prior, origin = _FAILED, None
@@ -352,6 +356,14 @@ class _Builder:
         notes: list[str] = []
         if design is not _FAILED:
             self.preflight(design, zones, precision, draws, seed)
+            if sizes is not None and _ok(zones, precision) and not self.problems:
+                from ..workflow import check_plan_inputs
+
+                # the plan's own input checks, so that check and plan refuse the same files
+                self.attempt("sizes", lambda: check_plan_inputs(
+                    design, targets, sizes, zones, precision, draws, seed, None,
+                    owner="plan"), {"sizes": "sizes", "draws": "monte_carlo.draws",
+                                    "seed": "monte_carlo.seed"})
             notes += _harmful_side_notes(design)
         if self.problems:
             return None  # type: ignore[return-value]  # raised by the caller
@@ -382,7 +394,7 @@ class _Builder:
             self.attempt("zones", lambda: [calculator(zones.go_rule()),
                                            calculator(zones.not_stop_rule())])
         if precision is not None and precision is not _FAILED:
-            from ..precision_design import precision_model_for
+            from ..precision.for_design import precision_model_for
 
             self.attempt("precision", lambda: precision_model_for(design))
 
@@ -445,8 +457,8 @@ def _endpoint(table: Any, effect: Any, builder: _Builder | None) -> Any:
 
 
 def _rule(table: Any) -> Any:
-    from ..posterior_rules import AllOf, MinimumEstimate, PosteriorProbability
-    from ..rules import Significance
+    from ..rules.posterior import AllOf, MinimumEstimate, PosteriorProbability
+    from ..rules.significance import Significance
 
     if table.rule == "significance":
         return Significance(alpha=table.alpha, sided=table.sided, margin=table.margin,
@@ -458,7 +470,7 @@ def _rule(table: Any) -> Any:
 
 
 def _zones(table: Any, endpoint: Any) -> Any:
-    from ..zones import GoConsiderStop
+    from ..rules.zones import GoConsiderStop
 
     zones = GoConsiderStop(**table.model_dump())
     if endpoint is not _FAILED:
@@ -467,7 +479,7 @@ def _zones(table: Any, endpoint: Any) -> Any:
 
 
 def _precision(table: Any) -> Any:
-    from ..precision_design import PrecisionPlan
+    from ..precision.for_design import PrecisionPlan
 
     values = table.model_dump()
     return PrecisionPlan(**{**values, "criteria": tuple(values["criteria"])})
@@ -502,6 +514,10 @@ def _record(t: dict[str, Any], title: str, endpoint: Any) -> dict[str, Any]:
         ep["assumed_hazard_ratio"] = endpoint.assumed_hazard_ratio
     if ep["type"] == "binary":
         ep["layout"] = endpoint.layout
+    from .schema import ENDPOINT_TABLES
+
+    order = list(ENDPOINT_TABLES[ep["type"]].model_fields)  # the schema's order
+    record["endpoint"] = {k: ep[k] for k in sorted(ep, key=order.index)}
     for name in ("design_prior", "analysis_prior"):
         table = record.get(name)
         if table is not None and table["family"] == "beta_rates" and "scale" not in table:
@@ -581,7 +597,7 @@ def _prior_and_origin(table: Any, where: str, builder: _Builder | None, endpoint
     if family == "earlier_trial":
         return _earlier_trial(table, where, ratio)
     if family == "meta_analysis":
-        from ..evidence import meta_analytic_prior
+        from ..priors.evidence import meta_analytic_prior
 
         result = meta_analytic_prior(table.estimates, table.ses, method=table.method)
         return result.prior, result
@@ -603,7 +619,7 @@ def _log_normal(table: Any) -> Any:
     """A log-normal prior on a positive quantity (a rate or a median), not on an effect."""
     from scipy import stats
 
-    from ..priors import FromScipy
+    from ..priors.families import FromScipy
 
     return FromScipy(stats.lognorm(s=table.log_sd, scale=table.median))
 
@@ -630,7 +646,7 @@ def _beta_rates(table: Any, where: str, endpoint: Any) -> Any:
 def _scipy_prior(table: Any, where: str) -> Any:
     from scipy import stats
 
-    from ..priors import FromScipy
+    from ..priors.families import FromScipy
 
     dist = getattr(stats, table.name, None)
     if not isinstance(dist, stats.rv_continuous):
@@ -657,7 +673,7 @@ def _scipy_prior(table: Any, where: str) -> Any:
 
 
 def _elicited(table: Any, where: str, ratio: bool) -> tuple[Any, Any]:
-    from ..elicitation import Interval, Quantile, fit_prior
+    from ..priors.elicitation import Interval, Quantile, fit_prior
 
     fit = table.fit
     if ratio and fit not in ("lognormal", "best"):
@@ -680,7 +696,7 @@ def _elicited(table: Any, where: str, ratio: bool) -> tuple[Any, Any]:
 
 
 def _earlier_trial(table: Any, where: str, ratio: bool) -> tuple[Any, Any]:
-    from ..evidence import Estimate, prior_from_estimate
+    from ..priors.evidence import Estimate, prior_from_estimate
 
     if table.ratio is not None:
         if not ratio:

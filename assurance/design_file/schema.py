@@ -30,6 +30,8 @@ from pydantic import (
     model_validator,
 )
 
+from .._validation import MAX_TOTAL
+
 __all__ = [
     "DesignFileModel",
     "ENDPOINT_TABLES",
@@ -103,6 +105,8 @@ def _tag(field: str, prefix: str, default: str | None = None) -> Any:
     def get(value: Any) -> str | None:
         found = value.get(field, default) if isinstance(value, dict) else getattr(
             value, field, default)
+        if found is None and isinstance(value, dict):
+            return f"{prefix}:"  # no such key: reported as required, with the choices
         if not isinstance(found, str):
             return None
         return f"{prefix}:{found}"
@@ -576,17 +580,17 @@ class EffectTable(Table):
 
 
 MAX_SIZES = 5000
+Size = Annotated[int, Field(ge=1, le=MAX_TOTAL)]
 
 
 class SizesTable(Table):
     """Total sample sizes to evaluate."""
 
-    from_: Annotated[int, Field(ge=1)] | None = key(None, "Smallest total size.", alias="from",
-                                                    scale="patients")
-    to: Annotated[int, Field(ge=1)] | None = key(None, "Largest total size.", scale="patients")
+    from_: Size | None = key(None, "Smallest total size.", alias="from", scale="patients")
+    to: Size | None = key(None, "Largest total size.", scale="patients")
     step: Annotated[int, Field(ge=1)] | None = key(
         None, "Step between sizes (none: about 50 sizes).", scale="patients")
-    list_: list[Annotated[int, Field(ge=1)]] | None = key(
+    list_: list[Size] | None = key(
         None, "Explicit total sizes instead of from/to/step.", alias="list", scale="patients",
         min_length=1)
 

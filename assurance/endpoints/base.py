@@ -15,8 +15,8 @@ from typing import Any
 
 import numpy as np
 
-from ..priors import Prior
-from ..rules import Significance
+from ..priors.families import Prior
+from ..rules.significance import Significance
 
 __all__ = ["Endpoint", "SuccessCalculator", "TwoArmSizing"]
 
@@ -155,7 +155,7 @@ class Endpoint(TwoArmSizing, ABC):
 
         Under the normal approximation: a Normal, or a mixture of Normal and PointMass parts.
         """
-        from ..posterior_rules import _check_analysis_prior
+        from ..rules.posterior import _check_analysis_prior
 
         return _check_analysis_prior(prior, "TrialDesign")
 

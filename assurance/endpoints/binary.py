@@ -58,9 +58,9 @@ from ..compute.binary_exact import (
 )
 from ..compute.normal_outcome import SuccessProbabilities
 from ..errors import AssuranceInputError, AssuranceWarning
-from ..posterior_rules import PosteriorProbability
-from ..priors import PointMass, Prior
-from ..rules import Significance
+from ..priors.families import PointMass, Prior
+from ..rules.posterior import PosteriorProbability
+from ..rules.significance import Significance
 from .base import Endpoint, SuccessCalculator
 
 __all__ = ["BinaryEndpoint", "BetaRates"]

@@ -14,8 +14,8 @@ from typing import Any, Literal
 import numpy as np
 
 from .._validation import check_choice, check_real
-from ..priors import Prior
-from ..rules import Significance
+from ..priors.families import Prior
+from ..rules.significance import Significance
 from .base import Endpoint, SuccessCalculator
 
 __all__ = ["ContinuousEndpoint"]
@@ -138,7 +138,7 @@ class _ContinuousCalculator(SuccessCalculator):
 
     def power(self, effect_benefit, n_t, n_c):
         from ..compute.normal_outcome import exact_success
-        from ..priors import PointMass
+        from ..priors.families import PointMass
 
         return exact_success(PointMass(float(effect_benefit)), self.rule,
                              sigma=self.endpoint.sigma, **self._geometry(n_t, n_c)).success

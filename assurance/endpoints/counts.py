@@ -26,8 +26,8 @@ from scipy import integrate, special, stats
 
 from .._validation import check_choice, check_int, check_real
 from ..errors import AssuranceInputError
-from ..priors import PointMass, Prior
-from ..rules import Significance
+from ..priors.families import PointMass, Prior
+from ..rules.significance import Significance
 from .base import Endpoint, SuccessCalculator
 
 __all__ = [

@@ -11,7 +11,7 @@ of the estimated log hazard ratio, so power and assurance follow from the normal
 The design prior of a :class:`~assurance.TrialDesign` with this endpoint is on the **log
 hazard ratio** (natural scale of the analysis); a prior median hazard ratio of 0.8 is
 ``Normal(log(0.8), sd)``. Patient-level simulation with a real log-rank test lives in
-:mod:`assurance.compute.survival_sim`.
+:mod:`assurance.simulation.survival`.
 
 Time units are the planner's (months by default; ``time_unit`` only converts the annual
 dropout probability). Every time-like input (median, accrual, follow-up, hazard change
@@ -30,8 +30,8 @@ from scipy import optimize, special, stats
 
 from .._validation import check_choice, check_int, check_real, check_real_array
 from ..errors import AssuranceInputError
-from ..priors import Normal, PointMass, Prior
-from ..rules import Significance
+from ..priors.families import Normal, PointMass, Prior
+from ..rules.significance import Significance
 from .base import Endpoint, SuccessCalculator
 
 __all__ = ["SurvivalEndpoint", "events_needed"]
@@ -683,7 +683,7 @@ class SurvivalEndpoint(Endpoint):
 
 def _vector_ppf(part: Prior) -> Any:
     """Quantile function of a continuous prior component, vectorised over probabilities."""
-    from ..priors import FromScipy
+    from ..priors.families import FromScipy
 
     if isinstance(part, Normal):
         return lambda u: part.mu + part.sigma * special.ndtri(u)

@@ -39,6 +39,7 @@ __all__ = [
     "save_figure",
     "figure_bytes",
     "passable_probability",
+    "plot_fit",
 ]
 
 # Okabe-Ito colours
@@ -742,4 +743,72 @@ def plot_interval_width(ds: Any, answers: Sequence[Any] = (), ax: Axes | None = 
     ax.set_title(_title(ds.attrs.get("title", ""), "how precisely the effect will be known"),
                  fontsize=11.5, loc="left")
     _legend(ax, loc="upper right")
+    return ax
+
+
+def plot_fit(result: Any, ax: Axes | None = None) -> Axes:
+    """Draw the fitted distribution function with the elicited statements.
+
+    Quantile statements appear as points ``(value, elicited probability)``; an interval
+    statement ``P(lower < X <= upper) = p`` appears at ``upper`` as ``F(lower) + p``, the
+    height the fitted curve would need there. A thin line joins each elicited point to the
+    fitted curve, so the misses can be read off.
+
+    Parameters
+    ----------
+    result
+        A :class:`~assurance.PriorFit` from :func:`~assurance.fit_prior`.
+    ax
+        Axes to draw on; None draws on a new off-screen figure (no pyplot, no window).
+
+    Returns
+    -------
+    matplotlib.axes.Axes
+
+    Examples
+    --------
+    >>> from assurance import fit_prior
+    >>> fit = fit_prior({0.8: 0.5, 1.0: 0.9}, family="lognormal")
+    >>> ax = plot_fit(fit)
+    >>> ax.get_ylabel()
+    'P(X <= x)'
+    """
+    from ..priors.elicitation import Interval, PriorFit, Quantile
+
+    if not isinstance(result, PriorFit):
+        raise AssuranceInputError(
+            f"The 'result' parameter of plot_fit must be a PriorFit from fit_prior. "
+            f"Got {result!r} instead."
+        )
+    ax = _axes(ax, figsize=(6.4, 4.2))
+    points = [s.value if isinstance(s, Quantile) else s.upper for s in result.statements]
+    points += [s.lower for s in result.statements if isinstance(s, Interval)]
+    lo = min(min(points), result.ppf(0.005))
+    hi = max(max(points), result.ppf(0.995))
+    pad = 0.05 * (hi - lo)
+    if result.scale == "log" or result.family in ("gamma", "beta"):
+        lo = max(lo - pad, 0.0)
+    else:
+        lo -= pad
+    hi = hi + pad if result.family != "beta" else min(hi + pad, 1.0)
+    x = np.linspace(lo, hi, 400)
+    ax.plot(x, result.cdf(x), color=_BLUE, linewidth=2.0, label=f"fitted {result.family}")
+    for k, s in enumerate(result.statements):
+        if isinstance(s, Quantile):
+            at, want = s.value, s.prob
+        else:
+            at, want = s.upper, float(result.cdf(s.lower)) + s.prob
+        got = float(result.cdf(at))
+        ax.plot([at, at], [want, got], color=_BLACK, linewidth=0.8)
+        ax.plot([at], [want], "o", color=_VERMILLION, markersize=6,
+                label="elicited" if k == 0 else None)
+    ax.set_xlabel("x")
+    ax.set_ylabel("P(X <= x)")
+    ax.set_ylim(-0.02, 1.02)
+    where = " of log x" if result.scale == "log" else ""
+    ax.set_title(f"Prior fitted to {len(result.statements)} statements (largest miss "
+                 f"{np.max(np.abs(result.misses)):.3f})\n{result.prior.describe()}{where}",
+                 fontsize=9.5)
+    _style(ax)
+    _legend(ax, loc="upper left")
     return ax

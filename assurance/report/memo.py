@@ -499,7 +499,7 @@ def _origin_section(origin: Any, rendered: Mapping[str, bytes] | None) -> str:
 
         png = (rendered or {}).get("prior_fit")
         if png is None:
-            from ..elicitation import plot_fit
+            from .figures import plot_fit
 
             png = figure_bytes(plot_fit(origin).figure, "png")
         data = base64.b64encode(png).decode("ascii")
@@ -574,7 +574,7 @@ def memo_html(
         ``"prior"``), so a caller that saved them does not draw them twice.
     prior_origin
         What the design prior was built from: a fit to elicited judgements
-        (:class:`~assurance.elicitation.PriorFit`), a meta-analytic prior, or a sentence.
+        (:class:`~assurance.priors.elicitation.PriorFit`), a meta-analytic prior, or a sentence.
     precision
         Precision answers (one per criterion) shown with the interval-width figure when
         ``ds`` holds ``width_mean``.

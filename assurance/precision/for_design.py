@@ -12,9 +12,9 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from typing import Any
 
-from ._validation import check_choice, check_real
-from .errors import AssuranceInputError
-from .priors import Normal
+from .._validation import check_choice, check_real
+from ..errors import AssuranceInputError
+from ..priors.families import Normal
 
 __all__ = ["PrecisionPlan", "precision_model_for"]
 
@@ -73,7 +73,7 @@ def precision_model_for(design: Any) -> Any:
     >>> type(precision_model_for(d)).__name__
     'NormalMean'
     """
-    from . import precision as pr
+    from . import widths as pr
 
     ep = design.endpoint
     kind = ep.to_dict().get("kind")
@@ -105,7 +105,7 @@ def precision_model_for(design: Any) -> Any:
 
 
 def _binary_model(design: Any, pr: Any) -> Any:
-    from .endpoints.binary import BetaRates
+    from ..endpoints.binary import BetaRates
 
     ep, prior = design.endpoint, design.design_prior
     if not isinstance(prior, BetaRates):

@@ -15,10 +15,10 @@ from collections.abc import Sequence
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
-from .errors import AssuranceInputError
+from ..errors import AssuranceInputError
 
 if TYPE_CHECKING:  # pragma: no cover
-    from .planner import Plan
+    from ..planner import Plan
 
 __all__ = ["write_outputs", "write_results_csv", "write_sample_sizes_csv"]
 
@@ -58,7 +58,7 @@ def write_outputs(out: str | Path, plan: Plan, *, overwrite: bool = False) -> Pa
     ...     print(sorted(f.name for f in written.iterdir()))
     ['design.toml', 'figures', 'memo.html', 'results.csv', 'results.nc', 'sample_sizes.csv']
     """
-    from .report import save_figure, write_memo
+    from . import save_figure, write_memo
 
     out = Path(out)
     if out.exists() and not overwrite:

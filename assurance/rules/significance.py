@@ -16,7 +16,7 @@ from typing import Any, Literal
 import numpy as np
 from scipy import special, stats
 
-from ._validation import check_choice, check_real
+from .._validation import check_choice, check_real
 
 __all__ = ["Significance"]
 

@@ -25,8 +25,8 @@ from typing import Any
 import numpy as np
 from scipy import special, stats
 
-from ._validation import check_int, check_real
-from .errors import AssuranceInputError
+from .._validation import check_int, check_real
+from ..errors import AssuranceInputError
 
 __all__ = [
     "Prior",

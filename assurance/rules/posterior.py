@@ -23,9 +23,9 @@ from typing import Any
 import numpy as np
 from scipy import special, stats
 
-from ._validation import check_real
-from .errors import AssuranceInputError
-from .priors import Normal, PointMass, Prior
+from .._validation import check_real
+from ..errors import AssuranceInputError
+from ..priors.families import Normal, PointMass, Prior
 
 __all__ = ["PosteriorProbability", "AllOf", "AnyOf", "MinimumEstimate", "posterior_prob_above"]
 

@@ -20,7 +20,7 @@ which is the scale a :class:`~assurance.design.TrialDesign` takes its design pri
 
 Examples
 --------
->>> from assurance.evidence import prior_from_estimate
+>>> from assurance.priors.evidence import prior_from_estimate
 >>> prior = prior_from_estimate(-0.35, 0.15, shrinkage=0.9, power_weight=0.5)
 >>> round(prior.mean(), 3), round(prior.sd(), 4)  # 0.9 * -0.35, 0.15 / sqrt(0.5)
 (-0.315, 0.2121)
@@ -38,12 +38,12 @@ from typing import TYPE_CHECKING, Any, Literal
 import numpy as np
 from scipy import optimize, special
 
-from ._validation import check_choice, check_int, check_real, check_real_array
-from .errors import AssuranceInputError, AssuranceWarning
-from .priors import Mixture, Normal, PointMass, Prior
+from .._validation import check_choice, check_int, check_real, check_real_array
+from ..errors import AssuranceInputError, AssuranceWarning
+from .families import Mixture, Normal, PointMass, Prior
 
 if TYPE_CHECKING:  # pragma: no cover
-    from .design import TrialDesign
+    from ..design import TrialDesign
 
 __all__ = [
     "Estimate",
@@ -1012,7 +1012,7 @@ def prior_predictive_summary(
     ('closed form', [0.6791, 0.5096])
     """
     owner = "prior_predictive_summary"
-    from .design import TrialDesign
+    from ..design import TrialDesign
 
     if isinstance(design_or_prior, TrialDesign):
         design = design_or_prior

@@ -26,9 +26,9 @@ from typing import Any
 
 import numpy as np
 
-from ._validation import check_real, check_real_array
-from .errors import AssuranceInputError
-from .posterior_rules import AllOf, AnyOf, PosteriorProbability
+from .._validation import check_real, check_real_array
+from ..errors import AssuranceInputError
+from .posterior import AllOf, AnyOf, PosteriorProbability
 
 __all__ = ["GoConsiderStop", "evaluate_zones"]
 
@@ -162,7 +162,7 @@ def evaluate_zones(
     """
     import xarray as xr
 
-    from .planning import MAX_TOTAL
+    from .._validation import MAX_TOTAL
 
     if not isinstance(zones, GoConsiderStop):
         raise AssuranceInputError(

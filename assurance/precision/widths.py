@@ -47,11 +47,11 @@ from typing import Any, ClassVar, Literal
 import numpy as np
 from scipy import special, stats
 
-from ._validation import check_choice, check_int, check_real, check_real_array
-from .compute import interval_width as engine
-from .endpoints.base import TwoArmSizing
-from .errors import AssuranceInputError
-from .priors import Normal, Prior
+from .._validation import check_choice, check_int, check_real, check_real_array
+from ..compute import interval_width as engine
+from ..endpoints.base import TwoArmSizing
+from ..errors import AssuranceInputError
+from ..priors.families import Normal, Prior
 
 __all__ = [
     "BetaPrior",
@@ -1245,7 +1245,7 @@ def interval_width_curve(
     """
     import xarray as xr
 
-    from . import __version__
+    from .. import __version__
 
     owner = "interval_width_curve"
     s = _settings(model, owner, coverage=coverage, length=length, interval=interval,

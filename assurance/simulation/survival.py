@@ -25,7 +25,7 @@ from scipy import stats
 
 from .._validation import check_choice, check_int, check_real
 from ..errors import AssuranceInputError
-from ..rules import Significance
+from ..rules.significance import Significance
 
 __all__ = ["SimulationResult", "simulate_trials", "simulate_assurance", "logrank_by_row"]
 
