@@ -192,7 +192,10 @@ def test_results_are_identical_three_ways(three_ways):
     assert by_hand.design.to_dict() == from_file.design.to_dict()
     xr.testing.assert_identical(by_hand.results, from_file.results)
     # results.nc round-trips every variable, coordinate and attribute unchanged
-    xr.testing.assert_identical(three_ways["cli_results"], from_file.results)
+    saved = three_ways["cli_results"].copy()
+    # ... with the normalised design.toml added, in the design file's own names
+    assert saved.attrs.pop("design_toml") == (three_ways["out"] / "design.toml").read_text()
+    xr.testing.assert_identical(saved, from_file.results)
     assert set(three_ways["cli_results"].data_vars) == set(from_file.results.data_vars)
 
 

@@ -75,8 +75,11 @@ def write_outputs(out: str | Path, plan: Plan, *, overwrite: bool = False) -> Pa
     try:
         write_results_csv(ds, tmp / "results.csv")
         write_sample_sizes_csv(answers, tmp / "sample_sizes.csv")
-        ds.to_netcdf(tmp / "results.nc", engine="scipy")
         record = plan.design_record()
+        saved = ds.copy()
+        if record is not None:  # the design in the file's own names travels with the results
+            saved.attrs["design_toml"] = record
+        saved.to_netcdf(tmp / "results.nc", engine="scipy")
         if record is not None:
             (tmp / "design.toml").write_text(record, encoding="utf-8")
         if plan.source is not None:
