@@ -129,5 +129,19 @@ def main() -> None:
     print(f"     normal-gamma widths, 50 sizes: {t:.3f} s")
 
 
+def run_area_benchmarks() -> None:
+    """Each ``benchmarks/bench_<area>.py`` has a ``main()`` printing its rows: the time, the
+    peer or limit measured in the same run, their ratio and the target."""
+    import importlib.util
+
+    for path in sorted(Path(__file__).parent.glob("bench_*.py")):
+        spec = importlib.util.spec_from_file_location(path.stem, path)
+        module = importlib.util.module_from_spec(spec)
+        spec.loader.exec_module(module)
+        print(f"\n== {path.stem} ==")
+        module.main()
+
+
 if __name__ == "__main__":
     main()
+    run_area_benchmarks()
