@@ -16,6 +16,8 @@ from .errors import AssuranceInputError
 
 #: Largest total sample size any function accepts (keeps integer arithmetic exact).
 MAX_TOTAL = 10**15
+#: Most Monte Carlo draws any function accepts (memory grows with draws times sizes).
+MAX_DRAWS = 2_000_000
 
 
 def _fail(name: str, owner: str, allowed: str, value: object) -> AssuranceInputError:
