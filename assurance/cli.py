@@ -2,16 +2,23 @@
 
 Only the standard library is imported at start-up, so ``assurance --help`` is instant;
 numerical modules load when a command runs. A user mistake prints one clear message and
-exits with status 2, without a traceback. An existing output folder is never replaced
-unless ``--overwrite`` is given, and the new folder appears only when complete.
+exits with status 2, without a traceback. The output folder is checked and claimed before
+anything is computed; an existing one is replaced only with ``--overwrite`` and only when
+assurance wrote it and it holds nothing else; the new folder appears only when complete.
+SIGTERM, SIGHUP and Ctrl-C stop a run cleanly: the unfinished output is removed. Warnings
+print as one plain line, and text from a design file reaches the terminal with control
+characters shown escaped.
 """
 
 from __future__ import annotations
 
 import argparse
+import signal
 import sys
 import time
+import warnings
 from pathlib import Path
+from typing import Any
 
 __all__ = ["main"]
 
@@ -36,10 +43,13 @@ def _parser() -> argparse.ArgumentParser:
                           "force), design_as_given.toml (a copy of the design file), "
                           "figures/ and memo.html into the output folder.")
     plan.add_argument("design", help="TOML design file")
-    plan.add_argument("-o", "--out", help="output folder (default: <design name>-plan next to "
-                      "the current directory)")
+    plan.add_argument("-o", "--out", help="output folder (default: <design name>-plan in the "
+                      "current folder)")
     plan.add_argument("--overwrite", action="store_true",
-                      help="replace the output folder if it already exists")
+                      help="replace the output folder if it already exists (only a folder "
+                      "assurance wrote that holds nothing else)")
+    plan.add_argument("--svg", action="store_true",
+                      help="also write each figure as SVG (PNG only by default)")
     plan.add_argument("-q", "--quiet", action="store_true", help="print nothing but errors")
 
     check = sub.add_parser("check", help="read a design file and report problems only")
@@ -47,6 +57,81 @@ def _parser() -> argparse.ArgumentParser:
 
     sub.add_parser("versions", help="print versions of Python and the libraries in use")
     return parser
+
+
+class _Stopped(BaseException):
+    """Raised by the signal handler so that every cleanup on the way out runs."""
+
+    def __init__(self, signum: int) -> None:
+        super().__init__(signum)
+        self.signum = signum
+
+
+# invisible characters that reorder or hide text on a terminal, besides control characters
+_HIDDEN = frozenset("\u061c\u200e\u200f\u202a\u202b\u202c\u202d\u202e\u2066\u2067\u2068"
+                    "\u2069\ufeff")
+
+
+def _visible(text: str) -> str:
+    """``text`` for the terminal: control characters (except line breaks and tabs), line
+    separators and direction overrides are shown escaped (``\\x1b``), never sent raw."""
+    if text.isprintable():
+        return text
+    import unicodedata
+
+    return "".join(
+        ch if ch in "\n\t" or (ch not in _HIDDEN and unicodedata.category(ch)
+                                not in ("Cc", "Zl", "Zp"))
+        else ch.encode("unicode_escape").decode("ascii") for ch in text)
+
+
+def _say(text: str, *, err: bool = False) -> None:
+    print(_visible(text), file=sys.stderr if err else sys.stdout, flush=err)
+
+
+def _plain_warning(message: Warning | str, category: type[Warning], filename: str,
+                   lineno: int, file: Any = None, line: str | None = None) -> None:
+    """Show a warning as one plain line on stderr, without the source line."""
+    _say("assurance: warning: " + " ".join(str(message).split()), err=True)
+
+
+class _Signals:
+    """While active, SIGTERM, SIGHUP and SIGINT raise :class:`_Stopped` (once), unless the
+    process was started with them ignored."""
+
+    def __init__(self) -> None:
+        self.fired = False
+        self.before: dict[int, Any] = {}
+
+    def _handler(self, signum: int, frame: Any) -> None:
+        if self.fired:
+            return  # the first one is already unwinding; let the cleanup finish
+        self.fired = True
+        raise _Stopped(signum)
+
+    def __enter__(self) -> _Signals:
+        for name in ("SIGTERM", "SIGHUP", "SIGINT"):
+            signum = getattr(signal, name, None)
+            if signum is None:
+                continue
+            try:
+                if signal.getsignal(signum) in (signal.SIG_IGN, None):
+                    continue  # ignored on purpose by whoever started us (nohup, say)
+                self.before[signum] = signal.signal(signum, self._handler)
+            except (ValueError, OSError):  # not the main thread: leave them alone
+                continue
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        for signum, handler in self.before.items():
+            signal.signal(signum, handler)
+
+
+def _signal_name(signum: int) -> str:
+    try:
+        return signal.Signals(signum).name
+    except ValueError:
+        return f"signal {signum}"
 
 
 def main(argv: list[str] | None = None) -> int:
@@ -60,6 +145,8 @@ def main(argv: list[str] | None = None) -> int:
     if args.command is None:
         _parser().print_help()
         return 0
+    shown = warnings.showwarning
+    warnings.showwarning = _plain_warning
     try:
         if args.command == "versions":
             from .versions import show_versions
@@ -68,17 +155,24 @@ def main(argv: list[str] | None = None) -> int:
             return 0
         if args.command == "check":
             return _check(args)
-        return _plan(args)
-    except KeyboardInterrupt:
-        print("interrupted", file=sys.stderr)
-        return 130
+        with _Signals():
+            return _plan(args)
+    except (KeyboardInterrupt, _Stopped) as stop:
+        signum = stop.signum if isinstance(stop, _Stopped) else int(signal.SIGINT)
+        written = getattr(stop, "written", None)
+        what = (f"the results were already complete in {written}/" if written else
+                "the unfinished output was removed and nothing else was changed")
+        _say(f"assurance: stopped ({_signal_name(signum)}); {what}.", err=True)
+        return 128 + signum
     except ValueError as exc:  # AssuranceInputError and DesignFileError are ValueErrors
         from .errors import AssuranceInputError
 
         if not isinstance(exc, AssuranceInputError):
             raise
-        print(f"assurance: error: {exc}", file=sys.stderr)
+        _say(f"assurance: error: {exc}", err=True)
         return EXIT_USER_ERROR
+    finally:
+        warnings.showwarning = shown
 
 
 def _check(args: argparse.Namespace) -> int:
@@ -86,14 +180,14 @@ def _check(args: argparse.Namespace) -> int:
 
     spec = read_design_file(args.design)
     _say_notes(spec.notes)
-    print(f"{args.design}: ok - {spec.design.title}")
+    _say(f"{args.design}: ok - {spec.design.title}")
     return 0
 
 
 def _say_notes(notes: tuple[str, ...]) -> None:
     """The reader's warnings about a design (not errors), one per line on stderr."""
     for note in notes:
-        print(f"assurance: note: {note}", file=sys.stderr)
+        _say(f"assurance: note: {note}", err=True)
 
 
 class _Progress:
@@ -126,30 +220,39 @@ class _Progress:
 def _plan(args: argparse.Namespace) -> int:
     from .errors import AssuranceInputError
 
-    design_path = Path(args.design)
-    out = Path(args.out) if args.out else Path.cwd() / f"{design_path.stem}-plan"
-    if out.exists() and not args.overwrite:
+    if args.out is not None and not args.out.strip():
         raise AssuranceInputError(
-            f"The output folder {str(out)!r} already exists. Choose another with --out, or "
-            "pass --overwrite to replace it."
-        )
-    if out.exists() and not out.is_dir():
-        raise AssuranceInputError(f"The output path {str(out)!r} exists and is not a folder.")
+            f"The --out option must name a folder. Got {args.out!r} instead. Leave --out out "
+            "to write <design name>-plan in the current folder.")
+    design_path = Path(args.design)
+    out = Path(args.out) if args.out is not None else Path(f"{design_path.stem}-plan")
     progress = _Progress(args.quiet)
-    progress(f"reading {design_path}")
 
-    from .planner import Plan
+    from .report.output_folder import claim_output_folder, write_outputs
 
-    plan = Plan.from_file(design_path, progress=progress)
-    _say_notes(plan.source.notes if plan.source is not None else ())
-    progress("writing results, figures and memo")
-    plan.write(out, overwrite=args.overwrite)
-    if not args.quiet:
-        print(plan.summary())
-        print(f"\nWritten to {out}/ (memo.html, results.csv, results.nc, sample_sizes.csv, "
-              "figures/,\n  design.toml: every key in force, and design_as_given.toml: the "
-              "file as given)")
-    progress("done")
+    # checked and held before anything is computed; released (and cleaned) on any way out
+    claim = None
+    try:
+        with claim_output_folder(out, overwrite=args.overwrite, keep=[design_path]) as claim:
+            progress(f"reading {design_path}")
+
+            from .planner import Plan
+
+            plan = Plan.from_file(design_path, progress=progress)
+            _say_notes(plan.source.notes if plan.source is not None else ())
+            progress("writing results, figures and memo")
+            write_outputs(out, plan, formats=("png", "svg") if args.svg else ("png",),
+                          claim=claim)
+        if not args.quiet:
+            _say(plan.summary())
+            _say(f"\nWritten to {out}/ (memo.html, results.csv, results.nc, sample_sizes.csv, "
+                 "figures/,\n  design.toml: every key in force, and design_as_given.toml: the "
+                 "file as given)")
+        progress("done")
+    except (KeyboardInterrupt, _Stopped) as stop:
+        if claim is not None and claim.committed:
+            stop.written = out  # type: ignore[union-attr]
+        raise
     return 0
 
 

@@ -222,21 +222,27 @@ class Plan:
     # --------------------------------------------------------------------------------------
     # saving
     # --------------------------------------------------------------------------------------
-    def write(self, out: str | os.PathLike[str], *, overwrite: bool = False) -> Path:
+    def write(self, out: str | os.PathLike[str], *, overwrite: bool = False,
+              formats: Sequence[str] = ("png",)) -> Path:
         """Write the output folder the command line writes.
 
-        ``results.csv``, ``results.nc``, ``sample_sizes.csv``, ``design.json``,
-        ``figures/`` (PNG and SVG) and ``memo.html``; for a plan read from a file, also
-        ``design_as_given.toml``, a byte-for-byte copy of it. Everything is written into a
-        temporary folder beside ``out`` that then takes its name, so ``out`` is either
-        complete or not there.
+        ``results.csv``, ``results.nc``, ``sample_sizes.csv``, ``design.toml``, ``figures/``
+        (PNG by default), ``memo.html`` and ``.assurance-output`` (the list of files
+        written); for a plan read from a file, also ``design_as_given.toml``, a
+        byte-for-byte copy of it. Everything is written into a hidden temporary folder beside
+        ``out`` that then takes its name, so ``out`` is either complete or not there, and a
+        second writer into the same ``out`` at the same time is refused.
 
         Parameters
         ----------
         out
             The folder to write. Must not exist unless ``overwrite`` is True.
         overwrite
-            Replace an existing folder (as a whole; nothing of the old one is kept).
+            Replace an existing output folder (as a whole; nothing of the old one is kept).
+            Only a folder written by this package that holds nothing but the files it wrote
+            is ever replaced; never the current folder or one holding the design file.
+        formats
+            Figure formats: ``"png"``, ``"svg"`` or both, for example ``("png", "svg")``.
 
         Returns
         -------
@@ -246,7 +252,8 @@ class Plan:
         Raises
         ------
         AssuranceInputError
-            When ``out`` exists and ``overwrite`` is False (it is then left untouched).
+            When ``out`` exists and ``overwrite`` is False, or it must not be replaced, or
+            it cannot be written (it is then left untouched); the message says why.
 
         Examples
         --------
@@ -256,18 +263,24 @@ class Plan:
         ...                          asr.Normal(4.0, 2.0))
         >>> p = asr.plan(design, targets={"assurance": 0.6}, sizes=[100, 200])
         >>> with tempfile.TemporaryDirectory() as folder:
-        ...     out = p.write(pathlib.Path(folder) / "plan")
-        ...     print((out / "memo.html").is_file(), (out / "results.nc").is_file())
+        ...     out = p.write(pathlib.Path(folder) / "plan", formats=("png", "svg"))
+        ...     print((out / "memo.html").is_file(), (out / "figures" / "prior.svg").is_file())
         True True
         """
-        from .report.output_folder import write_outputs
+        from .report.output_folder import FIGURE_FORMATS, write_outputs
 
         _check_overwrite(overwrite, "Plan.write")
-        if not isinstance(out, str | os.PathLike):
+        if not isinstance(out, str | os.PathLike) or not str(os.fspath(out)).strip():
             raise AssuranceInputError(
-                "The 'out' parameter of Plan.write must be a folder path (str or pathlib.Path)."
-                f" Got {out!r} instead.")
-        return write_outputs(out, self, overwrite=overwrite)
+                "The 'out' parameter of Plan.write must be a folder path (str or pathlib.Path)"
+                f" naming a folder. Got {out!r} instead.")
+        chosen = (formats,) if isinstance(formats, str) else formats
+        if not isinstance(chosen, Sequence) or not chosen or \
+                any(f not in FIGURE_FORMATS for f in chosen):
+            raise AssuranceInputError(
+                "The 'formats' parameter of Plan.write must be one or more of 'png', 'svg'. "
+                f"Got {formats!r} instead.")
+        return write_outputs(out, self, overwrite=overwrite, formats=tuple(chosen))
 
     def write_memo(self, path: str | os.PathLike[str], *, overwrite: bool = False) -> Path:
         """Write the decision memo alone, as one self-contained HTML file.

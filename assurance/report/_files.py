@@ -1,4 +1,4 @@
-"""Atomic, no-clobber file writing shared by the figure and memo writers."""
+"""Shared by the figure and memo writers: atomic, no-clobber files and text safe to show."""
 
 from __future__ import annotations
 
@@ -8,6 +8,35 @@ import tempfile
 from pathlib import Path
 
 from ..errors import AssuranceInputError
+
+# invisible characters that reorder or hide text, besides control characters
+_HIDDEN = frozenset("\u061c\u200e\u200f\u202a\u202b\u202c\u202d\u202e\u2066\u2067\u2068"
+                    "\u2069\ufeff")
+
+
+def printable(text: str, *, line_breaks: bool = False) -> str:
+    r"""``text`` with control characters, line separators and direction overrides escaped.
+
+    Each such character is written as its Python escape (``\x1b``, ``\u202e``), so it is
+    visible and harmless in a terminal, an HTML page or a figure. With ``line_breaks``, line
+    breaks and tabs are kept as they are.
+
+    Examples
+    --------
+    >>> printable("Trial\x1b[31m A")
+    'Trial\\x1b[31m A'
+    >>> printable("two\nlines"), printable("two\nlines", line_breaks=True)
+    ('two\\nlines', 'two\nlines')
+    """
+    if text.isprintable():
+        return text
+    import unicodedata
+
+    keep = "\n\t" if line_breaks else ""
+    return "".join(
+        ch if ch in keep or (ch not in _HIDDEN and unicodedata.category(ch)
+                             not in ("Cc", "Zl", "Zp"))
+        else ch.encode("unicode_escape").decode("ascii") for ch in text)
 
 
 def check_target(path: str | os.PathLike[str], owner: str, overwrite: bool) -> Path:

@@ -11,10 +11,12 @@ of colour blindness; line styles differ as well, so the figures also read in gre
 
 from __future__ import annotations
 
+import functools
 import io
 import json
 import math
 import os
+import warnings
 from collections.abc import Sequence
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
@@ -22,7 +24,7 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 
 from ..errors import AssuranceInputError
-from ._files import check_target, write_atomic
+from ._files import check_target, printable, write_atomic
 
 if TYPE_CHECKING:  # pragma: no cover
     from matplotlib.axes import Axes
@@ -94,6 +96,8 @@ def _legend(ax: Axes, **kwargs: Any) -> None:
     kwargs.setdefault("fontsize", 8.8)
     kwargs.setdefault("frameon", True)
     legend = ax.legend(**kwargs)
+    for text in legend.get_texts():  # labels are plain text: a "$" is a dollar sign
+        text.set_parse_math(False)
     frame = legend.get_frame()
     frame.set_edgecolor("#CCCCCC")
     frame.set_facecolor("white")
@@ -103,16 +107,63 @@ def _legend(ax: Axes, **kwargs: Any) -> None:
 def _legend_below(ax: Axes) -> None:
     """Legend in two columns under the plot, for a figure this module made itself."""
     handles, labels = ax.get_legend_handles_labels()
-    ax.figure.legend(handles, labels, loc="outside lower center", ncol=2, fontsize=8.8,
-                     frameon=False)
+    legend = ax.figure.legend(handles, labels, loc="outside lower center", ncol=2, fontsize=8.8,
+                              frameon=False)
+    for text in legend.get_texts():
+        text.set_parse_math(False)
+
+
+_TITLE_WIDTH = 78
+_TITLE_LINES = 3
 
 
 def _title(title: str, what: str) -> str:
-    """``title: what``, wrapped so a long trial name stays inside the figure."""
+    """``title: what`` as plain text that fits the figure.
+
+    Control characters are shown escaped, characters the font cannot draw become ``?``, and
+    the text is wrapped to at most three lines (the last ending in an ellipsis when cut), so a
+    long trial name neither leaves the figure nor squeezes the plot away.
+    """
     import textwrap
 
+    title = _drawable(printable(str(title)))
     text = f"{title}: {what}" if title else what[:1].upper() + what[1:]
-    return "\n".join(textwrap.wrap(text, 78)) or text
+    lines = textwrap.wrap(text, _TITLE_WIDTH) or [text]
+    if len(lines) > _TITLE_LINES:
+        lines = lines[:_TITLE_LINES]
+        lines[-1] = lines[-1][:_TITLE_WIDTH - 1].rstrip() + "\u2026"
+    return "\n".join(lines)
+
+
+def _drawable(text: str) -> str:
+    """``text`` with each character the figure font has no glyph for replaced by ``?``."""
+    if text.isascii():
+        return text
+    known = _font_characters()
+    if known is None:
+        return text
+    return "".join(ch if ord(ch) in known or ch.isspace() else "?" for ch in text)
+
+
+def _font_characters() -> frozenset[int] | None:
+    """Code points of the font figures are drawn with (None when it cannot be read)."""
+    from matplotlib import font_manager, rcParams
+
+    try:
+        path = font_manager.findfont(font_manager.FontProperties(family=rcParams["font.family"]))
+    except (ValueError, RuntimeError, OSError):  # pragma: no cover - broken font setup
+        return None
+    return _charmap(path)
+
+
+@functools.lru_cache(maxsize=8)
+def _charmap(path: str) -> frozenset[int] | None:
+    from matplotlib import ft2font
+
+    try:
+        return frozenset(ft2font.FT2Font(path).get_charmap())
+    except (OSError, RuntimeError, ValueError):  # pragma: no cover - unreadable font file
+        return None
 
 
 def _design_dict(ds: Any) -> dict[str, Any]:
@@ -302,9 +353,9 @@ def plot_prior(design: TrialDesign, ax: Axes | None = None) -> Axes:
                         label=region_label)
         ax.fill_between(x[~yes | (x == threshold)], dens[~yes | (x == threshold)],
                         color=_LIGHT, alpha=0.9, linewidth=0)
-        ax.set_ylabel("prior density", fontsize=10.5)
+        ax.set_ylabel("prior density", fontsize=10.5, parse_math=False)
     else:
-        ax.set_ylabel("prior probability", fontsize=10.5)
+        ax.set_ylabel("prior probability", fontsize=10.5, parse_math=False)
 
     if atoms:
         biggest = max(p for _, p in atoms)
@@ -318,7 +369,8 @@ def plot_prior(design: TrialDesign, ax: Axes | None = None) -> Axes:
             right = loc > lo + 0.85 * (hi - lo)  # keep the label inside the axes
             ax.annotate(f"P = {p:.3g}", (loc, h), xytext=(-5 if right else 5, 4),
                         textcoords="offset points", ha="right" if right else "left",
-                        fontsize=9, color="#222222", zorder=6, bbox=_TEXT_BOX)
+                        fontsize=9, color="#222222", zorder=6, bbox=_TEXT_BOX,
+                        parse_math=False)
         top = max(peak, biggest * scale)
     else:
         top = peak
@@ -349,9 +401,9 @@ def plot_prior(design: TrialDesign, ax: Axes | None = None) -> Axes:
         if ticks.size >= 2:
             ax.xaxis.set_major_locator(FixedLocator(ticks))
         ax.xaxis.set_major_formatter(FuncFormatter(lambda v, _pos: shown(v)))
-    ax.set_xlabel(_effect_word(design.endpoint), fontsize=10.5)
+    ax.set_xlabel(_effect_word(design.endpoint), fontsize=10.5, parse_math=False)
     ax.set_title(_title(design.title, "design prior for the true effect"), fontsize=11.5,
-                 loc="left")
+                 loc="left", parse_math=False)
     if own:
         ax.set_ylim(0, top * 1.12)
         _legend_below(ax)
@@ -443,7 +495,7 @@ def plot_power_and_assurance(
     ax.annotate(f"ceiling {ceiling:.3f}", (1.0, ceiling), xycoords=("axes fraction", "data"),
                 xytext=(-4, 4 if above else -5), textcoords="offset points", fontsize=9,
                 ha="right", va="bottom" if above else "top", color=_BLACK, bbox=_TEXT_BOX,
-                zorder=6)
+                zorder=6, parse_math=False)
 
     lo, hi = float(n.min()), float(n.max())
     shown = sorted((a for a in answers or () if a.reached and a.n_total is not None
@@ -464,14 +516,15 @@ def plot_power_and_assurance(
         ax.annotate(f"n = {answer.n_total}\n({name} {answer.target:g})",
                     (answer.n_total, answer.achieved), xytext=(6, -26 - 30 * depth),
                     textcoords="offset points", fontsize=8.5, color="#222222", zorder=6,
-                    bbox=_TEXT_BOX)
+                    bbox=_TEXT_BOX, parse_math=False)
 
     ax.set_xlim(lo, hi if hi > lo else lo + 1)
     ax.set_ylim(0.0, 1.0)
-    ax.set_xlabel("total number of patients (all arms)", fontsize=10.5)
-    ax.set_ylabel("probability", fontsize=10.5)
+    ax.set_xlabel("total number of patients (all arms)", fontsize=10.5, parse_math=False)
+    ax.set_ylabel("probability", fontsize=10.5, parse_math=False)
     title = ds.attrs.get("title", "")
-    ax.set_title(_title(title, "chance of success by sample size"), fontsize=11.5, loc="left")
+    ax.set_title(_title(title, "chance of success by sample size"), fontsize=11.5, loc="left",
+                 parse_math=False)
     _legend(ax, loc="lower right")
     return ax
 
@@ -549,11 +602,11 @@ def plot_decomposition(ds: Any, ax: Axes | None = None) -> Axes:
     ax.axhline(p_good, color=_BLACK, linewidth=1.1, linestyle=(0, (4, 3)), label=line_label)
     ax.set_xlim(float(n.min()), float(n.max()) if n.max() > n.min() else float(n.min()) + 1)
     ax.set_ylim(0.0, 1.0)
-    ax.set_xlabel("total number of patients (all arms)", fontsize=10.5)
-    ax.set_ylabel("probability", fontsize=10.5)
+    ax.set_xlabel("total number of patients (all arms)", fontsize=10.5, parse_math=False)
+    ax.set_ylabel("probability", fontsize=10.5, parse_math=False)
     title = ds.attrs.get("title", "")
     ax.set_title(_title(title, "what a success or a failure would mean"), fontsize=11.5,
-                 loc="left")
+                 loc="left", parse_math=False)
     if own:
         _legend_below(ax)
     else:
@@ -605,7 +658,12 @@ def figure_bytes(fig: Figure, fmt: str = "png", *, dpi: int = _DPI) -> bytes:
         FigureCanvasAgg(fig)
     buffer = io.BytesIO()
     metadata: dict[str, Any] = {"Software": None} if fmt == "png" else {"Date": None}
-    with matplotlib.rc_context({"svg.hashsalt": "assurance-report"}):
+    with matplotlib.rc_context({"svg.hashsalt": "assurance-report"}), \
+            warnings.catch_warnings():
+        # titles are cleaned of characters the font lacks; any other text (labels a user
+        # added) is drawn with an empty box rather than a warning with a source line
+        warnings.filterwarnings("ignore", message=r"Glyph \d+ .*missing from",
+                                category=UserWarning)
         fig.savefig(buffer, format=fmt, dpi=dpi, metadata=metadata, facecolor="white")
     return buffer.getvalue()
 
@@ -616,11 +674,12 @@ def save_figure(
     overwrite: bool = False,
     *,
     dpi: int = _DPI,
-) -> tuple[Path, Path]:
-    """Write a figure as PNG and SVG next to each other.
+    formats: Sequence[str] = ("png", "svg"),
+) -> tuple[Path, ...]:
+    """Write a figure as PNG and SVG (or the formats asked for) next to each other.
 
     Each file is written to a temporary file in the same folder and then moved into
-    place, so a reader never sees half a file. Nothing is written when either file
+    place, so a reader never sees half a file. Nothing is written when any of the files
     already exists and ``overwrite`` is False.
 
     Parameters
@@ -635,11 +694,13 @@ def save_figure(
         Replace existing files. Off by default.
     dpi
         Resolution of the PNG.
+    formats
+        ``"png"``, ``"svg"`` or both (the default); SVG takes longer to write.
 
     Returns
     -------
     tuple of pathlib.Path
-        The PNG path and the SVG path.
+        The paths written, in the order of ``formats``.
 
     Raises
     ------
@@ -655,18 +716,25 @@ def save_figure(
     >>> with tempfile.TemporaryDirectory() as folder:
     ...     png, svg = save_figure(ax.figure, pathlib.Path(folder) / "prior")
     ...     print(png.name, svg.name, png.stat().st_size > 0)
+    ...     (only,) = save_figure(ax.figure, pathlib.Path(folder) / "small", formats=["png"])
     prior.png prior.svg True
     """
+    chosen = (formats,) if isinstance(formats, str) else formats
+    if not isinstance(chosen, Sequence) or not chosen or \
+            any(f not in ("png", "svg") for f in chosen):
+        raise AssuranceInputError(
+            "The 'formats' parameter of save_figure must be one or more of 'png', 'svg'. "
+            f"Got {formats!r} instead.")
     base = Path(path_without_suffix)
     if base.suffix.lower() in (".png", ".svg"):
         base = base.with_suffix("")
-    png, svg = base.parent / f"{base.name}.png", base.parent / f"{base.name}.svg"
-    for path in (png, svg):  # refuse before writing anything
+    paths = [base.parent / f"{base.name}.{fmt}" for fmt in dict.fromkeys(chosen)]
+    for path in paths:  # refuse before writing anything
         check_target(path, "save_figure", overwrite)
-    write_atomic(png, figure_bytes(fig, "png", dpi=dpi), overwrite=overwrite,
-                 owner="save_figure")
-    write_atomic(svg, figure_bytes(fig, "svg"), overwrite=overwrite, owner="save_figure")
-    return png, svg
+    for path in paths:
+        write_atomic(path, figure_bytes(fig, path.suffix[1:], dpi=dpi), overwrite=overwrite,
+                     owner="save_figure")
+    return tuple(paths)
 
 
 # ------------------------------------------------------------------------------------------
@@ -735,13 +803,13 @@ def plot_interval_width(ds: Any, answers: Sequence[Any] = (), ax: Axes | None = 
                 markeredgecolor=_BLACK, markerfacecolor=_GREEN, zorder=5)
         ax.annotate(" = ".join(a.criterion for a in group) + f": n = {size}",
                     (size, group[0].achieved), xytext=(5, 6), textcoords="offset points",
-                    fontsize=8.5, bbox=_TEXT_BOX)
+                    fontsize=8.5, bbox=_TEXT_BOX, parse_math=False)
     ax.set_xlim(float(n.min()), float(n.max()) if n.max() > n.min() else float(n.min()) + 1)
     ax.set_ylim(bottom=0.0)
-    ax.set_xlabel("total number of patients (all arms)", fontsize=10.5)
-    ax.set_ylabel("width of the posterior interval", fontsize=10.5)
+    ax.set_xlabel("total number of patients (all arms)", fontsize=10.5, parse_math=False)
+    ax.set_ylabel("width of the posterior interval", fontsize=10.5, parse_math=False)
     ax.set_title(_title(ds.attrs.get("title", ""), "how precisely the effect will be known"),
-                 fontsize=11.5, loc="left")
+                 fontsize=11.5, loc="left", parse_math=False)
     _legend(ax, loc="upper right")
     return ax
 
@@ -802,13 +870,13 @@ def plot_fit(result: Any, ax: Axes | None = None) -> Axes:
         ax.plot([at, at], [want, got], color=_BLACK, linewidth=0.8)
         ax.plot([at], [want], "o", color=_VERMILLION, markersize=6,
                 label="elicited" if k == 0 else None)
-    ax.set_xlabel("x")
-    ax.set_ylabel("P(X <= x)")
+    ax.set_xlabel("x", parse_math=False)
+    ax.set_ylabel("P(X <= x)", parse_math=False)
     ax.set_ylim(-0.02, 1.02)
     where = " of log x" if result.scale == "log" else ""
     ax.set_title(f"Prior fitted to {len(result.statements)} statements (largest miss "
                  f"{np.max(np.abs(result.misses)):.3f})\n{result.prior.describe()}{where}",
-                 fontsize=9.5)
+                 fontsize=9.5, parse_math=False)
     _style(ax)
     _legend(ax, loc="upper left")
     return ax

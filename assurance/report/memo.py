@@ -3,7 +3,8 @@
 The memo holds everything in one file: styles inline, figures embedded as PNG data, no
 scripts and no links to anything outside the file, so it can be mailed, archived or
 printed as it is. All text that comes from the user (title, prior descriptions, messages)
-is escaped.
+is escaped, and control characters in it are shown as escapes (``\\x1b``), never written
+raw.
 """
 
 from __future__ import annotations
@@ -21,7 +22,7 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 
 from ..errors import AssuranceInputError
-from ._files import check_target, write_atomic
+from ._files import check_target, printable, write_atomic
 from .figures import passable_probability
 
 if TYPE_CHECKING:  # pragma: no cover
@@ -239,7 +240,7 @@ def memo_text_summary(design: TrialDesign, ds: Any,
     assurance 0.6: 150 patients (75 treatment / 75 control); reaches 0.603
     """
     answers = _check_inputs(design, ds, answers, "memo_text_summary")
-    lines = [design.title]
+    lines = [printable(design.title)]  # a terminal never receives a raw control character
     for sentence in _summary_sentences(design, ds, answers):
         lines.extend(textwrap.wrap(sentence, 86, initial_indent="  ",
                                    subsequent_indent="    "))
@@ -300,7 +301,8 @@ details summary { cursor: pointer; color: var(--soft); font-size: 0.9em; }
 
 
 def _e(text: Any) -> str:
-    return html.escape(str(text), quote=True)
+    """HTML-escaped text with control characters shown as escapes (line breaks kept)."""
+    return html.escape(printable(str(text), line_breaks=True), quote=True)
 
 
 def _facts(design: TrialDesign, ds: Any) -> str:
@@ -599,7 +601,7 @@ def memo_html(
         cautions = [cautions]
     cautions = [str(c) for c in cautions]
     versions = _versions_text() if versions is None else str(versions)
-    title = design.title
+    title = printable(design.title)  # one line, even if the title holds a line break
     package = ds.attrs.get("package_version", "")
     summary = " ".join(_summary_sentences(design, ds, answers))
     seed = ds.attrs.get("seed", -1)

@@ -3,7 +3,7 @@
 Static and well formed (every element closed, so it also reads as XML): a title, one table
 with each target's solved size, the value it reaches, assurance there and the ceiling, the
 precision criteria when planned, and the power-and-assurance figure as PNG data. No scripts,
-no styles from outside, every piece of user text escaped.
+no styles from outside, every piece of user text escaped (control characters included).
 """
 
 from __future__ import annotations
@@ -14,6 +14,7 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
+from ._files import printable
 from .memo import _arms, _check_inputs, _e, _p, _se, _target_name
 
 if TYPE_CHECKING:  # pragma: no cover
@@ -92,7 +93,7 @@ def overview_html(
     two_arm = design.endpoint.layout != "single_arm"
     n = np.asarray(ds["n"].values)
     ceiling = float(ds["ceiling"])
-    parts = [f'<div class="assurance-plan"><h3>{_e(design.title)}</h3>',
+    parts = [f'<div class="assurance-plan"><h3>{_e(printable(design.title))}</h3>',
              f"<p>Computed for {n.size} sizes from {int(n.min())} to {int(n.max())} patients. "
              f"Classical power assumes the effect is {_e(f'{design.assumed_effect:g}')}; "
              "assurance averages over the design prior and cannot pass "

@@ -1,17 +1,37 @@
-"""Write a plan's results to an output folder, all at once.
+"""Write a plan's results to an output folder, all at once, never over anything a user owns.
 
-Everything is written into a hidden temporary folder beside the destination, which then
-takes the destination's name in one rename. An existing folder is replaced only when the
-caller asks (``overwrite=True``); if anything fails, the old folder is left as it was.
+How a folder is written:
+
+1. **Checked first.** Before anything is computed or written, the destination is checked:
+   a path through an existing file, a folder that cannot be written, the current folder, a
+   folder holding the design file, a symbolic link, or a folder holding anything this
+   package did not write is refused with a message saying why and what to do.
+2. **Claimed.** A hidden temporary folder ``.<name>.assurance-tmp`` is made beside the
+   destination, in one step that fails if another run holds it; the running process keeps
+   a lock on its ``owner`` file (which records its process id and host). A second run
+   into the same destination stops at once with a clear message.
+3. **Written** into that temporary folder, then moved into place in one rename. Every
+   output folder holds a marker file, :data:`MARKER`, listing the files written.
+4. **Replaced only when safe.** An existing folder is replaced only when the caller asks
+   (``overwrite=True``) and it carries the marker and holds nothing but the files listed
+   there. If anything fails, the old folder is left as it was.
+
+Temporary folders of runs that were killed (their lock is gone) are swept away by the next
+run into the same parent folder; a previous output moved aside by a run killed in the middle
+of the final swap is put back first.
 """
 
 from __future__ import annotations
 
+import contextlib
 import csv
+import hashlib
 import os
 import shutil
+import socket
 import tempfile
-from collections.abc import Sequence
+import time
+from collections.abc import Iterable, Sequence
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
@@ -20,17 +40,532 @@ from ..errors import AssuranceInputError
 if TYPE_CHECKING:  # pragma: no cover
     from ..planner import Plan
 
-__all__ = ["write_outputs", "write_results_csv", "write_sample_sizes_csv"]
+__all__ = ["MARKER", "FIGURE_FORMATS", "OutputClaim", "claim_output_folder", "write_outputs",
+           "write_results_csv", "write_sample_sizes_csv"]
+
+#: Name of the marker file in every output folder: the list of files the package wrote.
+MARKER = ".assurance-output"
+#: Figure formats an output folder can hold.
+FIGURE_FORMATS = ("png", "svg")
+
+_MARKER_HEAD = "# assurance output folder"
+_TMP_SUFFIX = ".assurance-tmp"
+_OWNER = "owner"
+_OWNER_HEAD = "assurance temporary folder"
+#: Age in seconds after which a temporary folder whose owner cannot be checked (no lock
+#: support, another host, no owner record) counts as left behind.
+STALE_AFTER = 3600.0
 
 
-def write_outputs(out: str | Path, plan: Plan, *, overwrite: bool = False) -> Path:
+# ------------------------------------------------------------------------------------------
+# the marker
+# ------------------------------------------------------------------------------------------
+def _marker_text(files: Iterable[str]) -> str:
+    lines = [_MARKER_HEAD,
+             "# Written by assurance. A later run with --overwrite (overwrite=True) replaces",
+             "# this folder only while it holds nothing but the files listed below. To keep",
+             "# the folder from ever being replaced, delete this file or add a file of your own.",
+             *sorted(files)]
+    return "\n".join(lines) + "\n"
+
+
+def _marker_files(folder: Path) -> set[str] | None:
+    """The files listed in ``folder``'s marker, or None when it has no valid marker."""
+    marker = folder / MARKER
+    if marker.is_symlink() or not marker.is_file():
+        return None
+    try:
+        lines = marker.read_text(encoding="utf-8").splitlines()
+    except (OSError, UnicodeDecodeError):
+        return None
+    if not lines or lines[0] != _MARKER_HEAD:
+        return None
+    return {line for line in lines[1:] if line and not line.startswith("#")}
+
+
+def _foreign_entries(folder: Path, listed: set[str]) -> list[str]:
+    """Entries of ``folder`` (recursively) that are not listed files or their folders."""
+    listed = {name.rstrip("/") for name in listed}
+    allowed = {MARKER, *listed}
+    for name in listed:
+        parts = name.split("/")
+        allowed.update("/".join(parts[:k]) for k in range(1, len(parts)))
+    foreign = []
+    for root, dirs, files in os.walk(folder, followlinks=False):
+        rel = Path(root).relative_to(folder)
+        for name in sorted(dirs + files):
+            path = (rel / name).as_posix()
+            if path not in allowed:
+                foreign.append(path + ("/" if name in dirs else ""))
+        dirs[:] = [d for d in dirs if (rel / d).as_posix() in allowed
+                   and not (Path(root) / d).is_symlink()]
+    return foreign
+
+
+def _within(inner: str | os.PathLike[str], outer: str | os.PathLike[str]) -> bool:
+    """Whether ``inner`` is ``outer`` or lies inside it (symbolic links resolved)."""
+    a, b = Path(os.path.realpath(inner)), Path(os.path.realpath(outer))
+    return a == b or b in a.parents
+
+
+def _list_names(names: Sequence[str], limit: int = 4) -> str:
+    shown = ", ".join(repr(n) for n in names[:limit])
+    return shown + (f" and {len(names) - limit} more" if len(names) > limit else "")
+
+
+# ------------------------------------------------------------------------------------------
+# checks made before anything is computed
+# ------------------------------------------------------------------------------------------
+def _why_not_replaceable(out: Path, keep: Sequence[Path]) -> str | None:
+    """Why the existing ``out`` must not be replaced, or None when it may be."""
+    if out.is_symlink():
+        return "is a symbolic link"
+    if not out.is_dir():
+        return "is a file, not a folder"
+    try:
+        here = Path.cwd()
+    except OSError:
+        here = None
+    if here is not None and _within(here, out):
+        return "is the current folder" if _within(out, here) else "holds the current folder"
+    for path in keep:
+        if _within(path, out):
+            return f"holds the design file {str(path)!r}"
+    listed = _marker_files(out)
+    if listed is None:
+        return (f"was not written by assurance (it has no {MARKER} file listing the files "
+                "written)")
+    foreign = _foreign_entries(out, listed)
+    if foreign:
+        return f"holds files assurance did not write: {_list_names(foreign)}"
+    return None
+
+
+def _shown(path: Path, given: Path | None) -> str:
+    """``path`` as the user wrote it, when ``given`` (the path as written) leads to it."""
+    return str(path) if given is None else str(given)
+
+
+def _check_destination(out: Path, overwrite: bool, keep: Sequence[Path],
+                       given: Path | None = None) -> None:
+    """Raise AssuranceInputError when ``out`` cannot be written (or replaced); change nothing.
+
+    ``out`` is absolute; ``given`` is the same path as the caller wrote it, for messages.
+    """
+    shown = _shown(out, given)
+    if out.parent == out or out.name in ("", ".", ".."):
+        raise AssuranceInputError(
+            f"The output folder {shown!r} is the root of the file system; choose a new "
+            "folder for the results.")
+    if os.path.lexists(out):
+        reason = _why_not_replaceable(out, keep)
+        if reason is not None:
+            raise AssuranceInputError(
+                f"The output folder {shown!r} already exists and {reason}, so it is never "
+                "replaced. Choose a new folder for the results (--out on the command line), "
+                "or move or delete this one yourself.")
+        if not overwrite:
+            raise AssuranceInputError(
+                f"The output folder {shown!r} already exists. Pass overwrite=True "
+                "(--overwrite on the command line) to replace it, or choose another folder.")
+    # the nearest folder that exists must be a folder we may write into
+    ancestor, written = out.parent, None if given is None else given.parent
+    while not os.path.lexists(ancestor) and ancestor.parent != ancestor:
+        ancestor = ancestor.parent
+        written = None if written is None or written == written.parent else written.parent
+    where = _shown(ancestor, written if written is not None and str(written) != "." else None)
+    if not ancestor.is_dir():
+        raise AssuranceInputError(
+            f"The output folder {shown!r} cannot be made: {where!r} is a file, not a "
+            "folder. Choose a folder path that does not pass through a file.")
+    if not os.access(ancestor, os.W_OK | os.X_OK):
+        raise AssuranceInputError(
+            f"The output folder {shown!r} cannot be written: there is no permission to write "
+            f"in {where!r}. Choose a folder you can write to.")
+
+
+# ------------------------------------------------------------------------------------------
+# temporary folders: claim, owner lock, sweep
+# ------------------------------------------------------------------------------------------
+def _tmp_name(name: str) -> str:
+    stem = name if len(name) <= 180 else \
+        f"{name[:160]}-{hashlib.sha256(name.encode('utf-8', 'surrogateescape')).hexdigest()[:12]}"
+    return f".{stem}{_TMP_SUFFIX}"
+
+
+def _lock(fd: int, blocking: bool) -> bool | None:
+    """Take an exclusive lock on ``fd``: True if taken, False if held elsewhere, None if
+    locks are not supported here."""
+    try:
+        import fcntl
+    except ImportError:  # pragma: no cover - not POSIX
+        return None
+    try:
+        fcntl.flock(fd, fcntl.LOCK_EX | (0 if blocking else fcntl.LOCK_NB))
+    except BlockingIOError:
+        return False
+    except OSError:  # e.g. a network file system without locks
+        return None
+    return True
+
+
+def _read_owner(folder: Path) -> dict[str, str]:
+    try:
+        lines = (folder / _OWNER).read_text(encoding="utf-8").splitlines()
+    except (OSError, UnicodeDecodeError):
+        return {}
+    if not lines or lines[0] != _OWNER_HEAD:
+        return {}
+    return dict(line.split(" = ", 1) for line in lines[1:] if " = " in line)
+
+
+def _holder(folder: Path) -> str:
+    """Who holds a temporary folder, in words, for a message."""
+    info = _read_owner(folder)
+    if not info:
+        return "another assurance run"
+    when = ""
+    with contextlib.suppress(ValueError, OverflowError, OSError):
+        when = time.strftime(", started %Y-%m-%d %H:%M:%S",
+                             time.localtime(float(info.get("created", ""))))
+    host = info.get("host", "")
+    where = "" if host == socket.gethostname() else f" on {host}"
+    return f"another assurance run (process {info.get('pid', '?')}{where}{when})"
+
+
+def _restore_aside(folder: Path, parent: Path, name: str) -> None:
+    """Put back a previous output moved aside into ``folder/old`` by a swap that was cut off."""
+    old = folder / "old"
+    if name and "/" not in name and old.is_dir() and not old.is_symlink() and \
+            not os.path.lexists(parent / name):
+        with contextlib.suppress(OSError):
+            os.rename(old, parent / name)
+
+
+def _sweep_one(folder: Path, parent: Path) -> None:
+    """Remove ``folder`` if it is a temporary folder of this package left behind."""
+    owner = folder / _OWNER
+    try:
+        fd = os.open(owner, os.O_RDONLY)
+    except FileNotFoundError:
+        # an empty folder of ours whose run died between making it and writing its owner
+        with contextlib.suppress(OSError):
+            if time.time() - folder.lstat().st_mtime > 60:
+                folder.rmdir()  # removes nothing but an empty folder
+        return
+    except OSError:
+        return
+    try:
+        taken = _lock(fd, blocking=False)
+        if taken is False:
+            return  # its run is alive
+        try:  # the folder must still hold the very file just locked
+            stat = os.fstat(fd)
+            if not os.path.samestat(stat, os.stat(owner)):
+                return
+        except OSError:
+            return
+        age = time.time() - stat.st_mtime
+        if taken is None and age < STALE_AFTER:
+            return  # no locks here to tell: only old folders go
+        info = _read_owner(folder)
+        if not info:  # a run that died before writing its record, or not ours at all
+            if stat.st_size != 0 or age < 60:
+                return
+            with contextlib.suppress(OSError):
+                names = {p.name for p in folder.iterdir()}
+                if names <= {_OWNER, "new"} and not any((folder / "new").glob("*")):
+                    shutil.rmtree(folder, ignore_errors=True)
+            return
+        _restore_aside(folder, parent, info.get("out", ""))
+        shutil.rmtree(folder, ignore_errors=True)
+    finally:
+        os.close(fd)
+
+
+def _sweep(parent: Path) -> None:
+    """Remove this package's temporary folders in ``parent`` whose runs have ended."""
+    try:
+        entries = list(os.scandir(parent))
+    except OSError:
+        return
+    for entry in entries:
+        if entry.name.startswith(".") and entry.name.endswith(_TMP_SUFFIX) and \
+                entry.is_dir(follow_symlinks=False):
+            _sweep_one(Path(entry.path), parent)
+
+
+class OutputClaim:
+    """An output folder checked and held by this process until its results are in place.
+
+    Made by :func:`claim_output_folder`; use it as a context manager, or call
+    :meth:`release` when done. Files are written into :attr:`staging`; :meth:`commit`
+    moves them into place.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> with tempfile.TemporaryDirectory() as folder:
+    ...     out = pathlib.Path(folder) / "plan"
+    ...     with claim_output_folder(out) as claim:
+    ...         _ = (claim.staging / "notes.txt").write_text("hello", encoding="utf-8")
+    ...         _ = claim.commit()
+    ...     print(sorted(p.name for p in out.iterdir()))
+    ['.assurance-output', 'notes.txt']
+    """
+
+    def __init__(self, out: Path, overwrite: bool, keep: Sequence[Path],
+                 given: Path | None = None) -> None:
+        self.out = out
+        self.given = given
+        self.shown = _shown(out, given)
+        self.overwrite = overwrite
+        self.keep = tuple(keep)
+        self.committed = False
+        self._fd: int | None = None
+        self._made: list[Path] = []
+        self._folder: Path | None = None
+        if out.parent.is_dir():
+            _sweep(out.parent)  # first, so a previous output cut off in a swap is back
+        _check_destination(out, overwrite, self.keep, given)
+        try:
+            self._claim()
+        except BaseException:
+            self.release()
+            raise
+
+    @property
+    def staging(self) -> Path:
+        """The folder to write into (hidden, beside the destination)."""
+        if self._folder is None or self.committed:
+            raise AssuranceInputError("This output claim has been released or committed.")
+        return self._folder / "new"
+
+    def _claim(self) -> None:
+        out = self.out
+        missing = []
+        ancestor = out.parent
+        while not os.path.lexists(ancestor):
+            missing.append(ancestor)
+            ancestor = ancestor.parent
+        for folder in reversed(missing):
+            try:
+                folder.mkdir()
+            except FileExistsError:
+                continue
+            except OSError as exc:
+                raise AssuranceInputError(
+                    f"The output folder {self.shown!r} cannot be made: {str(folder)!r} could not "
+                    f"be created ({exc.strerror}). Choose a folder you can write to.") from None
+            self._made.append(folder)
+        try:
+            prepared = Path(tempfile.mkdtemp(prefix=".", suffix=_TMP_SUFFIX, dir=out.parent))
+        except OSError as exc:
+            raise AssuranceInputError(
+                f"The output folder {self.shown!r} cannot be written: {str(out.parent)!r} does "
+                f"not accept new files ({exc.strerror}). Choose a folder you can write to."
+            ) from None
+        self._folder = prepared
+        self._fd = os.open(prepared / _OWNER, os.O_RDWR | os.O_CREAT | os.O_EXCL, 0o644)
+        _lock(self._fd, blocking=True)  # held until released; the system drops it if killed
+        record = (f"{_OWNER_HEAD}\npid = {os.getpid()}\nhost = {socket.gethostname()}\n"
+                  f"created = {time.time():.3f}\nout = {out.name}\n")
+        os.write(self._fd, record.encode("utf-8", "surrogateescape"))
+        (prepared / "new").mkdir()
+        target = out.parent / _tmp_name(out.name)
+        for attempt in range(2):
+            try:
+                os.rename(prepared, target)  # fails while another run holds the name
+            except OSError:
+                held = target.is_dir() and not target.is_symlink()
+                if attempt == 0 and held:
+                    _sweep_one(target, out.parent)  # perhaps left by a run that was killed
+                    continue
+                if held:
+                    raise AssuranceInputError(
+                        f"The output folder {self.shown!r} is being written by "
+                        f"{_holder(target)}. Wait for it to finish, or choose another "
+                        "folder for the results.") from None
+                raise AssuranceInputError(
+                    f"The output folder {self.shown!r} cannot be written: {str(target)!r} is in "
+                    "the way. Move it, or choose another folder for the results.") from None
+            self._folder = target
+            return
+
+    def commit(self) -> Path:
+        """Move the staged folder into place (replacing the old one when allowed).
+
+        The marker file :data:`MARKER`, listing every file and folder staged, is added
+        first.
+
+        Returns
+        -------
+        pathlib.Path
+            The output folder.
+        """
+        staged = self.staging
+        entries = [p.relative_to(staged).as_posix() + ("/" if p.is_dir() else "")
+                   for p in sorted(staged.rglob("*")) if p.name != MARKER]
+        (staged / MARKER).write_text(_marker_text(entries), encoding="utf-8")
+        with _signals_held():
+            self._swap(staged)
+            self.committed = True
+        self._made.clear()  # the folders made for the output now hold it
+        self.release()
+        return self.out
+
+    def _swap(self, staged: Path) -> None:
+        out = self.out
+        assert self._folder is not None
+        if not os.path.lexists(out):
+            try:
+                os.rename(staged, out)
+            except OSError:
+                raise AssuranceInputError(
+                    f"The output folder {self.shown!r} appeared while the results were being "
+                    "written; it was left as it is. Choose another folder for the results."
+                ) from None
+            return
+        _check_destination(out, self.overwrite, self.keep, self.given)  # it may have changed
+        aside = self._folder / "old"
+        try:
+            os.rename(out, aside)
+            listed = _marker_files(aside)
+            if listed is None or _foreign_entries(aside, listed):
+                raise AssuranceInputError(
+                    f"The output folder {self.shown!r} changed while the results were being "
+                    "written and now holds files assurance did not write; it was left as it "
+                    "is.")
+            os.rename(staged, out)
+        except BaseException:
+            _restore_aside(self._folder, out.parent, out.name)
+            raise
+
+    def release(self) -> None:
+        """Remove the temporary folder (and any parent folders made for it, if still empty).
+
+        A previous output moved aside by an interrupted :meth:`commit` is put back first.
+        """
+        if self._folder is not None:
+            _restore_aside(self._folder, self.out.parent, self.out.name)
+            shutil.rmtree(self._folder, ignore_errors=True)
+            self._folder = None
+        if self._fd is not None:
+            os.close(self._fd)
+            self._fd = None
+        for folder in reversed(self._made):
+            with contextlib.suppress(OSError):
+                folder.rmdir()
+        self._made.clear()
+
+    def __enter__(self) -> OutputClaim:
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        self.release()
+
+
+@contextlib.contextmanager
+def _signals_held() -> Any:
+    """Hold back SIGINT, SIGTERM and SIGHUP (where possible) for a few renames."""
+    import signal
+
+    held = {getattr(signal, name) for name in ("SIGINT", "SIGTERM", "SIGHUP")
+            if hasattr(signal, name)}
+    try:
+        before = signal.pthread_sigmask(signal.SIG_BLOCK, held)
+    except (AttributeError, OSError, ValueError):  # pragma: no cover - not POSIX
+        yield
+        return
+    try:
+        yield
+    finally:
+        signal.pthread_sigmask(signal.SIG_SETMASK, before)
+
+
+def _as_folder_path(out: Any, owner: str) -> Path:
+    if not isinstance(out, str | os.PathLike):
+        raise AssuranceInputError(
+            f"The 'out' parameter of {owner} must be a folder path (str or pathlib.Path). "
+            f"Got {out!r} instead.")
+    text = os.fspath(out)
+    if isinstance(text, bytes) or not text.strip():
+        raise AssuranceInputError(
+            f"The 'out' parameter of {owner} must name a folder. Got {text!r} instead.")
+    return Path(os.path.abspath(text))
+
+
+def claim_output_folder(out: str | os.PathLike[str], *, overwrite: bool = False,
+                        keep: Iterable[str | os.PathLike[str]] = ()) -> OutputClaim:
+    """Check an output folder and hold it for this process, before anything is computed.
+
+    Parameters
+    ----------
+    out
+        The folder the results go to. Missing parent folders are made (and removed again
+        if nothing is written).
+    overwrite
+        Allow an existing output folder to be replaced; it still must carry the
+        :data:`MARKER` file and hold nothing but the files listed there.
+    keep
+        Files that must never be inside a replaced folder (the design file being planned).
+
+    Returns
+    -------
+    OutputClaim
+        Hold it until the results are written (``with`` block or :meth:`OutputClaim.release`).
+
+    Raises
+    ------
+    AssuranceInputError
+        When ``out`` passes through a file, cannot be written, exists (without
+        ``overwrite``), must not be replaced (the current folder, a folder holding ``keep``
+        or anything assurance did not write, a symbolic link), or another run is writing it.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> with tempfile.TemporaryDirectory() as folder:
+    ...     with claim_output_folder(pathlib.Path(folder) / "plan") as claim:
+    ...         print(claim.staging.is_dir())
+    ...     print(sorted(pathlib.Path(folder).iterdir()))
+    True
+    []
+    """
+    if not isinstance(overwrite, bool):
+        raise AssuranceInputError(
+            "The 'overwrite' parameter of claim_output_folder must be True or False. "
+            f"Got {overwrite!r} instead.")
+    path = _as_folder_path(out, "claim_output_folder")
+    return OutputClaim(path, overwrite, [Path(p) for p in keep], Path(os.fspath(out)))
+
+
+# ------------------------------------------------------------------------------------------
+# the plan's files
+# ------------------------------------------------------------------------------------------
+def _check_formats(formats: Any, owner: str) -> tuple[str, ...]:
+    chosen = (formats,) if isinstance(formats, str) else formats
+    try:
+        chosen = tuple(chosen)
+    except TypeError:
+        chosen = None
+    if not chosen or any(f not in FIGURE_FORMATS for f in chosen):
+        raise AssuranceInputError(
+            f"The 'formats' parameter of {owner} must be one or more of 'png', 'svg'. "
+            f"Got {formats!r} instead.")
+    return tuple(dict.fromkeys(chosen))
+
+
+def write_outputs(out: str | os.PathLike[str], plan: Plan, *, overwrite: bool = False,
+                  formats: Sequence[str] = ("png",), claim: OutputClaim | None = None) -> Path:
     """Write a plan's results (CSV, netCDF), sample sizes, figures and memo into ``out``.
 
     The folder holds ``results.csv``, ``results.nc``, ``sample_sizes.csv``, ``design.toml``
     (the normalised design: every key in force, in the design file's names, which
-    ``assurance plan`` reads back to the same numbers), ``figures/`` (PNG and SVG of each of
-    :meth:`Plan.figures <assurance.Plan.figures>`) and ``memo.html``; when the plan was read
-    from a design file, also ``design_as_given.toml``, a byte-for-byte copy of that file.
+    ``assurance plan`` reads back to the same numbers), ``figures/`` (each of
+    :meth:`Plan.figures <assurance.Plan.figures>` in each of ``formats``), ``memo.html`` and
+    :data:`MARKER` (the list of files written); when the plan was read from a design file,
+    also ``design_as_given.toml``, a byte-for-byte copy of that file.
 
     Parameters
     ----------
@@ -39,7 +574,13 @@ def write_outputs(out: str | Path, plan: Plan, *, overwrite: bool = False) -> Pa
     plan
         The computed plan (:class:`~assurance.Plan`).
     overwrite
-        Replace an existing folder.
+        Replace an existing output folder of this package (see :func:`claim_output_folder`
+        for the folders that are never replaced).
+    formats
+        Figure formats to write: ``"png"``, ``"svg"`` or both.
+    claim
+        The folder as claimed before computing (:func:`claim_output_folder`); without it,
+        the folder is checked and claimed here.
 
     Returns
     -------
@@ -55,65 +596,53 @@ def write_outputs(out: str | Path, plan: Plan, *, overwrite: bool = False) -> Pa
     >>> p = asr.plan(design, targets={"assurance": 0.6}, sizes=[100, 200])
     >>> with tempfile.TemporaryDirectory() as folder:
     ...     written = write_outputs(pathlib.Path(folder) / "plan", p)
-    ...     print(sorted(f.name for f in written.iterdir()))
-    ['design.toml', 'figures', 'memo.html', 'results.csv', 'results.nc', 'sample_sizes.csv']
+    ...     print(*sorted(f.name for f in written.iterdir()))
+    .assurance-output design.toml figures memo.html results.csv results.nc sample_sizes.csv
     """
-    from . import save_figure, write_memo
+    formats = _check_formats(formats, "write_outputs")
+    keep = [plan.source.path] if plan.source is not None else []
+    own = claim is None
+    if claim is None:
+        claim = claim_output_folder(out, overwrite=overwrite, keep=keep)
+    elif claim.out != _as_folder_path(out, "write_outputs"):
+        raise AssuranceInputError(
+            f"The 'claim' parameter of write_outputs holds {str(claim.out)!r}, not the output "
+            f"folder {str(out)!r}.")
+    try:
+        _write_files(claim.staging, plan, formats)
+        return claim.commit()
+    finally:
+        if own:
+            claim.release()
 
-    out = Path(out)
-    if out.exists() and not overwrite:
-        raise AssuranceInputError(
-            f"The output folder {str(out)!r} already exists. Pass overwrite=True (--overwrite "
-            "on the command line) to replace it."
-        )
-    if out.exists() and not out.is_dir():
-        raise AssuranceInputError(
-            f"The output path {str(out)!r} exists and is not a folder; it is left alone.")
+
+def _write_files(tmp: Path, plan: Plan, formats: Sequence[str]) -> None:
+    from .figures import figure_bytes
+    from .memo import write_memo
+
     ds, answers = plan.results, plan.sample_sizes
-    out.parent.mkdir(parents=True, exist_ok=True)
-    tmp = Path(tempfile.mkdtemp(prefix=f".{out.name}-", dir=out.parent))
-    try:
-        write_results_csv(ds, tmp / "results.csv")
-        write_sample_sizes_csv(answers, tmp / "sample_sizes.csv")
-        record = plan.design_record()
-        saved = ds.copy()
-        if record is not None:  # the design in the file's own names travels with the results
-            saved.attrs["design_toml"] = record
-        saved.to_netcdf(tmp / "results.nc", engine="scipy")
-        if record is not None:
-            (tmp / "design.toml").write_text(record, encoding="utf-8")
-        if plan.source is not None:
-            (tmp / "design_as_given.toml").write_bytes(plan.source.content)
-        figures = tmp / "figures"
-        figures.mkdir()
-        rendered = {}
-        for name, fig in plan.figures().items():
-            png, _svg = save_figure(fig, figures / name)
-            rendered[name] = png.read_bytes()
-        write_memo(plan.design, ds, answers, tmp / "memo.html", rendered=rendered,
-                   prior_origin=plan.prior_origin, precision=plan.precision,
-                   design_record=record)
-        os.chmod(tmp, 0o755)
-        _swap_into_place(tmp, out)
-    except BaseException:
-        shutil.rmtree(tmp, ignore_errors=True)
-        raise
-    return out
-
-
-def _swap_into_place(tmp: Path, out: Path) -> None:
-    if not out.exists():
-        os.replace(tmp, out)
-        return
-    backup = Path(tempfile.mkdtemp(prefix=f".{out.name}-old-", dir=out.parent))
-    backup.rmdir()
-    os.replace(out, backup)
-    try:
-        os.replace(tmp, out)
-    except BaseException:
-        os.replace(backup, out)
-        raise
-    shutil.rmtree(backup, ignore_errors=True)
+    write_results_csv(ds, tmp / "results.csv")
+    write_sample_sizes_csv(answers, tmp / "sample_sizes.csv")
+    record = plan.design_record()
+    saved = ds.copy()
+    if record is not None:  # the design in the file's own names travels with the results
+        saved.attrs["design_toml"] = record
+    saved.to_netcdf(tmp / "results.nc", engine="scipy")
+    if record is not None:
+        (tmp / "design.toml").write_text(record, encoding="utf-8")
+    if plan.source is not None:
+        (tmp / "design_as_given.toml").write_bytes(plan.source.content)
+    figures = tmp / "figures"
+    figures.mkdir()
+    rendered = {}
+    for name, fig in plan.figures().items():
+        rendered[name] = figure_bytes(fig, "png")  # the memo embeds the PNG in any case
+        for fmt in formats:
+            data = rendered[name] if fmt == "png" else figure_bytes(fig, fmt)
+            (figures / f"{name}.{fmt}").write_bytes(data)
+    write_memo(plan.design, ds, answers, tmp / "memo.html", rendered=rendered,
+               prior_origin=plan.prior_origin, precision=plan.precision,
+               design_record=record)
 
 
 def write_results_csv(ds: Any, path: str | Path) -> None:
