@@ -392,24 +392,76 @@ def test_write_makes_the_folder_with_a_copy_of_the_design_file(small, small_file
     assert out == tmp_path / "plan"
     names = {str(p.relative_to(out)) for p in out.rglob("*") if p.is_file()}
     assert {"memo.html", "results.csv", "results.nc", "sample_sizes.csv", "design.toml",
-            "design_as_given.toml", "figures/prior.png", "figures/power_and_assurance.svg",
-            "figures/interval_width.png"} <= names
+            "design_as_given.toml", "figures/prior.png", "figures/power_and_assurance.png",
+            "figures/interval_width.png", ".assurance-output"} <= names
+    assert not any(name.endswith(".svg") for name in names)  # PNG only by default
     assert (out / "design_as_given.toml").read_bytes() == small_file.read_bytes()
     assert sorted(p.name for p in tmp_path.iterdir()) == ["plan"]  # nothing left beside
+    # the marker lists exactly what was written
+    listed = [line for line in (out / ".assurance-output").read_text(encoding="utf-8")
+              .splitlines() if line and not line.startswith("#")]
+    on_disk = sorted(p.relative_to(out).as_posix() + ("/" if p.is_dir() else "")
+                     for p in out.rglob("*") if p.name != ".assurance-output")
+    assert listed == on_disk
+
+
+def test_write_formats_svg_on_request(small, tmp_path):
+    out = small.write(tmp_path / "plan", formats=("png", "svg"))
+    for name in ("prior", "power_and_assurance", "interval_width"):
+        assert (out / "figures" / f"{name}.png").is_file()
+        assert "</svg>" in (out / "figures" / f"{name}.svg").read_text(encoding="utf-8")
+    out = small.write(tmp_path / "svg_only", formats="svg")
+    assert sorted(p.suffix for p in (out / "figures").iterdir()) == [".svg"] * 3
+    assert 'src="data:image/png;base64,' in (out / "memo.html").read_text(encoding="utf-8")
+
+
+@pytest.mark.parametrize("formats", [(), ("pdf",), ["png", "jpg"], 3])
+def test_write_rejects_unknown_formats(small, tmp_path, formats):
+    with pytest.raises(AssuranceInputError, match="'formats' parameter of Plan.write"):
+        small.write(tmp_path / "plan", formats=formats)
+    assert not (tmp_path / "plan").exists()
 
 
 def test_write_never_replaces_a_folder_unless_asked(small, tmp_path):
-    out = tmp_path / "plan"
-    out.mkdir()
-    (out / "notes.txt").write_text("mine", encoding="utf-8")
+    out = small.write(tmp_path / "plan")
     before = _digest(out)
     with pytest.raises(AssuranceInputError, match="already exists"):
         small.write(out)
     assert _digest(out) == before
     assert sorted(p.name for p in tmp_path.iterdir()) == ["plan"]
+    (out / "memo.html").write_text("edited", encoding="utf-8")  # a file the package wrote
     small.write(out, overwrite=True)
-    assert not (out / "notes.txt").exists() and (out / "memo.html").is_file()
+    assert (out / "memo.html").read_text(encoding="utf-8").startswith("<!DOCTYPE html>")
     assert sorted(p.name for p in tmp_path.iterdir()) == ["plan"]
+
+
+def test_write_never_replaces_a_folder_holding_a_users_file(small, tmp_path):
+    out = tmp_path / "plan"
+    out.mkdir()
+    (out / "notes.txt").write_text("mine", encoding="utf-8")
+    before = _digest(out)
+    with pytest.raises(AssuranceInputError, match="was not written by assurance"):
+        small.write(out, overwrite=True)
+    assert _digest(out) == before
+    small.write(tmp_path / "other")
+    (tmp_path / "other" / "notes.txt").write_text("mine", encoding="utf-8")
+    with pytest.raises(AssuranceInputError, match="'notes.txt'"):
+        small.write(tmp_path / "other", overwrite=True)
+    assert (tmp_path / "other" / "notes.txt").read_text(encoding="utf-8") == "mine"
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["other", "plan"]
+
+
+def test_write_never_replaces_the_design_files_folder(small_file, tmp_path):
+    folder = tmp_path / "project"
+    folder.mkdir()
+    design = folder / "design.toml"
+    design.write_bytes(small_file.read_bytes())
+    p = Plan.from_file(design)
+    with pytest.raises(AssuranceInputError, match="holds the design file"):
+        p.write(folder, overwrite=True)
+    assert sorted(x.name for x in folder.iterdir()) == ["design.toml"]
+    assert p.write(folder / "plan") == folder / "plan"  # a folder inside it is fine
+    assert design.read_bytes() == small_file.read_bytes()
 
 
 def test_write_leaves_a_file_of_the_same_name_alone(small, tmp_path):
@@ -423,6 +475,12 @@ def test_write_leaves_a_file_of_the_same_name_alone(small, tmp_path):
 def test_write_rejects_a_non_boolean_overwrite(small, tmp_path):
     with pytest.raises(AssuranceInputError, match="'overwrite' parameter of Plan.write"):
         small.write(tmp_path / "plan", overwrite="yes")
+
+
+@pytest.mark.parametrize("out", ["", "  ", 3, None])
+def test_write_needs_a_folder_name(small, out):
+    with pytest.raises(AssuranceInputError, match="'out' parameter of Plan.write"):
+        small.write(out)
 
 
 def test_a_plan_made_in_python_has_no_design_copy(tmp_path):

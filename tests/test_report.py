@@ -266,3 +266,100 @@ def test_text_summary_gives_the_headline_and_each_target(exact, monte_carlo):
     assert max(len(line) for line in lines) <= 88
     mc_text = memo_text_summary(*monte_carlo)
     assert "\u00b1" in mc_text
+
+
+def test_save_figure_writes_only_the_formats_asked_for(tmp_path, exact):
+    fig = plot_prior(exact[0]).figure
+    (png,) = save_figure(fig, tmp_path / "prior", formats=["png"])
+    assert png.read_bytes()[:4] == b"\x89PNG"
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["prior.png"]
+    with pytest.raises(AssuranceInputError, match="'formats' parameter of save_figure"):
+        save_figure(fig, tmp_path / "other", formats=["pdf"])
+
+
+# ------------------------------------------------------------------------------------------
+# titles are plain text in figures, and whatever they hold never breaks a figure or a page
+# ------------------------------------------------------------------------------------------
+def _titled(title):
+    design = asr.TrialDesign(asr.ContinuousEndpoint(sigma=10.0), asr.Normal(4.0, 2.5),
+                             relevant_effect=3.0, title=title)
+    return design, asr.evaluate(design, SIZES)
+
+
+def _svg_texts(fig):
+    """The text elements of the figure's SVG, with text kept as text (not glyph paths)."""
+    import re
+
+    import matplotlib
+
+    with matplotlib.rc_context({"svg.fonttype": "none"}):
+        svg = figure_bytes(fig, "svg").decode("utf-8")
+    return [html.unescape(t) for t in re.findall(r"<text[^>]*>([^<]*)</text>", svg)]
+
+
+@pytest.mark.parametrize("title", ["Costs $\\frac{$", "Budget $1.2M vs $0.8M"])
+def test_dollar_signs_in_a_title_are_drawn_as_plain_text(title):
+    # matplotlib reads text between dollar signs as mathematics: the first title used to
+    # crash the drawing, the second was drawn as italic maths
+    design, ds = _titled(title)
+    axes = {"design prior for the true effect": plot_prior(design),
+            "chance of success by sample size": plot_power_and_assurance(ds),
+            "what a success or a failure would mean": plot_decomposition(ds)}
+    for what, ax in axes.items():
+        expected = f"{title}: {what}"
+        assert ax.get_title(loc="left") == expected
+        assert figure_bytes(ax.figure, "png")[:4] == b"\x89PNG"
+        assert expected in _svg_texts(ax.figure), what
+
+
+def test_a_title_with_dollar_signs_goes_through_the_whole_output_folder(tmp_path):
+    design = asr.TrialDesign(asr.ContinuousEndpoint(sigma=10.0, analysis="z"),
+                             asr.Normal(4.0, 2.0), title="Costs $\\frac{$ and $1.2M")
+    out = asr.plan(design, targets={"assurance": 0.6}, sizes=[100, 200]).write(tmp_path / "o")
+    assert (out / "figures" / "prior.png").stat().st_size > 10_000
+    assert "Costs $\\frac{$ and $1.2M" in (out / "memo.html").read_text(encoding="utf-8")
+
+
+def test_characters_the_font_lacks_are_replaced_without_a_warning():
+    import io
+    import warnings
+
+    design, ds = _titled("Trial \u4e2d\u6587 \u2713 caf\u00e9")
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")  # a missing glyph would warn while drawing
+        for ax in (plot_prior(design), plot_power_and_assurance(ds)):
+            ax.figure.savefig(io.BytesIO(), format="png")
+            title = ax.get_title(loc="left")
+            assert title.startswith("Trial ?? \u2713 caf\u00e9: ")
+
+
+def test_a_very_long_title_is_cut_to_three_lines_without_a_warning():
+    import io
+    import warnings
+
+    design, ds = _titled("word " * 600)
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")  # e.g. constrained layout giving up
+        for ax in (plot_prior(design), plot_power_and_assurance(ds)):
+            ax.figure.savefig(io.BytesIO(), format="png")
+            lines = ax.get_title(loc="left").splitlines()
+            assert len(lines) == 3 and lines[-1].endswith("\u2026")
+
+
+RAW = ("\x1b", "\x07", "\r", "\u202e")
+
+
+def test_control_characters_in_a_title_are_escaped_everywhere():
+    from assurance.report import overview_html
+
+    title = "A\x1b[31mB\x07 C\r\nD \u202eE"
+    design, ds = _titled(title)
+    page = memo_html(design, ds, [], date=DATE, versions=VERSIONS, figures=False)
+    summary = memo_text_summary(design, ds, [])
+    overview = overview_html(design, ds, [], figure=False)
+    figure_title = plot_prior(design).get_title(loc="left")
+    for text in (page, summary, overview, figure_title):
+        assert not any(raw in text for raw in RAW), text[:200]
+    assert summary.splitlines()[0] == "A\\x1b[31mB\\x07 C\\r\\nD \\u202eE"
+    assert "<h1>A\\x1b[31mB\\x07 C\\r\\nD \\u202eE</h1>" in page
+    assert figure_title.startswith("A\\x1b[31mB\\x07 C\\r\\nD \\u202eE: ")
