@@ -45,6 +45,7 @@ import numpy as np
 from numpy.polynomial.legendre import leggauss
 from scipy import special
 
+from .._validation import check_choice, check_int
 from ..errors import AssuranceInputError
 
 __all__ = [
@@ -52,8 +53,12 @@ __all__ = [
     "SCALES",
     "TestSpec",
     "RateArm",
+    "SuccessRegion",
     "success_region",
+    "success_runs",
+    "two_arm_z",
     "fisher_p_values",
+    "fisher_critical_counts",
     "normal_power",
     "binomial_pmf",
     "beta_binomial_pmf",
@@ -70,11 +75,12 @@ __all__ = [
     "PosteriorSpec",
     "posterior_probabilities",
     "posterior_region",
+    "posterior_runs",
     "posterior_normal_power",
 ]
 
 #: tests the trial may use, in plain words
-TESTS = ("z", "chi_square", "fisher_exact", "exact_binomial")
+TESTS = ("z", "unpooled_z", "chi_square", "fisher_exact", "exact_binomial")
 #: scales of the effect
 SCALES = ("difference", "risk_ratio", "odds_ratio")
 #: p-values within this relative distance of alpha count as rejecting (rounding guard: a
@@ -414,21 +420,237 @@ def restricted_rates(p_t, p_c, n_t, n_c, delta0: float):
     return rt, np.clip(rt - delta0, 0.0, 1.0)
 
 
-def _two_arm_z(spec: TestSpec, n_t: int, n_c: int) -> np.ndarray:
-    pt = (np.arange(n_t + 1) / n_t)[:, None]
-    pc = (np.arange(n_c + 1) / n_c)[None, :]
+# ------------------------------------------------------------------------------------------
+# success regions as runs of treatment counts
+# ------------------------------------------------------------------------------------------
+@dataclass(frozen=True, eq=False)
+class SuccessRegion:
+    """Where a trial succeeds, stored as runs of treatment counts per control count.
+
+    Run ``j`` holds the tables ``(x_t, col[j])`` with ``lo[j] <= x_t <= hi[j]``. The region
+    of a test is one run per control count reaching the top (``x_t >= t(x_c)``, higher rates
+    better) or the bottom (``x_t <= u(x_c)``, lower better): a staircase. Any other region
+    (:meth:`from_dense`) may have several runs per control count. A single arm has one
+    control "count" (``n_c = 0``).
+
+    Every sum over the region is a sum over runs of prefix sums along ``x_t``: ``O(n_t +
+    n_c)`` operations per pair of rates and ``O((n_t + n_c) K)`` for ``K`` rates, instead of
+    the ``O(n_t n_c)`` and ``O(n_t n_c K)`` of a dense table (and no matrix product, so no
+    linear-algebra threads). A run reaching the top is summed from the top down, one
+    starting at 0 from the bottom up, so small tails keep their relative accuracy.
+
+    Examples
+    --------
+    >>> dense = np.array([[False, False], [True, False], [True, True]])  # (x_t, x_c)
+    >>> region = SuccessRegion.from_dense(dense)
+    >>> region.runs()
+    [(0, 1, 2), (1, 2, 2)]
+    >>> float(region.probability(np.array([0.25, 0.5, 0.25]), np.array([0.5, 0.5])))
+    0.5
+    >>> bool(np.array_equal(region.dense(), dense))
+    True
+    """
+
+    n_t: int
+    n_c: int
+    col: np.ndarray
+    lo: np.ndarray
+    hi: np.ndarray
+
+    @classmethod
+    def from_columns(cls, n_t: int, lo: np.ndarray, hi: np.ndarray) -> SuccessRegion:
+        """One run ``[lo[x_c], hi[x_c]]`` per control count (empty where ``lo > hi``)."""
+        lo = np.asarray(lo, dtype=np.int64)
+        hi = np.asarray(hi, dtype=np.int64)
+        keep = lo <= hi
+        return cls(int(n_t), lo.size - 1, np.flatnonzero(keep), lo[keep], hi[keep])
+
+    @classmethod
+    def from_dense(cls, mask: np.ndarray) -> SuccessRegion:
+        """The runs of a boolean array of shape ``(n_t + 1, n_c + 1)``."""
+        mask = np.asarray(mask, dtype=bool)
+        n_t, n_c = mask.shape[0] - 1, mask.shape[1] - 1
+        padded = np.zeros((n_c + 1, n_t + 3), dtype=np.int8)
+        padded[:, 1:-1] = mask.T
+        step = np.diff(padded, axis=1)
+        col, start = np.nonzero(step == 1)
+        _, stop = np.nonzero(step == -1)
+        return cls(n_t, n_c, col.astype(np.int64), start.astype(np.int64),
+                   stop.astype(np.int64) - 1)
+
+    def runs(self) -> list[tuple[int, int, int]]:
+        """``(x_c, lo, hi)`` of every run, in order of ``x_c``."""
+        return list(zip(self.col.tolist(), self.lo.tolist(), self.hi.tolist(), strict=True))
+
+    def dense(self) -> np.ndarray:
+        """The region as a boolean array of shape ``(n_t + 1, n_c + 1)``."""
+        step = np.zeros((self.n_t + 2, self.n_c + 1), dtype=np.int32)
+        np.add.at(step, (self.lo, self.col), 1)
+        np.add.at(step, (self.hi + 1, self.col), -1)
+        return np.cumsum(step, axis=0)[:-1] > 0
+
+    def tables(self) -> int:
+        """Number of outcome tables in the region."""
+        return int(np.sum(self.hi - self.lo + 1))
+
+    def _run_sums(self, values: np.ndarray) -> np.ndarray:
+        """Sum of ``values[..., lo:hi + 1]`` (along the last axis) for every run."""
+        head = np.cumsum(values, axis=-1)
+        tail = np.cumsum(values[..., ::-1], axis=-1)[..., ::-1]
+        lo, hi = self.lo, self.hi
+        inner = head[..., hi] - head[..., np.maximum(lo - 1, 0)]
+        return np.where(hi == self.n_t, tail[..., lo], np.where(lo == 0, head[..., hi], inner))
+
+    def probability(self, pmf_t: np.ndarray, pmf_c: np.ndarray) -> float:
+        """``sum over the region of pmf_t[x_t] pmf_c[x_c]`` (independent arms)."""
+        return float(np.dot(pmf_c[self.col], self._run_sums(pmf_t)))
+
+    def by_treatment(self, weights_c: np.ndarray) -> np.ndarray:
+        """For each ``x_t``, the sum of ``weights_c[..., x_c]`` over the region's ``x_c``.
+
+        ``weights_c`` has shape ``(K, n_c + 1)`` (one row per rate, as
+        :func:`binomial_pmf` gives), the result ``(K, n_t + 1)``: ``weights_c @ R.T``.
+        """
+        w = weights_c[..., self.col]
+        lo, hi, x = self.lo, self.hi, np.arange(self.n_t + 1)
+        top = hi == self.n_t
+        bottom = (lo == 0) & ~top
+        inner = ~(top | bottom)
+        out = np.zeros(w.shape[:-1] + (self.n_t + 1,))
+        # a run to the top covers every x_t >= lo; one from the bottom every x_t <= hi
+        if top.any():
+            out += _sums_up_to(lo[top], w[..., top], x, "right")
+        if bottom.any():
+            out += _sums_from(hi[bottom], w[..., bottom], x)
+        if inner.any():
+            out += (_sums_up_to(lo[inner], w[..., inner], x, "right")
+                    - _sums_up_to(hi[inner], w[..., inner], x, "left"))
+        return out
+
+    def by_control(self, weights_t: np.ndarray) -> np.ndarray:
+        """For each ``x_c``, the sum of ``weights_t[..., x_t]`` over the region's ``x_t``.
+
+        ``weights_t`` has shape ``(K, n_t + 1)``, the result ``(K, n_c + 1)``:
+        ``weights_t @ R``.
+        """
+        sums = self._run_sums(weights_t)
+        out = np.zeros(sums.shape[:-1] + (self.n_c + 1,))
+        if self.col.size == 0:
+            return out
+        first = np.concatenate(([True], self.col[1:] != self.col[:-1]))
+        if first.all():  # one run per control count
+            out[..., self.col] = sums
+        else:  # runs are stored in order of x_c
+            starts = np.flatnonzero(first)
+            out[..., self.col[starts]] = np.add.reduceat(sums, starts, axis=-1)
+        return out
+
+
+def _sums_up_to(pos: np.ndarray, w: np.ndarray, x: np.ndarray, side: str) -> np.ndarray:
+    """``out[..., i] = sum of w[..., j] over pos[j] <= x[i]`` (``< x[i]`` with side 'left')."""
+    order = np.argsort(pos, kind="stable")
+    head = np.cumsum(w[..., order], axis=-1)
+    count = np.searchsorted(pos[order], x, side=side)
+    head = np.concatenate((np.zeros(head.shape[:-1] + (1,)), head), axis=-1)
+    return head[..., count]
+
+
+def _sums_from(pos: np.ndarray, w: np.ndarray, x: np.ndarray) -> np.ndarray:
+    """``out[..., i] = sum of w[..., j] over pos[j] >= x[i]`` (summed from the largest)."""
+    order = np.argsort(-pos, kind="stable")
+    head = np.cumsum(w[..., order], axis=-1)
+    count = pos.size - np.searchsorted(np.sort(pos), x, side="left")
+    head = np.concatenate((np.zeros(head.shape[:-1] + (1,)), head), axis=-1)
+    return head[..., count]
+
+
+def _first_passing(passes, n_t: int, n_c: int) -> np.ndarray:
+    """For every column ``x_c``, the smallest rank ``r`` in ``0..n_t`` that passes.
+
+    ``passes(r, x_c)`` (arrays) must be monotone in ``r`` (once true, true for every larger
+    rank). Bisection for all columns at once: ``ceil(log2(n_t + 2))`` vectorised rounds.
+    ``n_t + 1`` means no rank passes.
+    """
+    lo = np.full(n_c + 1, -1, dtype=np.int64)  # fails (virtual)
+    hi = np.full(n_c + 1, n_t + 1, dtype=np.int64)  # passes (virtual)
+    while True:
+        open_ = np.flatnonzero(hi - lo > 1)
+        if open_.size == 0:
+            return hi
+        mid = (lo[open_] + hi[open_]) // 2
+        ok = np.asarray(passes(mid, open_), dtype=bool)
+        hi[open_[ok]] = mid[ok]
+        lo[open_[~ok]] = mid[~ok]
+
+
+def _z_parts(spec: TestSpec, n_t: int, n_c: int, pt, pc):
+    """Numerator and variance of the two-arm z statistic at observed rates ``pt``, ``pc``."""
     d0 = spec.null_shift
-    if d0 == 0.0:
+    if spec.test == "unpooled_z":
+        var = pt * (1.0 - pt) / n_t + pc * (1.0 - pc) / n_c
+    elif d0 == 0.0:
         pooled = (n_t * pt + n_c * pc) / (n_t + n_c)
         var = pooled * (1.0 - pooled) * (1.0 / n_t + 1.0 / n_c)
     else:
         rt, rc = restricted_rates(pt, pc, n_t, n_c, d0)
         var = rt * (1.0 - rt) / n_t + rc * (1.0 - rc) / n_c
     cc = 0.5 * (1.0 / n_t + 1.0 / n_c) if spec.continuity else 0.0
-    num = spec.sign * (pt - pc - d0) - cc
+    return spec.sign * (pt - pc - d0) - cc, var
+
+
+def _z_rejects(spec: TestSpec, n_t: int, n_c: int, x_t, x_c, critical: float) -> np.ndarray:
+    """Whether the z-type test rejects at tables ``(x_t, x_c)`` (broadcast together).
+
+    The pooled statistics do not reject where their variance is 0 (no responders or all
+    responders: no difference either); the unpooled statistic with variance 0 is
+    ``+-infinity`` by the sign of its numerator (0/0 does not reject).
+    """
+    num, var = _z_parts(spec, n_t, n_c, x_t / n_t, x_c / n_c)
     with np.errstate(divide="ignore", invalid="ignore"):
         z = num / np.sqrt(var)
-    return (var > 0.0) & (z >= spec.critical_z)
+    if spec.test == "unpooled_z":
+        return z >= critical
+    return (var > 0.0) & (z >= critical)
+
+
+def two_arm_z(spec: TestSpec, x_t, x_c, n_t: int, n_c: int) -> np.ndarray:
+    """z statistic of a two-arm test at tables ``(x_t, x_c)``, in the favourable direction.
+
+    ``"z"`` / ``"chi_square"``: pooled variance (Farrington-Manning restricted rates with a
+    margin); ``"unpooled_z"``: the Wald statistic with the unpooled variance ``p_t (1 - p_t)
+    / n_t + p_c (1 - p_c) / n_c``. With a zero variance the value is ``+-inf`` (``nan`` for
+    0/0); see :func:`success_region` for how such tables are decided.
+
+    Examples
+    --------
+    >>> spec = TestSpec("unpooled_z", 0.025, +1.0, "difference", True)
+    >>> round(float(two_arm_z(spec, 63, 43, 78, 77)), 2)  # 0.249 / 0.0721
+    3.46
+    """
+    owner = "two_arm_z"
+    n_t = check_int(n_t, "n_t", owner, low=1)
+    n_c = check_int(n_c, "n_c", owner, low=1)
+    if not isinstance(spec, TestSpec) or not spec.two_arm:
+        raise AssuranceInputError(
+            f"The 'spec' parameter of {owner} must be a two-arm TestSpec. Got {spec!r} instead.")
+    check_choice(spec.test, "spec.test", owner, ["z", "unpooled_z", "chi_square"])
+    x_t, x_c = np.broadcast_arrays(np.asarray(x_t), np.asarray(x_c))
+    for name, x, n in (("x_t", x_t, n_t), ("x_c", x_c, n_c)):
+        if not np.issubdtype(x.dtype, np.integer) or x.min(initial=0) < 0 \
+                or x.max(initial=0) > n:
+            raise AssuranceInputError(
+                f"The '{name}' parameter of {owner} must be whole numbers of responders "
+                f"from 0 to {n}. Got {x.tolist()!r} instead.")
+    num, var = _z_parts(spec, n_t, n_c, x_t / n_t, x_c / n_c)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return num / np.sqrt(var)
+
+
+def _two_arm_z(spec: TestSpec, n_t: int, n_c: int) -> np.ndarray:
+    """Dense decisions of a z-type test over every table (used where no staircase is known)."""
+    x_t = np.arange(n_t + 1)[:, None]
+    x_c = np.arange(n_c + 1)[None, :]
+    return _z_rejects(spec, n_t, n_c, x_t, x_c, spec.critical_z)
 
 
 def fisher_p_values(n_t: int, n_c: int, sign: float) -> np.ndarray:
@@ -437,7 +659,8 @@ def fisher_p_values(n_t: int, n_c: int, sign: float) -> np.ndarray:
     Given the total number of responders ``s``, ``x_t`` is hypergeometric; the p-value in
     the favourable direction is ``P(X_t >= x_t | s)`` (``<=`` when lower rates are better).
     The pmf comes from log-gamma functions on an ``(x_t, s)`` grid and the tails from
-    cumulative sums along ``x_t``.
+    cumulative sums along ``x_t``. (The success regions use :func:`fisher_critical_counts`,
+    which needs only a band of that grid.)
 
     Examples
     --------
@@ -457,44 +680,149 @@ def fisher_p_values(n_t: int, n_c: int, sign: float) -> np.ndarray:
     return tail[xt, xt + np.arange(n_c + 1)[None, :]]
 
 
+#: tail mass a banded Fisher sum may leave out, relative to the level (decisions can then
+#: differ from the full sum only for p-values within this relative distance of the level,
+#: which the P_VALUE_TOLERANCE guard already treats as ties)
+FISHER_BAND_SLACK = 1e-14
+
+
+def fisher_critical_counts(n_t: int, n_c: int, cutoff: float) -> np.ndarray:
+    """For every total ``s = 0..n_t + n_c``: the smallest ``x_t`` whose one-sided Fisher
+    p-value ``P(X_t >= x_t | s)`` is at most ``cutoff``.
+
+    ``min(n_t, s) + 1`` when no table with that total rejects. Fisher's test rejects at
+    ``(x_t, x_c)`` iff ``x_t >= k[x_t + x_c]``; when lower rates are better, iff ``n_t - x_t
+    >= k[n_t + n_c - x_t - x_c]`` (the responders and non-responders swap roles, and the
+    non-responders follow the same hypergeometric law).
+
+    Notes
+    -----
+    Given ``s``, ``X_t`` is hypergeometric with mean ``m = s n_t / N`` and variance ``v = s
+    (N - s) n_t n_c / (N^2 (N - 1))``. The tail is summed from the top down over a band of
+    ``x_t`` from ``floor(m) - 1`` to ``(z_{1-cutoff} + 9) sqrt(max v) + 12`` above it, one
+    band per total, vectorised: about ``N (z + 9) sqrt(v)`` terms instead of ``N n_t``. The
+    pmf is log-concave, so beyond the band (past the mode) the ratio of successive terms
+    falls and the mass left out is at most ``f / (1 - r)`` (``f`` the first term left out,
+    ``r`` its ratio to the last term kept); the band is used only if that bound is below
+    ``FISHER_BAND_SLACK * cutoff`` for every total and the band starts where the tail still
+    exceeds the cutoff, otherwise the whole ``(x_t, s)`` grid is summed.
+
+    Examples
+    --------
+    >>> fisher_critical_counts(3, 3, 0.05).tolist()  # only 3/3 versus 0/3 (s = 3) rejects
+    [1, 2, 3, 3, 4, 4, 4]
+    """
+    n = n_t + n_c
+    s = np.arange(n + 1)
+    lo_s = np.maximum(s - n_c, 0)
+    hi_s = np.minimum(s, n_t)
+    lc_t, lc_c, lc_n = _log_comb(n_t), _log_comb(n_c), _log_comb(n)
+    var = s * (n - s) * (n_t * n_c / (n * n * max(n - 1, 1)))
+    z = max(float(special.ndtri(1.0 - cutoff)), 0.0)
+    width = int(math.ceil((z + 9.0) * math.sqrt(float(var.max())))) + 12
+    if 2 * width < n_t:
+        start = np.clip(np.floor(s * (n_t / n)).astype(np.int64) - 1, lo_s, hi_s)
+        x = start[:, None] + np.arange(width + 1)[None, :]
+        inside = x <= hi_s[:, None]
+        x = np.minimum(x, hi_s[:, None])
+        log_pmf = lc_t[x] + lc_c[s[:, None] - x] - lc_n[:, None]
+        pmf = np.where(inside, np.exp(log_pmf), 0.0)
+        tail = np.cumsum(pmf[:, width - 1::-1], axis=1)[:, ::-1]
+        last, beyond = pmf[:, width - 1], pmf[:, width]
+        with np.errstate(divide="ignore", invalid="ignore"):
+            ratio = np.where(last > 0.0, beyond / last, 0.0)
+            left_out = np.where(beyond > 0.0, beyond / (1.0 - ratio), 0.0)
+        good = ((ratio < 1.0) & (left_out <= FISHER_BAND_SLACK * cutoff)
+                & ((start == lo_s) | (tail[:, 0] > cutoff)))
+        if good.all():
+            return start + np.sum(tail > cutoff, axis=1)
+    xt = np.arange(n_t + 1)[:, None]
+    xc = s[None, :] - xt
+    valid = (xc >= 0) & (xc <= n_c)
+    log_pmf = lc_t[xt] + lc_c[np.clip(xc, 0, n_c)] - lc_n[None, :]
+    pmf = np.where(valid, np.exp(log_pmf), 0.0)
+    tail = np.cumsum(pmf[::-1], axis=0)[::-1]
+    return np.sum(tail > cutoff, axis=0)
+
+
 def _observed_benefit(spec: TestSpec, n_t: int, n_c: int) -> np.ndarray:
     pt = (np.arange(n_t + 1) / n_t)[:, None]
     pc = (np.arange(n_c + 1) / n_c)[None, :] if spec.two_arm else np.array([[spec.reference]])
     return spec.sign * natural_effect(pt, pc, spec.scale)
 
 
-def success_region(spec: TestSpec | PosteriorSpec, n_t: int, n_c: int) -> np.ndarray:
-    """Boolean array over outcomes ``(x_t, x_c)``: True where the trial succeeds.
+def _staircase_known(spec: TestSpec) -> bool:
+    """Whether each control count's region is known to be one run from the top/bottom.
 
-    Shape ``(n_t + 1, n_c + 1)``; a single-arm trial gives shape ``(n_t + 1, 1)``.
+    True for two arms without a margin: Fisher's p-value falls as ``x_t`` rises (the
+    hypergeometric law grows stochastically with the total); the pooled and unpooled z
+    statistics, with or without the continuity correction, rise with ``x_t`` wherever they
+    are positive (derivative in ``p_t`` proportional to ``pbar + p_c - 2 p_c pbar + cc w (1
+    - 2 pbar)``, resp. ``p_t + p_c - 2 p_t p_c + cc (1 - 2 p_t)`` over ``2 n_t``, plus
+    ``p_c (1 - p_c) / n_c``, both > 0 once ``p_t - p_c > cc``), so ``z >= z_{1-alpha} > 0``
+    is an upper set. The observed effect rises with ``x_t`` on every scale. Mirror images
+    when lower rates are better.
+    """
+    if not spec.two_arm or spec.null_shift != 0.0:
+        return False
+    return spec.test == "fisher_exact" or spec.critical_z > 0.0
 
-    Notes
-    -----
-    * ``"z"`` (two arms): pooled two-proportion z statistic ``(p_t - p_c) / sqrt(pbar (1 -
-      pbar) (1/n_t + 1/n_c))`` in the favourable direction, success iff ``z >=
-      z_{1-alpha}``; with a non-inferiority margin the numerator is shifted by the margin
-      and the variance uses the rates restricted to the null (Farrington & Manning 1990);
-      with continuity correction ``(1/n_t + 1/n_c) / 2`` is taken off the numerator.
-      Tables with no variance (all or no responders) do not reject.
-    * ``"chi_square"``: Pearson's chi-square statistic equals ``z^2`` (Yates-corrected:
-      the corrected ``z`` squared), so a two-sided chi-square test at ``2 alpha`` with the
-      result in the favourable direction rejects exactly where ``z >= z_{1-alpha}``.
-    * ``"fisher_exact"``: one-sided conditional p-value <= alpha (:func:`fisher_p_values`).
-    * single arm: ``"z"`` / ``"chi_square"`` is the score test ``(p - p0) / sqrt(p0 (1 -
-      p0) / n)``; ``"exact_binomial"`` is ``P(X >= x | p0) <= alpha`` (``scipy.stats.
-      binomtest`` with the one-sided alternative).
 
-    * a :class:`PosteriorSpec`: posterior probability at least the level
-      (:func:`posterior_region`).
+def _staircase_region(spec: TestSpec, n_t: int, n_c: int) -> SuccessRegion:
+    """One run per control count, its end found by bisection on ``x_t`` (see
+    :func:`_staircase_known`); decisions are made by the same arithmetic as the dense grid."""
+    upper = spec.sign > 0
+    level = spec.alpha * (1.0 + P_VALUE_TOLERANCE)
+    if spec.test == "fisher_exact":
+        k = fisher_critical_counts(n_t, n_c, level)
+        n = n_t + n_c
+
+        def test_passes(x_t, x_c):
+            return x_t >= k[x_t + x_c] if upper else n_t - x_t >= k[n - x_t - x_c]
+    else:
+        critical = spec.critical_z
+
+        def test_passes(x_t, x_c):
+            return _z_rejects(spec, n_t, n_c, x_t, x_c, critical)
+
+    def passes(rank, x_c):
+        x_t = rank if upper else n_t - rank
+        ok = test_passes(x_t, x_c)
+        if spec.min_estimate is not None:
+            observed = spec.sign * natural_effect(x_t / n_t, x_c / n_c, spec.scale)
+            ok = ok & (observed >= spec.min_estimate)
+        return ok
+
+    first = _first_passing(passes, n_t, n_c)
+    if upper:
+        return SuccessRegion.from_columns(n_t, first, np.full_like(first, n_t))
+    return SuccessRegion.from_columns(n_t, np.zeros_like(first), n_t - first)
+
+
+def success_runs(spec: TestSpec | PosteriorSpec, n_t: int, n_c: int) -> SuccessRegion:
+    """The success region as runs of treatment counts (:class:`SuccessRegion`).
+
+    Same decisions as :func:`success_region`. Without a margin, a two-arm test's region is
+    a staircase: one run per control count, whose end is found by bisection on ``x_t``
+    (about ``(n_c + 1) log2(n_t)`` tables decided instead of ``(n_t + 1)(n_c + 1)``; Fisher's
+    test first needs its critical counts per total, :func:`fisher_critical_counts`). With a
+    non-inferiority margin every table is decided and the runs read off. A posterior rule
+    uses the staircase of :func:`posterior_region`.
 
     Examples
     --------
-    >>> spec = TestSpec("fisher_exact", 0.05, +1.0, "difference", True)
-    >>> np.argwhere(success_region(spec, 3, 3)).tolist()  # only 3/3 versus 0/3 succeeds
-    [[3, 0]]
+    >>> spec = TestSpec("unpooled_z", 0.025, +1.0, "difference", True)
+    >>> success_runs(spec, 4, 2).runs()  # x_c = 0 needs x_t >= 2 (z = 2); x_c >= 1: never
+    [(0, 2, 4)]
     """
     if isinstance(spec, PosteriorSpec):
-        return posterior_region(spec, n_t, n_c)
+        return posterior_runs(spec, n_t, n_c)
+    if spec.two_arm and _staircase_known(spec):
+        return _staircase_region(spec, n_t, n_c)
+    return SuccessRegion.from_dense(_dense_region(spec, n_t, n_c))
+
+
+def _dense_region(spec: TestSpec, n_t: int, n_c: int) -> np.ndarray:
     level = spec.alpha * (1.0 + P_VALUE_TOLERANCE)
     if spec.two_arm:
         if spec.test == "fisher_exact":
@@ -502,6 +830,10 @@ def success_region(spec: TestSpec | PosteriorSpec, n_t: int, n_c: int) -> np.nda
         else:
             reject = _two_arm_z(spec, n_t, n_c)
     else:
+        if spec.test == "unpooled_z":
+            raise AssuranceInputError(
+                "The 'test' of a single-arm TestSpec must be 'z', 'chi_square' or "
+                "'exact_binomial' ('unpooled_z' compares two arms). Got 'unpooled_z' instead.")
         p0 = spec.null_rate
         x = np.arange(n_t + 1)
         if spec.test == "exact_binomial":
@@ -518,6 +850,48 @@ def success_region(spec: TestSpec | PosteriorSpec, n_t: int, n_c: int) -> np.nda
     return reject
 
 
+def success_region(spec: TestSpec | PosteriorSpec, n_t: int, n_c: int) -> np.ndarray:
+    """Boolean array over outcomes ``(x_t, x_c)``: True where the trial succeeds.
+
+    Shape ``(n_t + 1, n_c + 1)``; a single-arm trial gives shape ``(n_t + 1, 1)``. The
+    probabilities use the same region as runs (:func:`success_runs`); this dense form is for
+    inspection and checks.
+
+    Notes
+    -----
+    * ``"z"`` (two arms): pooled two-proportion z statistic ``(p_t - p_c) / sqrt(pbar (1 -
+      pbar) (1/n_t + 1/n_c))`` in the favourable direction, success iff ``z >=
+      z_{1-alpha}``; with a non-inferiority margin the numerator is shifted by the margin
+      and the variance uses the rates restricted to the null (Farrington & Manning 1990);
+      with continuity correction ``(1/n_t + 1/n_c) / 2`` is taken off the numerator.
+      Tables with no variance (all or no responders) do not reject.
+    * ``"unpooled_z"`` (two arms): the Wald statistic ``(p_t - p_c) / sqrt(p_t (1 - p_t) /
+      n_t + p_c (1 - p_c) / n_c)``, margin and correction as for ``"z"``. A table whose
+      variance is 0 (each arm all or no responders) has ``z = +-inf`` by the sign of the
+      numerator: 10/10 versus 0/10 rejects, 0/10 versus 0/10 does not -- except with a
+      margin, where the numerator is the margin and it does (the Wald test's known blind
+      spot; its type I error, reported per size, shows it).
+    * ``"chi_square"``: Pearson's chi-square statistic equals ``z^2`` (Yates-corrected:
+      the corrected ``z`` squared), so a two-sided chi-square test at ``2 alpha`` with the
+      result in the favourable direction rejects exactly where ``z >= z_{1-alpha}``.
+    * ``"fisher_exact"``: one-sided conditional p-value <= alpha (:func:`fisher_p_values`,
+      :func:`fisher_critical_counts`).
+    * single arm: ``"z"`` / ``"chi_square"`` is the score test ``(p - p0) / sqrt(p0 (1 -
+      p0) / n)``; ``"exact_binomial"`` is ``P(X >= x | p0) <= alpha`` (``scipy.stats.
+      binomtest`` with the one-sided alternative).
+
+    * a :class:`PosteriorSpec`: posterior probability at least the level
+      (:func:`posterior_region`).
+
+    Examples
+    --------
+    >>> spec = TestSpec("fisher_exact", 0.05, +1.0, "difference", True)
+    >>> np.argwhere(success_region(spec, 3, 3)).tolist()  # only 3/3 versus 0/3 succeeds
+    [[3, 0]]
+    """
+    return success_runs(spec, n_t, n_c).dense()
+
+
 def normal_power(spec: TestSpec | PosteriorSpec, p_t, p_c, n_t: float, n_c: float
                  ) -> np.ndarray:
     """Normal-approximation probability of success at true rates ``p_t``, ``p_c``.
@@ -525,7 +899,9 @@ def normal_power(spec: TestSpec | PosteriorSpec, p_t, p_c, n_t: float, n_c: floa
     The observed difference ``D = sign (p_t_hat - p_c_hat)`` is taken as normal with the
     variance at the true rates, ``se1^2 = p_t q_t / n_t + p_c q_c / n_c``; the test rejects
     when ``D >= sign delta0 + cc + z_{1-alpha} se0`` with ``se0`` the standard error under
-    the null (pooled rate, or the Farrington-Manning restricted rates with a margin), so
+    the null (pooled rate, or the Farrington-Manning restricted rates with a margin; for the
+    unpooled z test the observed rates' standard error, taken at the true rates: ``se0 =
+    se1``), so
 
     ``power = Phi((sign (p_t - p_c) - sign delta0 - cc - z se0) / se1)``
 
@@ -550,13 +926,15 @@ def normal_power(spec: TestSpec | PosteriorSpec, p_t, p_c, n_t: float, n_c: floa
     cc_on = spec.continuity or exact_test
     if spec.two_arm:
         d0 = spec.null_shift
-        if d0 == 0.0:
+        se1 = np.sqrt(p_t * (1.0 - p_t) / n_t + p_c * (1.0 - p_c) / n_c)
+        if spec.test == "unpooled_z":
+            se0 = se1
+        elif d0 == 0.0:
             pooled = (n_t * p_t + n_c * p_c) / (n_t + n_c)
             se0 = np.sqrt(pooled * (1.0 - pooled) * (1.0 / n_t + 1.0 / n_c))
         else:
             rt, rc = restricted_rates(p_t, p_c, n_t, n_c, d0)
             se0 = np.sqrt(rt * (1.0 - rt) / n_t + rc * (1.0 - rc) / n_c)
-        se1 = np.sqrt(p_t * (1.0 - p_t) / n_t + p_c * (1.0 - p_c) / n_c)
         cc = 0.5 * (1.0 / n_t + 1.0 / n_c) if cc_on else 0.0
         ref = p_c
         threshold = spec.sign * d0 + cc + z * se0
@@ -812,14 +1190,30 @@ def posterior_region(spec: PosteriorSpec, n_t: int, n_c: int) -> np.ndarray:
     >>> bool(region[10, 4]), bool(region[6, 4])  # 10/10 vs 4/10 succeeds, 6/10 does not
     (True, False)
     """
+    return posterior_runs(spec, n_t, n_c).dense()
+
+
+def posterior_runs(spec: PosteriorSpec, n_t: int, n_c: int) -> SuccessRegion:
+    """Success region of a posterior-probability rule as runs (:class:`SuccessRegion`).
+
+    The same staircase as :func:`posterior_region`, kept as one run per control count.
+
+    Examples
+    --------
+    >>> spec = PosteriorSpec(0.9, 0.0, +1.0, "difference", True, RateArm.beta(1, 1),
+    ...                      RateArm.beta(1, 1))
+    >>> posterior_runs(spec, 3, 1).runs()  # only 3/3 versus 0/1: P(p_t > p_c) = 0.93
+    [(0, 3, 3)]
+    """
     n_c = n_c if spec.two_arm else 0
     grid = _PosteriorGrid(spec, n_t, n_c)
     need = spec.level - POSTERIOR_TOLERANCE
     if not spec.two_arm:
-        return grid.prob(np.arange(n_t + 1), 0)[:, None] >= need
+        return SuccessRegion.from_dense(grid.prob(np.arange(n_t + 1), 0)[:, None] >= need)
     first = _first_passing_rank(grid, spec, n_t, n_c, need)
-    rank = np.arange(n_t + 1)[:, None] if spec.above else n_t - np.arange(n_t + 1)[:, None]
-    return rank >= first[None, :]
+    if spec.above:
+        return SuccessRegion.from_columns(n_t, first, np.full_like(first, n_t))
+    return SuccessRegion.from_columns(n_t, np.zeros_like(first), n_t - first)
 
 
 def _first_passing_rank(grid: _PosteriorGrid, spec: PosteriorSpec, n_t: int, n_c: int,

@@ -42,6 +42,7 @@ from ..compute.binary_exact import (
     TESTS,
     PosteriorSpec,
     RateArm,
+    SuccessRegion,
     TestSpec,
     beta_binomial_pmf,
     binomial_pmf,
@@ -52,7 +53,7 @@ from ..compute.binary_exact import (
     normal_power,
     posterior_below,
     smoothed_rule,
-    success_region,
+    success_runs,
     treatment_breakpoints,
     treatment_rate,
 )
@@ -67,7 +68,7 @@ __all__ = ["BinaryEndpoint", "BetaRates"]
 
 Layout = Literal["two_arm", "single_arm"]
 Scale = Literal["difference", "risk_ratio", "odds_ratio"]
-Test = Literal["z", "chi_square", "fisher_exact", "exact_binomial"]
+Test = Literal["z", "unpooled_z", "chi_square", "fisher_exact", "exact_binomial"]
 
 #: Gauss-Legendre nodes per block for the distribution function of a BetaRates prior
 QUAD_NODES = 64
@@ -83,6 +84,7 @@ _EFFECT_NAMES = {
 }
 _TEST_TEXT = {
     "z": "pooled two-proportion z test",
+    "unpooled_z": "unpooled (Wald) two-proportion z test",
     "chi_square": "chi-square test (same decisions as the pooled z test: chi-square = z^2)",
     "fisher_exact": "Fisher's exact test (one-sided)",
     "exact_binomial": "exact binomial test (one-sided)",
@@ -393,14 +395,17 @@ class BinaryEndpoint(Endpoint):
     test
         The final analysis, one-sided in the favourable direction at the rule's one-sided
         level: ``"z"`` (pooled two-proportion z test; single arm: score z test against the
-        reference), ``"chi_square"`` (Pearson's chi-square: ``chi2 = z^2``, so a two-sided
-        chi-square test with a favourable result decides exactly as the z test at half the
-        level; with ``Significance(alpha, sided="two")`` the two agree; with ``sided="one"``
-        the chi-square test is used one-sidedly, which is the z test), ``"fisher_exact"``
-        (two arms) or ``"exact_binomial"`` (single arm; ``scipy.stats.binomtest``).
+        reference), ``"unpooled_z"`` (two arms: the Wald z test, whose standard error uses
+        each arm's observed rate; its exact type I error can exceed the level, and the
+        results report it per size), ``"chi_square"`` (Pearson's chi-square: ``chi2 =
+        z^2``, so a two-sided chi-square test with a favourable result decides exactly as the
+        pooled z test at half the level; with ``Significance(alpha, sided="two")`` the two
+        agree; with ``sided="one"`` the chi-square test is used one-sidedly, which is the z
+        test), ``"fisher_exact"`` (two arms) or ``"exact_binomial"`` (single arm;
+        ``scipy.stats.binomtest``).
     continuity_correction
-        Yates' correction for ``"z"`` / ``"chi_square"``: ``(1/n_t + 1/n_c)/2`` (single arm
-        ``1/(2n)``) is taken off the observed difference.
+        Yates' correction for ``"z"`` / ``"unpooled_z"`` / ``"chi_square"``: ``(1/n_t +
+        1/n_c)/2`` (single arm ``1/(2n)``) is taken off the observed difference.
     better
         ``"higher"`` (response: default) or ``"lower"`` (an adverse outcome).
     control_prior
@@ -526,23 +531,23 @@ class BinaryEndpoint(Endpoint):
         check_choice(self.test, "test", owner, list(TESTS))
         if self.layout == "two_arm" and self.test == "exact_binomial":
             raise AssuranceInputError(
-                f"The 'test' parameter of {owner} must be 'z', 'chi_square' or 'fisher_exact' "
-                "for two arms ('exact_binomial' compares one arm with a reference). Got "
-                "'exact_binomial' instead.")
-        if self.layout == "single_arm" and self.test == "fisher_exact":
+                f"The 'test' parameter of {owner} must be 'z', 'unpooled_z', 'chi_square' or "
+                "'fisher_exact' for two arms ('exact_binomial' compares one arm with a "
+                "reference). Got 'exact_binomial' instead.")
+        if self.layout == "single_arm" and self.test in ("fisher_exact", "unpooled_z"):
             raise AssuranceInputError(
                 f"The 'test' parameter of {owner} must be 'z', 'chi_square' or "
-                "'exact_binomial' for a single arm (Fisher's test compares two arms). Got "
-                "'fisher_exact' instead.")
+                f"'exact_binomial' for a single arm ({self.test!r} compares two arms). Got "
+                f"{self.test!r} instead.")
         if not isinstance(self.continuity_correction, bool | np.bool_):
             raise AssuranceInputError(
                 f"The 'continuity_correction' parameter of {owner} must be true or false. "
                 f"Got {self.continuity_correction!r} instead.")
-        if self.continuity_correction and self.test not in ("z", "chi_square"):
+        if self.continuity_correction and self.test not in ("z", "unpooled_z", "chi_square"):
             raise AssuranceInputError(
                 f"The 'continuity_correction' parameter of {owner} must be false with the "
-                f"exact test {self.test!r} (it applies to 'z' and 'chi_square'). Got True "
-                "instead.")
+                f"exact test {self.test!r} (it applies to 'z', 'unpooled_z' and "
+                "'chi_square'). Got True instead.")
         check_choice(self.better, "better", owner, ["higher", "lower"])
         if self.control_prior is not None:
             if self.layout == "single_arm":
@@ -754,11 +759,12 @@ class _BinaryCalculator(SuccessCalculator):
         ep = self.ep
         margin = float(rule.margin)
         if margin > 0 and ep.layout == "two_arm":
-            if ep.scale != "difference" or ep.test != "z":
+            if ep.scale != "difference" or ep.test not in ("z", "unpooled_z"):
                 raise AssuranceInputError(
                     "A non-inferiority margin with two arms needs the z test on the difference "
-                    "scale (Farrington-Manning); got test "
-                    f"{ep.test!r} on the {ep.scale!r} scale. Use scale='difference', test='z'.")
+                    "scale (Farrington-Manning, or the unpooled Wald test); got test "
+                    f"{ep.test!r} on the {ep.scale!r} scale. Use scale='difference', test='z' "
+                    "or 'unpooled_z'.")
         spec = TestSpec(test=ep.test, alpha=rule.one_sided_alpha, sign=self.sign,
                         scale=ep.scale, two_arm=ep.layout == "two_arm",
                         null_shift=-self.sign * margin if margin else 0.0,
@@ -972,11 +978,11 @@ class _BinaryCalculator(SuccessCalculator):
         return value >= cut.value if cut.inclusive else value > cut.value
 
     # ---- exact pieces ---------------------------------------------------------------------
-    def _region(self, n_t: int, n_c: int) -> np.ndarray:
+    def _region(self, n_t: int, n_c: int) -> SuccessRegion:
         key = (n_t, n_c)
         region = self._regions.get(key)
         if region is None:
-            region = success_region(self.spec, n_t, n_c).astype(float)
+            region = success_runs(self.spec, n_t, n_c)
             if len(self._regions) >= 128:
                 self._regions.pop(next(iter(self._regions)))
             self._regions[key] = region
@@ -988,40 +994,40 @@ class _BinaryCalculator(SuccessCalculator):
             return binomial_pmf(n, arm.value)[0]
         return beta_binomial_pmf(n, arm.a, arm.b)
 
-    def _exact_nodes(self, region: np.ndarray, n_t: int, n_c: int, nodes: _Nodes) -> float:
+    def _exact_nodes(self, region: SuccessRegion, n_t: int, n_c: int, nodes: _Nodes) -> float:
         """sum of weight x exact power at each node (binomial probabilities per arm)."""
-        rb = region @ binomial_pmf(n_c, nodes.control).T  # (n_t + 1, K)
+        rb = region.by_treatment(binomial_pmf(n_c, nodes.control))  # (K, n_t + 1)
         total = 0.0
         for start in range(0, nodes.treatment.size, 4096):
             sl = slice(start, start + 4096)
             pmf_t = binomial_pmf(n_t, nodes.treatment[sl])
-            power = np.einsum("ix,ix->i", pmf_t, rb[:, nodes.index[sl]].T)
+            power = np.einsum("ix,ix->i", pmf_t, rb[nodes.index[sl]])
             total += float(np.dot(nodes.weight[sl], power))
         return total
 
-    def _beta_exact(self, part: BetaRates, region: np.ndarray, n_t: int, n_c: int,
+    def _beta_exact(self, part: BetaRates, region: SuccessRegion, n_t: int, n_c: int,
                     cut: Any) -> float:
         """Exact P(success [and benefit > cut]) under a BetaRates part."""
         pmf_t = self._arm_pmf(part.treatment_arm, n_t)
         pmf_c = self._arm_pmf(part.control_arm, n_c)
         if cut is None:
-            return float(pmf_t @ region @ pmf_c)
+            return region.probability(pmf_t, pmf_c)
         if part.control_arm.fixed and part.treatment_arm.fixed:
-            return float(pmf_t @ region @ pmf_c) if self._fixed_in_cut(part, cut) else 0.0
+            return region.probability(pmf_t, pmf_c) if self._fixed_in_cut(part, cut) else 0.0
         outer_control, outer, inner = self._beta_orientation(part)
         k = _node_count(outer.sd, max(n_t, n_c))
         q, w, boundary = self._outer_for_cut(part, cut, k)
         if outer_control:  # P(x_t, x_c, region) = sum_k w_k bb_t(x_t) S(x_t | q_k) bin(x_c; q_k)
-            rb = region @ binomial_pmf(n_c, q).T
+            rb = region.by_treatment(binomial_pmf(n_c, q))
             n_in, pmf_in = n_t, pmf_t
             above = self.sign > 0
         else:
-            rb = region.T @ binomial_pmf(n_t, q).T
+            rb = region.by_control(binomial_pmf(n_t, q))
             n_in, pmf_in = n_c, pmf_c
             above = self.sign < 0
         below = posterior_below(inner.a, inner.b, n_in, boundary)
         tail = 1.0 - below if above else below
-        return float(np.einsum("k,x,xk,xk->", w, pmf_in, tail, rb))
+        return float(np.einsum("k,x,xk,kx->", w, pmf_in, tail, rb))
 
     # ---- the SuccessCalculator interface --------------------------------------------------
     def _one_size(self, n_t: int, n_c: int, cut: Any) -> float:
@@ -1084,7 +1090,7 @@ class _BinaryCalculator(SuccessCalculator):
         for i, (a, b) in enumerate(zip(n_t.tolist(), n_c.tolist(), strict=True)):
             if self.ep.exact_at(a, b):
                 region = self._region(a, b)
-                out[i] = float(binomial_pmf(a, p_t)[0] @ region @ binomial_pmf(b, p_c)[0])
+                out[i] = region.probability(binomial_pmf(a, p_t)[0], binomial_pmf(b, p_c)[0])
             else:
                 out[i] = float(normal_power(self.spec, p_t, p_c, a, b))
         return np.clip(out, 0.0, 1.0)
