@@ -357,10 +357,13 @@ def test_property_point_mass_gives_classical_power(effect, se, alpha):
 # bad input
 # ------------------------------------------------------------------------------------------
 @pytest.mark.parametrize(("kwargs", "match"), [
+    # the range stated is the range accepted: (0, 1], for every refused value
     ({"power_weight": 1.5}, r"'power_weight' parameter of prior_from_estimate must be a "
-                            r"number in \[0, 1\]"),
-    ({"power_weight": -0.1}, "'power_weight' parameter"),
-    ({"power_weight": 0.0}, r"must be in \(0, 1\]: 0 discards"),
+                            r"number in \(0, 1\]\. Got 1\.5"),
+    ({"power_weight": -0.1}, r"'power_weight' parameter .* in \(0, 1\]\. Got -0\.1"),
+    ({"power_weight": 0.0}, r"must be a number in \(0, 1\]: 0 would discard"),
+    ({"power_weight": 0}, r"must be a number in \(0, 1\]: 0 would discard"),
+    ({"power_weight": float("nan")}, r"'power_weight' parameter .* in \(0, 1\]\. Got nan"),
     ({"shrinkage": 1.2}, "'shrinkage' parameter"),
     ({"robust_weight": -0.2}, "'robust_weight' parameter"),
     ({"robust_weight": 0.8}, "'vague_sd' parameter .* robust_weight"),

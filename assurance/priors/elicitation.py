@@ -37,7 +37,7 @@ from dataclasses import dataclass, field, replace
 from typing import Any, Literal
 
 import numpy as np
-from scipy import optimize, special, stats
+from scipy import special
 
 from .._validation import check_choice, check_real
 from ..errors import AssuranceInputError, AssuranceWarning
@@ -75,7 +75,11 @@ class Beta(_Continuous):
     def __init__(self, a: float, b: float):
         self.a = check_real(a, "a", "Beta", low=0, low_open=True)
         self.b = check_real(b, "b", "Beta", low=0, low_open=True)
-        self._dist = stats.beta(self.a, self.b)
+
+    def _make_dist(self) -> Any:
+        from scipy import stats
+
+        return stats.beta(self.a, self.b)
 
     def to_dict(self) -> dict[str, Any]:
         return {"family": "beta", "a": self.a, "b": self.b}
@@ -98,7 +102,11 @@ class Gamma(_Continuous):
     def __init__(self, shape: float, rate: float):
         self.shape = check_real(shape, "shape", "Gamma", low=0, low_open=True)
         self.rate = check_real(rate, "rate", "Gamma", low=0, low_open=True)
-        self._dist = stats.gamma(self.shape, scale=1.0 / self.rate)
+
+    def _make_dist(self) -> Any:
+        from scipy import stats
+
+        return stats.gamma(self.shape, scale=1.0 / self.rate)
 
     def to_dict(self) -> dict[str, Any]:
         return {"family": "gamma", "shape": self.shape, "rate": self.rate}
@@ -512,6 +520,8 @@ def _fit_family(spec: _Spec, statements: tuple[Statement, ...]
         order = np.argsort(hi)
         theta = spec.closed_form(hi[order], p[order])
         return theta, float(np.sum(res(theta) ** 2)), "closed form"
+    from scipy import optimize
+
     centre, spread = _normal_start(lo, hi, p)
     starts = []
     for mult in (1.0, 0.3, 3.0):

@@ -36,7 +36,7 @@ from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Any, Literal
 
 import numpy as np
-from scipy import optimize, special
+from scipy import special
 
 from .._validation import check_choice, check_int, check_real, check_real_array
 from ..errors import AssuranceInputError, AssuranceWarning
@@ -353,12 +353,13 @@ def prior_from_estimate(
                 "number. Got None instead."
             )
         se_value = check_real(se, "se", owner, low=0, low_open=True)
-    a0 = check_real(power_weight, "power_weight", owner, low=0, high=1)
-    if a0 == 0:
+    if isinstance(power_weight, int | float | np.integer | np.floating) and \
+            not isinstance(power_weight, bool) and power_weight == 0:
         raise AssuranceInputError(
-            f"The 'power_weight' parameter of {owner} must be in (0, 1]: 0 discards the "
-            "earlier trial entirely (use a vague prior instead). Got 0 instead."
+            f"The 'power_weight' parameter of {owner} must be a number in (0, 1]: 0 would "
+            "discard the earlier trial entirely (use a vague prior instead). Got 0 instead."
         )
+    a0 = check_real(power_weight, "power_weight", owner, low=0, low_open=True, high=1)
     factor = check_real(shrinkage, "shrinkage", owner, low=0, high=1)
     w = check_real(robust_weight, "robust_weight", owner, low=0, high=1)
     informative = Normal(factor * value, se_value / math.sqrt(a0))
@@ -471,6 +472,8 @@ def _tau2_pm(y: np.ndarray, v: np.ndarray) -> float:
 
     if excess(0.0) <= 0:
         return 0.0
+    from scipy import optimize  # about 0.3 s to import: only when a root is needed
+
     hi = max(float(np.var(y)), float(np.max(v)), 1e-12)
     while excess(hi) > 0:  # the generalised Q statistic falls as tau^2 grows
         hi *= 2.0
@@ -940,6 +943,8 @@ def _mixture_quantile(parts: list[tuple[float, float, float]], se: float, q: flo
     hi = max(m + t * z for _, m, t in scales)
     if hi - lo < 1e-300:
         return lo
+    from scipy import optimize
+
     return float(optimize.brentq(excess, lo, hi, xtol=1e-13 * max(1.0, abs(hi)), rtol=1e-13))
 
 
