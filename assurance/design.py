@@ -20,6 +20,8 @@ __all__ = ["TrialDesign"]
 
 #: Smallest prior probability of the relevant region for which conditional figures are given.
 MIN_RELEVANT_MASS = 1e-6
+#: Longest title (characters); the design file's schema has the same bound.
+MAX_TITLE = 200
 
 
 @dataclass(frozen=True)
@@ -159,8 +161,21 @@ class TrialDesign:
         if not isinstance(self.title, str) or not self.title.strip():
             raise AssuranceInputError(
                 f"The 'title' parameter of {owner} must be a non-empty string. "
-                f"Got {self.title!r} instead."
+                f"Got {self.title!r:.80} instead."
             )
+        if len(self.title) > MAX_TITLE:
+            raise AssuranceInputError(
+                f"The 'title' parameter of {owner} must be at most {MAX_TITLE} characters "
+                f"(a name for the memo). Got {len(self.title):,} characters, starting "
+                f"{self.title[:40]!r}, instead."
+            )
+        for i, ch in enumerate(self.title):  # C0 and C1 controls, DEL, lone surrogates
+            if (ch < " " and ch != "\t") or "\x7f" <= ch <= "\x9f" or "\ud800" <= ch <= "\udfff":
+                raise AssuranceInputError(
+                    f"The 'title' parameter of {owner} must be plain text without control "
+                    f"characters; character {i + 1} is {ascii(ch)}. Got {self.title!r:.80} "
+                    "instead."
+                )
 
     # ---- the benefit scale (larger is better) used by all computations ---------------------
     @property
