@@ -407,3 +407,11 @@ def test_a_run_killed_in_the_middle_of_the_swap_loses_nothing(tmp_path, design):
     assert main(["plan", str(design), "--out", str(tmp_path / "other"), "--quiet"]) == 0
     assert _digest(out) == before  # put back by the next run into the same parent
     assert [n for n in _hidden(tmp_path) if n.endswith(".assurance-tmp")] == []
+
+
+@pytest.mark.parametrize("name", [".out.assurance-tmp", ".assurance-output"])
+def test_names_kept_for_the_packages_own_files_are_refused(tmp_path, design, capsys, name,
+                                                           no_computing):
+    _refused(capsys, ["plan", str(design), "--out", str(tmp_path / name)],
+             "keeps for its own files")
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["design.toml"]

@@ -157,6 +157,10 @@ def _check_destination(out: Path, overwrite: bool, keep: Sequence[Path],
         raise AssuranceInputError(
             f"The output folder {shown!r} is the root of the file system; choose a new "
             "folder for the results.")
+    if out.name.endswith(_TMP_SUFFIX) or out.name == MARKER:
+        raise AssuranceInputError(
+            f"The output folder {shown!r} has a name assurance keeps for its own files (ending "
+            f"in {_TMP_SUFFIX!r}, or {MARKER!r}); choose another name.")
     if os.path.lexists(out):
         reason = _why_not_replaceable(out, keep)
         if reason is not None:
