@@ -485,6 +485,89 @@ def test_logrank_by_row_matches_scipy():
         assert o_e[i] / math.sqrt(var[i]) == pytest.approx(ref, rel=1e-10)
 
 
+@pytest.mark.parametrize("piecewise_hazards", [False, True])
+def test_logrank_on_simulated_trials_matches_scipy(piecewise_hazards):
+    # data sets from the package's own generator (entry ramp, dropout, administrative
+    # censoring; exponential or piecewise hazards); reference: scipy.stats.logrank on
+    # scipy.stats.CensoredData, trial by trial. Both compute the same sums in floating
+    # point (rel 1e-10 leaves room for rounding in the order of summation).
+    from assurance.simulation.survival import _draw, _follow_up
+
+    kw = dict(control_median=None, control_hazard=[0.02, 0.08, 0.04],
+              hazard_starts=[0.0, 3.0, 12.0]) if piecewise_hazards else {}
+    ep = base(accrual_ramp=6.0, dropout_per_year=0.15, **kw)
+    n_t, n_c, rows = 37, 51, 12
+    rng = np.random.default_rng(8)
+    times, events = _follow_up(ep, *_draw(ep, rows, n_t + n_c, rng), np.full(rows, 0.7),
+                               np.linspace(0.8, 1.25, rows), n_t)
+    treated = np.arange(n_t + n_c) < n_t
+    o_e, var = logrank_by_row(times, events, treated)
+    assert events.any(axis=1).all() and not events.all()
+    for i in range(rows):
+        arms = [stats.CensoredData(uncensored=times[i, m & events[i]],
+                                   right=times[i, m & ~events[i]]) for m in (treated, ~treated)]
+        ref = stats.logrank(arms[0], arms[1]).statistic
+        assert o_e[i] / math.sqrt(var[i]) == pytest.approx(ref, rel=1e-10)
+
+
+def test_logrank_by_row_any_arm_pattern_and_signs():
+    # the treatment arm need not come first, and the time order must survive negative
+    # values (times shifted by a constant: the log-rank test depends on their order only);
+    # reference: scipy.stats.logrank on the unshifted times
+    rng = np.random.default_rng(12)
+    n = 45
+    times = rng.exponential(size=(5, n))
+    events = rng.uniform(size=times.shape) < 0.6
+    treated = rng.uniform(size=n) < 0.4
+    o_e, var = logrank_by_row(times - 0.7, events, treated)
+    for i in range(times.shape[0]):
+        arms = [stats.CensoredData(uncensored=times[i, m & events[i]],
+                                   right=times[i, m & ~events[i]]) for m in (treated, ~treated)]
+        ref = stats.logrank(arms[0], arms[1]).statistic
+        assert o_e[i] / math.sqrt(var[i]) == pytest.approx(ref, rel=1e-10)
+    # Fortran-ordered input is read in the same order
+    o_f, var_f = logrank_by_row(np.asfortranarray(times), events, treated)
+    o_c, var_c = logrank_by_row(times, events, treated)
+    np.testing.assert_array_equal(o_f, o_c)
+    np.testing.assert_array_equal(var_f, var_c)
+    with pytest.raises(AssuranceInputError, match="'treated'.*45 flags"):
+        logrank_by_row(times, events, treated[:-1])
+    with pytest.raises(AssuranceInputError, match="'events'"):
+        logrank_by_row(times, events[:2], treated)
+    with pytest.raises(AssuranceInputError, match="'times'.*2-D"):
+        logrank_by_row(times[0], events[0], treated)
+
+
+def test_seeds_give_the_numbers_they_gave_before():
+    # The random stream is part of the interface: a seed gives the same trials as before the
+    # speed-up of the log-rank simulation (values recorded with the implementation at commit
+    # f152015; success counts and event totals are whole numbers, so equality is exact up to
+    # the final division).
+    ep = base(dropout_per_year=0.1, accrual_ramp=6.0)
+    res = simulate_trials(ep, 0.7, 40, 30, trials=1500, seed=9)
+    assert (res.success_rate, res.mean_events) == (0.224, 41.444)
+    res = simulate_trials(base(), 0.75, 100, 100, trials=3000, seed=1)
+    assert round(res.success_rate * 3000) == 1162 and round(res.mean_events * 3000) == 407548
+    design = TrialDesign(base(median_prior=Uniform(8.0, 16.0)), Normal(math.log(0.8), 0.15))
+    res = simulate_assurance(design, 400, trials=1000, seed=5)
+    assert (res.success_rate, res.mean_events) == (0.47, 278.791)
+
+
+def test_results_do_not_depend_on_the_working_block(monkeypatch):
+    # trials are analysed in cache-sized pieces of the blocks whose random numbers are drawn
+    # together; the piece size must not change any trial (several blocks and pieces here)
+    import assurance.simulation.survival as sim
+
+    ep = base(dropout_per_year=0.1)
+    first = simulate_trials(ep, 0.8, 90, 70, trials=3500, seed=4)
+    monkeypatch.setattr(sim, "_CHUNK", 1_000)
+    second = simulate_trials(ep, 0.8, 90, 70, trials=3500, seed=4)
+    monkeypatch.setattr(sim, "_CHUNK", 10**9)
+    third = simulate_trials(ep, 0.8, 90, 70, trials=3500, seed=4)
+    assert first.success_rate == second.success_rate == third.success_rate
+    assert first.mean_events == second.mean_events == third.mean_events
+
+
 def test_engines_agree_trial_by_trial():
     ep = base(dropout_per_year=0.1, accrual_ramp=6.0)
     a = simulate_trials(ep, 0.7, 40, 30, trials=150, seed=9, engine="numpy")

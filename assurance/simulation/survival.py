@@ -30,8 +30,11 @@ from ..rules.significance import Significance
 __all__ = ["SimulationResult", "simulate_trials", "simulate_assurance", "logrank_by_row"]
 
 Engine = Literal["numpy", "scipy"]
-#: patients (trials x patients) generated at once
+#: patients (trials x patients) whose random numbers are drawn at once; it fixes which
+#: numbers each trial gets, so the same seed gives the same trials
 _BLOCK = 250_000
+#: patients analysed at once (working arrays that stay in the processor's cache)
+_CHUNK = 16_384
 
 
 @dataclass(frozen=True)
@@ -94,6 +97,12 @@ def logrank_by_row(times: np.ndarray, events: np.ndarray, treated: np.ndarray
     ``N_tj (N_j - N_tj) / N_j^2`` to ``V`` (Mantel 1966; the variance of scipy.stats.logrank
     with one event per time).
 
+    Each row is put in time order by one value sort: a time's bit pattern (an integer
+    increasing with the time) carries the patient's arm and event flag in its last two bits.
+    This reorders only times within four units in the last place of each other (ties, in
+    practice, which continuous times do not have), and is several times faster than sorting
+    an index and gathering the flags with it.
+
     Examples
     --------
     >>> t = np.array([[1.0, 2.0, 3.0, 4.0]])
@@ -103,16 +112,45 @@ def logrank_by_row(times: np.ndarray, events: np.ndarray, treated: np.ndarray
     >>> round(float(o_e[0] / np.sqrt(v[0])), 4)  # scipy.stats.logrank gives 1.6977
     1.6977
     """
-    order = np.argsort(times, axis=1, kind="stable")
-    ev = np.take_along_axis(events, order, axis=1)
-    tr = treated[order]
+    times = np.asarray(times, dtype=float)
+    events = np.asarray(events, dtype=bool)
+    treated = np.asarray(treated, dtype=bool)
+    owner = "logrank_by_row"
+    if times.ndim != 2 or times.shape[1] == 0:
+        raise AssuranceInputError(f"The 'times' parameter of {owner} must be a 2-D array "
+                                  f"(trials, patients). Got shape {times.shape} instead.")
+    if events.shape != times.shape:
+        raise AssuranceInputError(f"The 'events' parameter of {owner} must have the shape of "
+                                  f"'times' {times.shape}. Got shape {events.shape} instead.")
+    if treated.shape != times.shape[1:]:
+        raise AssuranceInputError(f"The 'treated' parameter of {owner} must be a vector of "
+                                  f"{times.shape[1]} flags, one per patient. Got shape "
+                                  f"{treated.shape} instead.")
     n = times.shape[1]
-    at_risk = n - np.arange(n, dtype=float)
-    treat_at_risk = treated.sum() - (np.cumsum(tr, axis=1) - tr)
-    frac = treat_at_risk / at_risk
-    o_minus_e = np.sum(ev * (tr - frac), axis=1)
-    var = np.sum(ev * frac * (1.0 - frac), axis=1)
-    return o_minus_e, var
+    key = _sort_key(times)
+    key |= events
+    key |= treated.astype(np.int64) << 1
+    key.sort(axis=1)
+    flags = (key & 3).astype(np.int8)
+    tr = flags >> 1
+    ev = (flags & 1).astype(float)
+    before = np.cumsum(tr, axis=1, dtype=np.int32)
+    before -= tr                                    # treated patients earlier in the order
+    frac = (int(treated.sum()) - before) * (1.0 / (n - np.arange(n, dtype=float)))
+    ev *= frac                                      # frac at each event, 0 elsewhere
+    expected = ev.sum(axis=1)
+    var = expected - np.einsum("ij,ij->i", ev, frac)
+    observed = np.count_nonzero(flags == 3, axis=1)  # treatment events
+    return observed - expected, var
+
+
+def _sort_key(times: np.ndarray) -> np.ndarray:
+    """int64 keys in the order of the times (sign handled), last two bits cleared."""
+    bits = times.view(np.int64) if times.flags.c_contiguous else \
+        np.ascontiguousarray(times).view(np.int64)
+    key = bits ^ ((bits >> 63) & np.int64(0x7FFFFFFFFFFFFFFF))
+    key &= np.int64(~3)
+    return key
 
 
 def _check_common(endpoint: Any, n_t: Any, n_c: Any, trials: Any, engine: Any, owner: str):
@@ -148,27 +186,41 @@ def _rng(seed: Any, owner: str) -> np.random.Generator:
     return np.random.default_rng(seed)
 
 
-def _generate(endpoint: Any, ratio: np.ndarray, scale: np.ndarray, n_t: int, n_c: int,
-              rng: np.random.Generator) -> tuple[np.ndarray, np.ndarray]:
-    """Follow-up times and event flags (rows = trials; first ``n_t`` columns on treatment).
+def _draw(endpoint: Any, rows: int, n: int, rng: np.random.Generator
+          ) -> tuple[np.ndarray, np.ndarray, np.ndarray | None]:
+    """The random numbers of ``rows`` trials: entry, event and dropout draws, in this order
+    (the order fixes what a seed gives)."""
+    q = rng.random((rows, n))  # the same numbers as rng.uniform(size=(rows, n))
+    hazard_draw = rng.standard_exponential((rows, n))
+    dropout_draw = (rng.standard_exponential((rows, n)) if endpoint.dropout_hazard > 0
+                    else None)
+    return q, hazard_draw, dropout_draw
 
-    ``ratio`` and ``scale`` are per-trial hazard ratio and control-hazard multiplier.
-    """
-    rows, n = ratio.size, n_t + n_c
+
+def _follow_up(endpoint: Any, q: np.ndarray, hazard_draw: np.ndarray,
+               dropout_draw: np.ndarray | None, ratio: np.ndarray, scale: np.ndarray,
+               n_t: int) -> tuple[np.ndarray, np.ndarray]:
+    """Follow-up times and event flags from the draws (rows = trials; first ``n_t`` columns
+    on treatment); ``ratio`` and ``scale`` are per-trial hazard ratio and control-hazard
+    multiplier. Works in place on the draws."""
     a_time, ramp = endpoint.accrual_time, endpoint.accrual_ramp
     c = 1.0 / (a_time - ramp / 2.0)
-    q = rng.uniform(size=(rows, n))
     # inverse of the entry distribution: c u^2 / (2R) on the ramp, then linear
-    entry = np.where(q <= c * ramp / 2.0, np.sqrt(2.0 * ramp * q / c), q / c + ramp / 2.0)
-    hazard_mult = np.ones((rows, n)) * scale[:, None]
-    hazard_mult[:, :n_t] *= ratio[:, None]
-    event_time = endpoint._inverse_cumulative_hazard(rng.standard_exponential((rows, n)),
-                                                     hazard_mult)
-    eta = endpoint.dropout_hazard
-    dropout = rng.standard_exponential((rows, n)) / eta if eta > 0 else np.inf
-    censor = np.minimum(endpoint.analysis_time - entry, dropout)
+    if ramp > 0:
+        entry = np.where(q <= c * ramp / 2.0, np.sqrt(2.0 * ramp * q / c), q / c + ramp / 2.0)
+    else:
+        entry = np.divide(q, c, out=q)
+    # the event time inverts scale * ratio * Lambda_control at a standard exponential draw
+    hazard_draw[:, :n_t] /= (scale * ratio)[:, None]
+    if np.any(scale != 1.0):
+        hazard_draw[:, n_t:] /= scale[:, None]
+    event_time = endpoint._inverse_cumulative_hazard(hazard_draw)
+    censor = np.subtract(endpoint.analysis_time, entry, out=entry)
+    if dropout_draw is not None:
+        dropout_draw /= endpoint.dropout_hazard
+        np.minimum(censor, dropout_draw, out=censor)
     events = event_time <= censor
-    return np.where(events, event_time, censor), events
+    return np.minimum(event_time, censor, out=censor), events
 
 
 def _run(endpoint: Any, ratio: np.ndarray, scale: np.ndarray, n_t: int, n_c: int,
@@ -177,32 +229,38 @@ def _run(endpoint: Any, ratio: np.ndarray, scale: np.ndarray, n_t: int, n_c: int
     n = n_t + n_c
     treated = np.arange(n) < n_t
     block = max(1, _BLOCK // n)
+    chunk = max(1, _CHUNK // n)
     success = np.zeros(ratio.size, dtype=bool)
     n_events = np.zeros(ratio.size)
     z_crit = rule.critical_z()
     sign = endpoint.sign
     alternative = "less" if endpoint.better == "lower" else "greater"
     for lo in range(0, ratio.size, block):
-        sl = slice(lo, min(lo + block, ratio.size))
-        times, events = _generate(endpoint, ratio[sl], scale[sl], n_t, n_c, rng)
-        o_minus_e, var = logrank_by_row(times, events, treated)
-        n_events[sl] = events.sum(axis=1)
-        ok = var > 0
-        safe = np.where(ok, var, 1.0)
-        estimate = sign * o_minus_e / safe          # benefit scale (Peto one-step)
-        if engine == "numpy":
-            passed = ok & (sign * o_minus_e / np.sqrt(safe) > z_crit)
-        else:
-            passed = np.zeros(times.shape[0], dtype=bool)
-            for i in range(times.shape[0]):
-                arms = [stats.CensoredData(uncensored=times[i, m & events[i]],
-                                           right=times[i, m & ~events[i]])
-                        for m in (treated, ~treated)]
-                p = stats.logrank(arms[0], arms[1], alternative=alternative).pvalue
-                passed[i] = bool(p < rule.one_sided_alpha)
-        if rule.min_estimate is not None:
-            passed &= ok & (estimate > rule.min_estimate)
-        success[sl] = passed
+        hi = min(lo + block, ratio.size)
+        draws = _draw(endpoint, hi - lo, n, rng)
+        for c_lo in range(lo, hi, chunk):
+            sl = slice(c_lo, min(c_lo + chunk, hi))
+            rows = slice(sl.start - lo, sl.stop - lo)
+            times, events = _follow_up(endpoint, *(d if d is None else d[rows] for d in draws),
+                                       ratio[sl], scale[sl], n_t)
+            n_events[sl] = np.count_nonzero(events, axis=1)
+            o_minus_e, var = logrank_by_row(times, events, treated)
+            ok = var > 0
+            safe = np.where(ok, var, 1.0)
+            estimate = sign * o_minus_e / safe          # benefit scale (Peto one-step)
+            if engine == "numpy":
+                passed = ok & (sign * o_minus_e / np.sqrt(safe) > z_crit)
+            else:
+                passed = np.zeros(times.shape[0], dtype=bool)
+                for i in range(times.shape[0]):
+                    arms = [stats.CensoredData(uncensored=times[i, m & events[i]],
+                                               right=times[i, m & ~events[i]])
+                            for m in (treated, ~treated)]
+                    p = stats.logrank(arms[0], arms[1], alternative=alternative).pvalue
+                    passed[i] = bool(p < rule.one_sided_alpha)
+            if rule.min_estimate is not None:
+                passed &= ok & (estimate > rule.min_estimate)
+            success[sl] = passed
     seconds = time.perf_counter() - start
     rate = float(success.mean())
     return SimulationResult(success_rate=rate,
