@@ -415,3 +415,12 @@ def test_names_kept_for_the_packages_own_files_are_refused(tmp_path, design, cap
     _refused(capsys, ["plan", str(design), "--out", str(tmp_path / name)],
              "keeps for its own files")
     assert sorted(p.name for p in tmp_path.iterdir()) == ["design.toml"]
+
+
+def test_an_empty_folder_made_beforehand_is_used_with_overwrite(tmp_path, design, capsys):
+    out = tmp_path / "results"
+    out.mkdir()
+    _refused(capsys, ["plan", str(design), "--out", str(out)], "already exists",
+             "--overwrite")
+    assert main(["plan", str(design), "--out", str(out), "--quiet", "--overwrite"]) == 0
+    assert _complete(out)

@@ -131,6 +131,8 @@ def _why_not_replaceable(out: Path, keep: Sequence[Path]) -> str | None:
     for path in keep:
         if _within(path, out):
             return f"holds the design file {str(path)!r}"
+    if not any(out.iterdir()):
+        return None  # an empty folder: nothing in it can be lost
     listed = _marker_files(out)
     if listed is None:
         return (f"was not written by assurance (it has no {MARKER} file listing the files "
@@ -435,7 +437,7 @@ class OutputClaim:
         try:
             os.rename(out, aside)
             listed = _marker_files(aside)
-            if listed is None or _foreign_entries(aside, listed):
+            if any(aside.iterdir()) and (listed is None or _foreign_entries(aside, listed)):
                 raise AssuranceInputError(
                     f"The output folder {self.shown!r} changed while the results were being "
                     "written and now holds files assurance did not write; it was left as it "
