@@ -206,15 +206,14 @@ class _Progress:
         if self.quiet:
             return
         if done is None or total is None:
-            print(f"[{time.perf_counter() - self.start:5.1f}s] {text}", file=sys.stderr,
-                  flush=True)
+            _say(f"[{time.perf_counter() - self.start:5.1f}s] {text}", err=True)
         elif total < 2:
             return
         elif self.live:
-            print(f"\r        {text}: {done}/{total}", end="" if done < total else "\n",
+            print(f"\r        {_visible(text)}: {done}/{total}", end="" if done < total else "\n",
                   file=sys.stderr, flush=True)
         elif done == total:
-            print(f"        {text}: {total} chunks done", file=sys.stderr, flush=True)
+            _say(f"        {text}: {total} chunks done", err=True)
 
 
 def _plan(args: argparse.Namespace) -> int:

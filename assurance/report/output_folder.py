@@ -31,7 +31,7 @@ import shutil
 import socket
 import tempfile
 import time
-from collections.abc import Iterable, Sequence
+from collections.abc import Iterable, Iterator, Sequence
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
@@ -472,7 +472,7 @@ class OutputClaim:
 
 
 @contextlib.contextmanager
-def _signals_held() -> Any:
+def _signals_held() -> Iterator[None]:
     """Hold back SIGINT, SIGTERM and SIGHUP (where possible) for a few renames."""
     import signal
 
@@ -585,8 +585,8 @@ def write_outputs(out: str | os.PathLike[str], plan: Plan, *, overwrite: bool = 
     formats
         Figure formats to write: ``"png"``, ``"svg"`` or both.
     claim
-        The folder as claimed before computing (:func:`claim_output_folder`); without it,
-        the folder is checked and claimed here.
+        The folder as claimed before computing (:func:`claim_output_folder`, whose
+        ``overwrite`` then applies); without it, the folder is checked and claimed here.
 
     Returns
     -------
