@@ -1,32 +1,39 @@
 """Success probabilities for a trial whose estimate is normal given the truth.
 
-This is where a rule's thresholds meet a prior. Three routes, all returning the same
+This is where a rule's thresholds meet a prior. Four routes, all returning the same
 quantities (probability of success and of "success and effect above a cut"):
 
 * **known sigma, z analysis**: threshold ``c(n)``; closed form for normal priors, exact for
   point masses, adaptive quadrature for other priors (:mod:`.prior_predictive`);
-* **known sigma, t analysis**: the threshold depends on the sample SD; the expectation over
-  it uses the quadrature of :mod:`.sd_quadrature` on top of the first route;
-* **uncertain sigma** (a prior on sigma): Monte Carlo over (effect, sigma, sample SD), each
-  draw contributing its exact conditional success probability (Rao-Blackwellised), with the
-  Monte Carlo standard error of every figure.
+* **known sigma, t test** (:class:`~assurance.rules.significance.Significance`): the
+  non-central t distribution function for point masses and normal priors (power and
+  assurance in closed form); the joint probabilities of a normal prior, a minimum observed
+  effect, and other priors integrate over the sample SD with the feature-aware rule of
+  :mod:`.sd_quadrature`, or over the prior of the power curve;
+* **known sigma, other rules with a t analysis**: the general quadrature over the sample SD;
+* **uncertain sigma** (a prior on sigma): deterministic quadrature over a scaled inverse
+  chi-square prior (or point masses, or mixtures of these) when the effect prior is normal,
+  a point mass or a mixture of these and the rule is a significance test; otherwise Monte
+  Carlo over (effect, sigma, sample SD), each draw contributing its exact conditional success
+  probability (Rao-Blackwellised), with the Monte Carlo standard error of every figure.
 """
 
 from __future__ import annotations
 
 from collections.abc import Sequence
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
-from scipy import special
+from scipy import integrate, special, stats
 
-from ..priors.families import Prior
+from ..priors.families import Normal, PointMass, Prior, ScaledInvChiSquare
 from ..rules.significance import Significance
-from .prior_predictive import prob_estimate_above
-from .sd_quadrature import sd_ratio_nodes
+from .prior_predictive import prob_estimate_above, upper_orthant_normal
+from .sd_quadrature import flat_nodes, ratio_rule, sd_ratio_nodes
 
 __all__ = ["Cut", "SuccessProbabilities", "DrawAverages", "exact_success", "monte_carlo_success",
-           "EffectDraws"]
+           "EffectDraws", "nct_sf", "sd_prior_success", "sd_quadrature_covers"]
 
 
 @dataclass(frozen=True)
@@ -50,6 +57,58 @@ class SuccessProbabilities:
     joint_mcse: list[np.ndarray] | None = None
 
 
+def nct_sf(t: Any, df: Any, nc: Any) -> np.ndarray:
+    """``P(T > t)`` for a non-central t with ``df`` degrees of freedom and non-centrality ``nc``.
+
+    Parameters
+    ----------
+    t, df, nc
+        Broadcastable arrays; ``df > 0``.
+
+    Returns
+    -------
+    numpy.ndarray
+        Upper tail probabilities.
+
+    Notes
+    -----
+    ``T = (Z + nc) / sqrt(X / df)``, so ``P(T > t) = P(-T < -t)`` and ``-T`` is non-central t
+    with ``-nc``: the lower tail of scipy's ``nctdtr`` at ``(df, -nc, -t)`` keeps full
+    precision in the upper tail. Where that series does not converge (very large ``nc`` or
+    far tails; it returns NaN) the value comes from the quadrature over
+    ``r = sqrt(X / df)`` with a feature at ``r = nc / t`` (:func:`.sd_quadrature.ratio_rule`).
+
+    Examples
+    --------
+    >>> from scipy import stats
+    >>> p = nct_sf(stats.t.isf(1e-4, 5), 5.0, 4.6 * 6 ** 0.5)
+    >>> abs(float(p) - stats.nct.sf(stats.t.isf(1e-4, 5), 5, 4.6 * 6 ** 0.5)) < 1e-12
+    True
+    """
+    t, df, nc = np.broadcast_arrays(*(np.asarray(v, dtype=float) for v in (t, df, nc)))
+    with np.errstate(all="ignore"):
+        p = special.nctdtr(df, -nc, -t)
+    bad = ~np.isfinite(p)
+    if bad.any():
+        p = np.array(p, dtype=float)
+        p[bad] = _nct_sf_by_quadrature(t[bad], df[bad], nc[bad])
+    return np.clip(p, 0.0, 1.0)
+
+
+def _nct_sf_by_quadrature(t: np.ndarray, df: np.ndarray, nc: np.ndarray) -> np.ndarray:
+    """``E_r[Phi(nc - t r)]`` with the feature-aware rule (a step of width ``1/t`` at
+    ``nc / t``); ``t <= 0`` integrates a smooth function with the bulk panels alone."""
+    out = np.empty(t.size)
+    positive = t > 0
+    with np.errstate(divide="ignore", invalid="ignore"):
+        centre = np.where(positive, nc / t, np.nan)
+        width = np.where(positive, 1.0 / t, np.nan)
+    for g in ratio_rule(df, centre[None, :], width[None, :]):
+        c = g.columns
+        out[c] = np.sum(g.weight * special.ndtr(nc[c] - t[c] * g.ratio), axis=0)
+    return out
+
+
 def exact_success(
     prior: Prior,
     rule: Significance,
@@ -59,6 +118,7 @@ def exact_success(
     df: np.ndarray,
     analysis: str,
     cuts: Sequence[Cut] = (),
+    critical: Any = None,
 ) -> SuccessProbabilities:
     """Exact (closed form or quadrature) success probabilities with sigma known.
 
@@ -76,6 +136,18 @@ def exact_success(
         ``"z"`` (sigma known at analysis) or ``"t"`` (sigma estimated).
     cuts
         Effect regions for the joint probabilities.
+    critical
+        The rule's critical values for a t analysis (``rule.critical_t(df)``), when the
+        caller already has them; computed here otherwise.
+
+    Notes
+    -----
+    For a significance test analysed by t, success iff ``d > A + t s k`` with ``A = -M``,
+    and the sample SD ratio ``r = s / sigma`` is ``sqrt(chi2_df / df)`` independent of ``d``.
+    A point mass gives power ``P(T > t)`` for ``T`` non-central t with non-centrality
+    ``(delta - A) / se``; a normal prior ``N(m, v)`` makes ``d ~ N(m, tau^2)``,
+    ``tau^2 = v + se^2``, so assurance is ``P(T > t se / tau)`` with non-centrality
+    ``(m - A) / tau``.
 
     Examples
     --------
@@ -88,23 +160,141 @@ def exact_success(
     0.8074
     """
     se = sigma * np.asarray(se_factor, dtype=float)
+    df = np.asarray(df, dtype=float)
     if analysis == "z":
         c = rule.threshold(se, rule.critical_z())
 
         def prob(cut: Cut | None) -> np.ndarray:
             return prob_estimate_above(prior, c, se, effect_above=None if cut is None
                                        else cut.value, inclusive=bool(cut and cut.inclusive))
-    else:
-        kink = rule.kink_ratio(se, rule.critical_t(df))
-        ratio, weight = sd_ratio_nodes(df, kink=kink)
-        c = rule.threshold(se[None, :] * ratio, rule.critical_t(df[None, :]))
 
-        def prob(cut: Cut | None) -> np.ndarray:
-            inner = prob_estimate_above(prior, c, se[None, :], effect_above=None if cut is None
-                                        else cut.value, inclusive=bool(cut and cut.inclusive))
-            return np.clip(np.sum(weight * inner, axis=0), 0.0, 1.0)
+        return SuccessProbabilities(success=prob(None), joint=[prob(cut) for cut in cuts])
+    crit = rule.critical_t(df) if critical is None else critical
+    if isinstance(rule, Significance):
+        return _t_test(prior, rule, se, df, np.broadcast_to(np.asarray(crit, float), se.shape),
+                       list(cuts))
+    kink = rule.kink_ratio(se, crit)
+    ratio, weight = sd_ratio_nodes(df, kink=kink)
+    crit_nodes = tuple(np.asarray(c)[None, :] for c in crit) if isinstance(crit, tuple) \
+        else np.asarray(crit)[None, :]
+    c = rule.threshold(se[None, :] * ratio, crit_nodes)
 
-    return SuccessProbabilities(success=prob(None), joint=[prob(cut) for cut in cuts])
+    def prob_nodes(cut: Cut | None) -> np.ndarray:
+        inner = prob_estimate_above(prior, c, se[None, :], effect_above=None if cut is None
+                                    else cut.value, inclusive=bool(cut and cut.inclusive))
+        return np.clip(np.sum(weight * inner, axis=0), 0.0, 1.0)
+
+    return SuccessProbabilities(success=prob_nodes(None), joint=[prob_nodes(cut) for cut in cuts])
+
+
+def _in_cut(value: float, cut: Cut) -> bool:
+    return value >= cut.value if cut.inclusive else value > cut.value
+
+
+def _t_test(prior: Prior, rule: Significance, se: np.ndarray, df: np.ndarray,
+            crit: np.ndarray, cuts: list[Cut]) -> SuccessProbabilities:
+    """Success iff ``d > max(A + B r, e)``, ``B = t se``, ``r`` the sample SD ratio."""
+    low = rule.null_value
+    slope = crit * se
+    e = rule.min_estimate
+    kinked = e is not None and e > low
+    floor = (e - low) / slope if kinked else None
+    success = np.zeros(se.shape)
+    joint = [np.zeros(se.shape) for _ in cuts]
+
+    def threshold(cols: np.ndarray, ratio: np.ndarray) -> np.ndarray:
+        c = low + slope[cols] * ratio
+        return np.maximum(c, e) if kinked else c
+
+    def column_sums(cols: np.ndarray, values: np.ndarray) -> np.ndarray:
+        return np.bincount(cols, values, minlength=se.size)
+
+    for w, part in prior.parts():
+        if isinstance(part, PointMass):
+            delta = part.value
+            if not kinked:
+                p = nct_sf(crit, df, (delta - low) / se)
+            else:
+                col, ratio, weight = flat_nodes(ratio_rule(
+                    df, ((delta - low) / slope)[None, :], (1.0 / crit)[None, :], floor=floor))
+                p = column_sums(col, weight * special.ndtr(
+                    (delta - threshold(col, ratio)) / se[col]))
+            success += w * p
+            for j, cut in enumerate(cuts):
+                if _in_cut(delta, cut):
+                    joint[j] += w * p
+        elif isinstance(part, Normal):
+            m, sd = part.mu, part.sigma
+            tau = np.sqrt(sd * sd + se * se)
+            if not kinked:
+                success += w * nct_sf(crit * se / tau, df, (m - low) / tau)
+            if not (kinked or cuts):
+                continue
+            # features: where the threshold meets the prior mean (width tau) and, for each
+            # cut a, where it meets m + (a - m) tau^2 / v (width se tau / sd), the bend of the
+            # bivariate normal orthant
+            centres = [(m - low) / slope]
+            widths = [tau / slope]
+            for cut in cuts:
+                bend = m + (cut.value - m) * tau * tau / (sd * sd)
+                centres.append((bend - low) / slope)
+                widths.append(se * tau / (sd * slope))
+            col, ratio, weight = flat_nodes(ratio_rule(df, np.array(centres), np.array(widths),
+                                                       floor=floor))
+            h = (threshold(col, ratio) - m) / tau[col]
+            if kinked:
+                success += w * column_sums(col, weight * special.ndtr(-h))
+            if cuts:
+                # every cut in one evaluation of the orthant probabilities
+                edge = np.array([(cut.value - m) / sd for cut in cuts])[:, None]
+                both = upper_orthant_normal(np.broadcast_to(h, (len(cuts), h.size)), edge,
+                                            np.broadcast_to(sd / tau[col], h.shape))
+                for j in range(len(cuts)):
+                    joint[j] += w * column_sums(col, weight * both[j])
+        elif not kinked:
+            values = _power_over_prior(part, low, se, df, crit, cuts)
+            success += w * values[0]
+            for j in range(len(cuts)):
+                joint[j] += w * values[1 + j]
+        else:
+            ratio, weight = sd_ratio_nodes(df, kink=floor)
+            c = np.maximum(low + slope[None, :] * ratio, e)
+            for j, cut in enumerate([None, *cuts]):
+                inner = prob_estimate_above(part, c, se[None, :],
+                                            effect_above=None if cut is None else cut.value,
+                                            inclusive=bool(cut and cut.inclusive))
+                target = success if cut is None else joint[j - 1]
+                target += w * np.sum(weight * inner, axis=0)
+    return SuccessProbabilities(success=np.clip(success, 0.0, 1.0),
+                                joint=[np.clip(p, 0.0, 1.0) for p in joint])
+
+
+def _power_over_prior(part: Prior, low: float, se: np.ndarray, df: np.ndarray,
+                      crit: np.ndarray, cuts: list[Cut]) -> list[np.ndarray]:
+    """Power curve of the t test averaged over a continuous prior, by adaptive quadrature on
+    the probability scale ``u = F(delta)`` (bounded integrand, finite range); the places
+    where the curve rises (``delta = A + t se r`` for ``r`` across the sample SD ratio's
+    range) and the cuts are breakpoints. Rows: success, then each cut."""
+    u_cuts = [float(part.cdf(cut.value)) for cut in cuts]
+    ratios = np.array([0.0, 0.25, 0.5, 0.75, 1.0, 1.5, 2.0, 4.0])
+    rise = low + (crit * se)[None, :] * ratios[:, None]
+    centres = np.concatenate([rise.ravel(), (rise - 4 * se).ravel(), (rise + 4 * se).ravel()])
+    centres = np.unique(centres)
+    if centres.size > 150:
+        centres = np.quantile(centres, np.linspace(0.0, 1.0, 150))
+    u_points = np.unique(np.concatenate([np.asarray(part.cdf(centres), dtype=float),
+                                         u_cuts]))
+    points = [float(v) for v in u_points if 0.0 < v < 1.0]
+
+    def integrand(u: float) -> np.ndarray:
+        delta = part.ppf(min(max(u, 1e-300), 1 - 1e-16))
+        power = nct_sf(crit, df, (delta - low) / se)
+        return np.concatenate([power] + [power * (u > uc) for uc in u_cuts])
+
+    value, _err = integrate.quad_vec(integrand, 0.0, 1.0, epsabs=1e-11, epsrel=1e-10,
+                                     limit=4000, norm="max", points=points or None)
+    value = np.asarray(value).reshape(1 + len(cuts), se.size)
+    return list(value)
 
 
 class DrawAverages:
@@ -216,3 +406,158 @@ def monte_carlo_success(
         p = special.ndtr((effect - c) / se)
         averages.add([p] + [p * mask[sl, None] for mask in masks])
     return averages.success_probabilities()
+
+
+# ------------------------------------------------------------------------------------------
+# uncertain sigma by quadrature
+# ------------------------------------------------------------------------------------------
+def sd_quadrature_covers(prior: Prior, rule: Any, sigma_prior: Prior) -> bool:
+    """Whether :func:`sd_prior_success` applies: a significance test, an effect prior made
+    of normals and point masses, and a prior on the SD made of scaled inverse chi-square
+    (or gamma-precision) distributions and point masses.
+
+    Examples
+    --------
+    >>> from assurance.priors import Normal, ScaledInvChiSquare, StudentT
+    >>> from assurance.rules import Significance
+    >>> sd_quadrature_covers(Normal(1, 1), Significance(), ScaledInvChiSquare(20, 5.0))
+    True
+    >>> sd_quadrature_covers(StudentT(3, 1, 1), Significance(), ScaledInvChiSquare(20, 5.0))
+    False
+    """
+    return (isinstance(rule, Significance)
+            and all(isinstance(p, Normal | PointMass) for _, p in prior.parts())
+            and all(isinstance(p, ScaledInvChiSquare | PointMass)
+                    for _, p in sigma_prior.parts()))
+
+
+def sd_prior_success(
+    prior: Prior,
+    rule: Significance,
+    sigma_prior: Prior,
+    *,
+    se_factor: np.ndarray,
+    df: np.ndarray,
+    analysis: str,
+    cuts: Sequence[Cut] = (),
+    critical: Any = None,
+) -> SuccessProbabilities:
+    """Success probabilities averaged over a prior on sigma, by deterministic quadrature.
+
+    Parameters
+    ----------
+    prior
+        Effect prior on the benefit scale: normals, point masses, or a mixture of these.
+    rule
+        A :class:`~assurance.rules.significance.Significance` on the benefit scale.
+    sigma_prior
+        Prior on the outcome SD: :class:`~assurance.priors.ScaledInvChiSquare` (or
+        :class:`~assurance.priors.GammaPrecision`), point masses, or a mixture of these.
+    se_factor, df, analysis, cuts, critical
+        As for :func:`exact_success`.
+
+    Returns
+    -------
+    SuccessProbabilities
+        Without standard errors: there is no Monte Carlo error.
+
+    Notes
+    -----
+    With ``sigma^2 = nu s0^2 / X``, ``X ~ chi2_nu``, write ``q = s0 / sigma = sqrt(X / nu)``:
+    every figure is ``E_q[P(. | sigma = s0 / q)]`` with the inner probability exact
+    (:func:`exact_success`). The expectation uses :func:`.sd_quadrature.ratio_rule` with, for
+    each part of the effect prior, features where the threshold ``A + crit sigma k`` meets
+    the effect (point mass), the prior mean (normal, relative width ``tau / (m - A)``), each
+    cut, and the minimum observed effect. Each part of a mixture is integrated on its own
+    nodes.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from assurance.priors import Normal, ScaledInvChiSquare
+    >>> from assurance.rules import Significance
+    >>> p = sd_prior_success(Normal(0.5, 0.2), Significance(0.025),
+    ...                      ScaledInvChiSquare(40, 1.0), se_factor=np.sqrt([2 / 64]),
+    ...                      df=np.array([126.0]), analysis="t")
+    >>> round(float(p.success[0]), 4), p.success_mcse is None
+    (0.7207, True)
+    """
+    if not sd_quadrature_covers(prior, rule, sigma_prior):
+        raise ValueError("sd_prior_success needs a significance test, a normal / point-mass "
+                         "effect prior and a scaled inverse chi-square / point-mass SD prior")
+    k = np.asarray(se_factor, dtype=float)
+    df = np.asarray(df, dtype=float)
+    cuts = list(cuts)
+    if analysis == "t":
+        crit = np.broadcast_to(np.asarray(rule.critical_t(df) if critical is None
+                                          else critical, dtype=float), k.shape)
+    else:
+        crit = np.full(k.shape, rule.critical_z())
+    success = np.zeros(k.shape)
+    joint = [np.zeros(k.shape) for _ in cuts]
+    for ws, sp in sigma_prior.parts():
+        if isinstance(sp, PointMass):
+            res = exact_success(prior, rule, sigma=sp.value, se_factor=k, df=df,
+                                analysis=analysis, cuts=cuts, critical=crit)
+            success += ws * res.success
+            for j in range(len(cuts)):
+                joint[j] += ws * res.joint[j]
+            continue
+        for we, part in prior.parts():
+            centres, widths = _sd_features(part, rule, sp, k, crit, df, analysis, cuts)
+            nu = np.full(k.shape, sp.df)
+            for g in ratio_rule(nu, centres, widths):
+                col = g.columns
+                K = g.ratio.shape[0]
+                sigma = sp.scale / g.ratio  # (K, m)
+                res = exact_success(part, rule, sigma=1.0,
+                                    se_factor=(sigma * k[col][None, :]).ravel(),
+                                    df=np.tile(df[col], K), analysis=analysis, cuts=cuts,
+                                    critical=np.tile(crit[col], K))
+                weight = ws * we * g.weight
+                success[col] += np.sum(weight * res.success.reshape(K, -1), axis=0)
+                for j in range(len(cuts)):
+                    joint[j][col] += np.sum(weight * res.joint[j].reshape(K, -1), axis=0)
+    return SuccessProbabilities(success=np.clip(success, 0.0, 1.0),
+                                joint=[np.clip(p, 0.0, 1.0) for p in joint])
+
+
+def _sd_features(part: Prior, rule: Significance, sigma_prior: ScaledInvChiSquare,
+                 k: np.ndarray, crit: np.ndarray, df: np.ndarray, analysis: str,
+                 cuts: list[Cut]) -> tuple[np.ndarray, np.ndarray]:
+    """Where, on the scale ``q = s0 / sigma``, the conditional success probability of one
+    prior part changes fastest, and how fast (relative widths carried to ``q``).
+
+    The threshold is about ``A + crit sigma k``; it meets a value ``c > A`` at
+    ``sigma_c = (c - A) / (crit k)``, i.e. ``q_c = s0 crit k / (c - A)``, and a change of
+    width ``w`` in the threshold is a relative change ``w / (c - A)`` in ``sigma`` and ``q``.
+    """
+    low = rule.null_value
+    s0 = sigma_prior.scale
+    slope = crit * k  # threshold per unit sigma
+    centres, widths = [], []
+
+    def add(value: float, width_at: Any) -> None:
+        gap = value - low
+        if gap <= 0:
+            return
+        sigma_c = gap / slope
+        q = s0 / sigma_c
+        centres.append(q)
+        widths.append(q * width_at(sigma_c) / gap)
+
+    if isinstance(part, PointMass):
+        add(part.value, lambda s: s * k)  # width se: Phi((delta - c) / se)
+    else:
+        m, sd = part.mu, part.sigma
+        add(m, lambda s: np.sqrt(sd * sd + (s * k) ** 2))
+        for cut in cuts:
+            add(cut.value, lambda s: s * k * np.sqrt(sd * sd + (s * k) ** 2) / sd)
+    if rule.min_estimate is not None:
+        # a kink (z) or a kink smoothed over the sample SD ratio (t)
+        spread = 1.0 / np.sqrt(2.0 * df) if analysis == "t" else 0.0
+        add(rule.min_estimate, lambda s: spread * (rule.min_estimate - low))
+    if not centres:
+        return np.empty((0, k.size)), np.empty((0, k.size))
+    return (np.array([np.broadcast_to(c, k.shape) for c in centres]),
+            np.array([np.broadcast_to(w, k.shape) for w in widths]))

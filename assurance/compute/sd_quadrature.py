@@ -1,35 +1,46 @@
-"""Quadrature over the sample standard deviation of a normal trial.
+"""Quadrature over a ratio ``q = sqrt(X / df)`` with ``X ~ chi2_df``.
 
-When the analysis estimates sigma (a t test), success depends on the sample SD ``s`` as well
-as on the estimate. With ``s^2 / sigma^2 ~ chi2_df / df`` independent of the estimate, every
-success probability is ``E_s[ P(d > c(s)) ]``. These nodes and weights compute that
-expectation: Gauss-Hermite on the normal score of the chi-square quantile, where the
-integrand is smooth enough that 32 nodes reach machine precision for ``df >= 5`` (checked
-against ``scipy.stats.nct`` in the tests); a dense Gauss-Legendre rule on the probability
-scale covers ``df < 5``.
+Two expectations in this package have that shape:
 
-A rule with a minimum observed effect makes the threshold ``max(a + b s, e_min)`` kinked in
-``s``. Passing the kink (the ratio ``s / sigma`` where the two branches meet) splits the
-expectation there: below the kink the threshold is constant and its weight is the exact
-chi-square probability; above it a Gauss-Legendre rule on the normal score integrates the
-smooth branch.
+* the sample SD of a t analysis: ``s / sigma ~ sqrt(chi2_df / df)``, independent of the
+  estimate, so every success probability of a t test is ``E_r[P(d > c(r))]``;
+* a scaled inverse chi-square prior on the SD: ``sigma = s0 / q`` with
+  ``q ~ sqrt(chi2_nu / nu)``.
+
+The integrand is a probability that moves from one level to another as ``q`` crosses a few
+known places ("features": where the success threshold meets the effect, or the cut of a
+joint probability, or the minimum observed effect), each with a known width. Two rules:
+
+* **Gauss-Hermite** on the normal score of the chi-square quantile (nodes ``z_i``, ratio
+  ``q(z_i)`` exact through the inverse incomplete gamma function). Accurate when every
+  feature is wide on the score scale; the number of nodes is picked from the narrowest
+  feature (8 to 20 nodes), and the nodes of each df are cached.
+* **Composite Gauss-Legendre** on ``u = log q`` with the exact density of ``u``: panels
+  between the scores -9, -8, ..., 9 of the distribution, and more panels placed around each
+  feature (at 0, 0.7, 2, 5 and 12 widths either side). Used for small df, narrow features
+  (small alpha, large effects, large n in a prior on the SD) and kinked thresholds, where a
+  floor below which the integrand is constant is given: its probability becomes one node.
+
+Both return nodes and weights per column; ``sum(weight * g(ratio))`` is the expectation.
 """
 
 from __future__ import annotations
 
+import math
 from functools import lru_cache
+from typing import NamedTuple
 
 import numpy as np
 from scipy import special, stats
 
-__all__ = ["sd_ratio_nodes"]
+__all__ = ["sd_ratio_nodes", "ratio_rule", "flat_nodes", "RatioNodes", "ratio_log_density"]
 
 _HERMITE_NODES = 32
 _LEGENDRE_NODES = 400
 
 
-def _hermite_rule() -> tuple[np.ndarray, np.ndarray]:
-    x, w = special.roots_hermitenorm(_HERMITE_NODES)
+def _hermite_rule(k: int = _HERMITE_NODES) -> tuple[np.ndarray, np.ndarray]:
+    x, w = special.roots_hermitenorm(k)
     return x, w / np.sqrt(2 * np.pi)
 
 
@@ -44,6 +55,27 @@ _SPLIT_NODES = 64
 _SPLIT = special.roots_legendre(_SPLIT_NODES)
 _Z_END = 9.0  # the normal density beyond +-9 is below 1e-18
 
+# -- the feature-aware rule ----------------------------------------------------------------
+#: scores of the chi-square distribution between which the bulk panels lie
+_BULK_SCORES = np.arange(-9.0, 9.5, 1.0)
+#: where panels start and end around a feature, in widths from its centre
+_PATTERN = np.array([-12.0, -5.0, -2.0, -0.7, 0.0, 0.7, 2.0, 5.0, 12.0])
+_PANEL_NODES = 10
+_PANEL = special.roots_legendre(_PANEL_NODES)
+#: (narrowest feature on the score scale, fewest degrees of freedom, Gauss-Hermite nodes):
+#: the first row a column satisfies gives its rule; none: the composite rule. A short rule
+#: needs the score map nearly straight (many df) as well as wide features.
+_TIERS = ((20.0, 100.0, 4), (8.0, 40.0, 5), (5.0, 10.0, 6), (3.0, 5.0, 8), (2.0, 5.0, 12),
+          (1.5, 5.0, 16), (1.0, 5.0, 20))
+
+
+class RatioNodes(NamedTuple):
+    """Nodes for the columns ``columns``: ``ratio`` and ``weight`` of shape ``(K, m)``."""
+
+    columns: np.ndarray
+    ratio: np.ndarray
+    weight: np.ndarray
+
 
 def _chi_from_score(z: np.ndarray, half_df: np.ndarray) -> np.ndarray:
     """Chi-square quantile at probability Phi(z), each tail computed from its own side."""
@@ -55,9 +87,207 @@ def _chi_from_score(z: np.ndarray, half_df: np.ndarray) -> np.ndarray:
     return out
 
 
+def _log_norm_constant(h: np.ndarray) -> np.ndarray:
+    """``h log h - h - log Gamma(h)``, without the cancellation of large ``h``.
+
+    Stirling's series (common practice): ``log Gamma(h) = (h - 1/2) log h - h + log(2 pi)/2
+    + 1/(12 h) - 1/(360 h^3) + 1/(1260 h^5) - 1/(1680 h^7)``; its next term is below 1e-13
+    for ``h >= 8``.
+    """
+    h = np.asarray(h, dtype=float)
+    small = h < 8.0
+    out = np.empty(h.shape)
+    hs = h[small]
+    out[small] = hs * np.log(hs) - hs - special.gammaln(hs)
+    hb = h[~small]
+    inv = 1.0 / hb
+    inv2 = inv * inv
+    series = inv * (1 / 12 - inv2 * (1 / 360 - inv2 * (1 / 1260 - inv2 / 1680)))
+    out[~small] = 0.5 * np.log(hb / (2 * np.pi)) - series
+    return out
+
+
+def ratio_log_density(u: np.ndarray, df: np.ndarray) -> np.ndarray:
+    """Log density of ``u = log q``, ``q = sqrt(X / df)``, ``X ~ chi2_df``.
+
+    With ``h = df / 2``: ``log f(u) = log 2 + h log h - h - log Gamma(h) + h (2u - expm1(2u))``
+    (change of variables ``X = df exp(2u)``).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from scipy import integrate
+    >>> f = lambda u: float(np.exp(ratio_log_density(np.array(u), np.array(7.0))))
+    >>> round(integrate.quad(f, -30, 5)[0], 12)
+    1.0
+    """
+    h = np.asarray(df, dtype=float) / 2
+    u = np.asarray(u, dtype=float)
+    return math.log(2.0) + _log_norm_constant(h) + h * (2 * u - np.expm1(2 * u))
+
+
+@lru_cache(maxsize=64)
+def _hermite_ratio(df_bytes: bytes, k: int) -> tuple[np.ndarray, np.ndarray]:
+    df = np.frombuffer(df_bytes, dtype=float)
+    x, w = _hermite_rule(k)
+    chi = _chi_from_score(x[:, None], df[None, :] / 2)
+    return np.sqrt(chi / df[None, :]), w
+
+
+@lru_cache(maxsize=64)
+def _bulk_log_ratio(df_bytes: bytes) -> np.ndarray:
+    df = np.frombuffer(df_bytes, dtype=float)
+    chi = _chi_from_score(_BULK_SCORES[:, None], df[None, :] / 2)
+    return 0.5 * np.log(chi / df[None, :])
+
+
+def _per_unique(df: np.ndarray, table) -> tuple[np.ndarray, np.ndarray]:
+    uniq, inverse = np.unique(df, return_inverse=True)
+    return table(np.ascontiguousarray(uniq).tobytes()), inverse
+
+
+def _narrowest_score_width(df: np.ndarray, centres: np.ndarray, widths: np.ndarray
+                           ) -> np.ndarray:
+    """Width on the score scale of the narrowest feature that reaches the bulk, per column.
+
+    Wilson-Hilferty (common practice): the score of ``q`` is about ``(q^(2/3) - 1 + a) /
+    sqrt(a)``, ``a = 2 / (9 df)``, so ``dz/dq`` is about ``sqrt(2 df) q^(-1/3)``. The bulk is
+    the ratios of scores -9 to 9; a feature more than 12 widths outside it leaves the
+    integrand flat there. The width is read where the score
+    scale is tightest within five widths above the centre. Only used to choose a rule, so rough is enough.
+    """
+    a = 2.0 / (9.0 * df)
+    lo = np.maximum(1.0 - a - 9.0 * np.sqrt(a), 1e-3) ** 1.5
+    hi = (1.0 - a + 9.0 * np.sqrt(a)) ** 1.5
+    with np.errstate(invalid="ignore"):
+        reach = np.isfinite(centres) & (np.abs(centres - np.clip(centres, lo, hi))
+                                        <= 12.0 * widths)
+        # judged where the score scale is tightest within five widths of the centre
+        near = np.clip(centres + 5.0 * widths, lo, hi)
+        width = widths * np.sqrt(2.0 * df) * near ** (-1.0 / 3.0)
+    return np.where(reach, width, np.inf).min(axis=0, initial=np.inf)
+
+
+def ratio_rule(df: np.ndarray, centres: np.ndarray | None = None,
+               widths: np.ndarray | None = None, floor: np.ndarray | None = None
+               ) -> list[RatioNodes]:
+    """Nodes and weights for ``E[g(q)]``, ``q = sqrt(X / df)``, ``X ~ chi2_df``, per column.
+
+    Parameters
+    ----------
+    df
+        1-D array of degrees of freedom, one per column, each > 0.
+    centres, widths
+        Arrays ``(F, len(df))``: the ratio at which ``g`` changes fastest and the width of
+        the change on the ratio scale (>= 0; 0 for a kink). A centre <= 0 or NaN is ignored.
+    floor
+        Optional ratio per column below which ``g`` is constant (NaN or <= 0: none); its
+        probability becomes one node at the floor.
+
+    Returns
+    -------
+    list of RatioNodes
+        Groups of columns sharing one number of nodes; ``sum(weight * g(ratio), axis=0)``
+        approximates ``E[g(q)]`` for the group's columns.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> [group] = ratio_rule(np.array([3.0]), centres=np.array([[0.4]]),
+    ...                      widths=np.array([[0.01]]))
+    >>> round(float(np.sum(group.weight * group.ratio**2)), 12)  # E[X / df] = 1
+    1.0
+    """
+    df = np.atleast_1d(np.asarray(df, dtype=float))
+    n = df.size
+    if centres is None:
+        centres = np.empty((0, n))
+        widths = np.empty((0, n))
+    centres = np.asarray(centres, dtype=float).reshape(-1, n)
+    widths = np.broadcast_to(np.asarray(widths, dtype=float), centres.shape)
+    if floor is None:
+        has_floor = np.zeros(n, dtype=bool)
+        floor = np.full(n, np.nan)
+    else:
+        floor = np.broadcast_to(np.asarray(floor, dtype=float), (n,))
+        has_floor = np.isfinite(floor) & (floor > 0)
+    narrowest = _narrowest_score_width(df, centres, widths)
+    tier = np.zeros(n, dtype=int)  # 0: composite
+    for least, fewest_df, k in reversed(_TIERS):
+        tier = np.where((narrowest >= least) & (df >= fewest_df), k, tier)
+    tier = np.where(has_floor, 0, tier)
+
+    groups = []
+    for k in np.unique(tier):
+        cols = np.flatnonzero(tier == k)
+        if k == 0:
+            groups.append(_composite(df[cols], centres[:, cols], widths[:, cols], floor[cols],
+                                     has_floor[cols], cols))
+        else:
+            table, inverse = _per_unique(df[cols], lambda b, k=int(k): _hermite_ratio(b, k))
+            ratio, w = table
+            weight = np.broadcast_to(w[:, None], (w.size, cols.size))
+            groups.append(RatioNodes(cols, ratio[:, inverse], weight))
+    return groups
+
+
+def flat_nodes(groups: list[RatioNodes]) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """The nodes of :func:`ratio_rule` as three flat arrays: column, ratio and weight.
+
+    One evaluation of an integrand over all columns at once, then
+    ``np.bincount(column, weight * values, minlength=ncols)`` sums each column.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> col, r, w = flat_nodes(ratio_rule(np.array([4.0, 40.0])))
+    >>> np.round(np.bincount(col, w * r**2), 10)  # E[X / df] = 1 in each column
+    array([1., 1.])
+    """
+    cols = [np.broadcast_to(g.columns[None, :], g.ratio.shape).ravel() for g in groups]
+    ratio = [g.ratio.ravel() for g in groups]
+    weight = [np.broadcast_to(g.weight, g.ratio.shape).ravel() for g in groups]
+    return np.concatenate(cols), np.concatenate(ratio), np.concatenate(weight)
+
+
+def _composite(df: np.ndarray, centres: np.ndarray, widths: np.ndarray, floor: np.ndarray,
+               has_floor: np.ndarray, cols: np.ndarray) -> RatioNodes:
+    bulk, inverse = _per_unique(df, _bulk_log_ratio)
+    bulk = bulk[:, inverse]
+    lo = bulk[0]
+    hi = bulk[-1]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        u_floor = np.where(has_floor, np.log(np.where(has_floor, floor, 1.0)), -np.inf)
+        # panels about each feature are laid on the ratio scale, then read on the log scale
+        extra = (centres[:, None, :] + widths[:, None, :] * _PATTERN[None, :, None]
+                 ).reshape(-1, df.size)
+        extra = np.log(np.where(np.isfinite(extra) & (extra > 0), extra, 0.0))
+    start = np.maximum(lo, u_floor)
+    points = np.clip(np.concatenate([bulk, extra, start[None, :]]), start, hi)
+    points.sort(axis=0)
+    left, right = points[:-1], points[1:]
+    half = 0.5 * (right - left)
+    mid = 0.5 * (right + left)
+    x, w = _PANEL
+    u = (mid[:, None, :] + half[:, None, :] * x[None, :, None]).reshape(-1, df.size)
+    weight = (half[:, None, :] * w[None, :, None]).reshape(-1, df.size) \
+        * np.exp(ratio_log_density(u, df[None, :]))
+    ratio = np.exp(u)
+    if has_floor.any():
+        below = np.where(has_floor, special.gammainc(df / 2, df / 2 * np.where(
+            has_floor, floor, 0.0) ** 2), 0.0)
+        ratio = np.concatenate([np.where(has_floor, floor, 1.0)[None, :], ratio])
+        weight = np.concatenate([below[None, :], weight])
+    return RatioNodes(cols, ratio, weight)
+
+
+# -- the general-purpose rule for thresholds of any shape -----------------------------------
 def sd_ratio_nodes(df: np.ndarray, kink: np.ndarray | None = None
                    ) -> tuple[np.ndarray, np.ndarray]:
     """Nodes ``r = s / sigma`` and weights for each degrees-of-freedom value.
+
+    Used for rules whose threshold is not linear in the sample SD (posterior probabilities
+    with an informative analysis prior, combined rules); a t test uses :func:`ratio_rule`.
 
     Parameters
     ----------

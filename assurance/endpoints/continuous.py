@@ -108,31 +108,54 @@ class ContinuousEndpoint(Endpoint):
 
     def calculator(self, prior_benefit: Prior, rule_benefit: Significance, *, draws: int,
                    seed: int | None, nuisance: Prior | None = None) -> SuccessCalculator:
-        """Exact calculator, or Monte Carlo when ``nuisance`` (a prior on sigma) is given."""
+        """Calculator of success probabilities for this endpoint.
+
+        Exact with a known SD. With ``nuisance`` (a prior on sigma): deterministic quadrature
+        over the SD when the rule is a significance test, the effect prior is made of normals
+        and point masses and the SD prior of scaled inverse chi-square (or gamma-precision)
+        distributions and point masses; Monte Carlo with ``draws`` and ``seed`` otherwise.
+        """
         return _ContinuousCalculator(self, prior_benefit, rule_benefit, nuisance, draws, seed)
 
 
 class _ContinuousCalculator(SuccessCalculator):
     def __init__(self, endpoint: ContinuousEndpoint, prior: Prior, rule: Significance,
                  sigma_prior: Prior | None, draws: int, seed: int | None):
-        from ..compute.normal_outcome import EffectDraws
+        from ..compute.normal_outcome import EffectDraws, sd_quadrature_covers
 
         self.endpoint, self.prior, self.rule = endpoint, prior, rule
-        self.monte_carlo = sigma_prior is not None
+        self.sigma_prior = sigma_prior
+        self.quadrature = sigma_prior is not None and sd_quadrature_covers(prior, rule,
+                                                                            sigma_prior)
+        self.monte_carlo = sigma_prior is not None and not self.quadrature
         self.draws = (EffectDraws.draw(prior, sigma_prior, draws, seed)
                       if self.monte_carlo else None)
+        self._last: tuple[bytes, dict[str, Any]] | None = None
 
     def _geometry(self, n_t: np.ndarray, n_c: np.ndarray) -> dict[str, Any]:
+        """Standard error factor, degrees of freedom and critical values, kept for the last
+        arm sizes asked (a grid is asked once for assurance and once per power effect)."""
+        n_t = np.asarray(n_t)
+        n_c = np.asarray(n_c)
+        key = n_t.tobytes() + b"|" + n_c.tobytes() + str((n_t.dtype, n_c.dtype)).encode()
+        if self._last is not None and self._last[0] == key:
+            return self._last[1]
         ep = self.endpoint
-        return {"se_factor": ep.se_factor(n_t, n_c), "df": ep.degrees_of_freedom(n_t, n_c),
-                "analysis": ep.analysis}
+        df = ep.degrees_of_freedom(n_t, n_c)
+        geo = {"se_factor": ep.se_factor(n_t, n_c), "df": df, "analysis": ep.analysis,
+               "critical": self.rule.critical_t(df) if ep.analysis == "t" else None}
+        self._last = (key, geo)
+        return geo
 
     def success(self, n_t, n_c, cuts):
-        from ..compute.normal_outcome import exact_success, monte_carlo_success
+        from ..compute.normal_outcome import exact_success, monte_carlo_success, sd_prior_success
 
         geo = self._geometry(n_t, n_c)
         if self.monte_carlo:
+            geo = {k: v for k, v in geo.items() if k != "critical"}
             return monte_carlo_success(self.draws, self.rule, cuts=cuts, **geo)
+        if self.quadrature:
+            return sd_prior_success(self.prior, self.rule, self.sigma_prior, cuts=cuts, **geo)
         return exact_success(self.prior, self.rule, sigma=self.endpoint.sigma, cuts=cuts,
                              **geo)
 
@@ -147,9 +170,13 @@ class _ContinuousCalculator(SuccessCalculator):
         if self.monte_carlo:
             return "Monte Carlo over effect and sigma (Rao-Blackwellised)"
         kinds = {type(part).__name__ for _, part in self.prior.parts()}
-        base = ("closed form" if kinds <= {"Normal", "PointMass"}
-                else "adaptive quadrature over the prior")
-        if self.endpoint.analysis == "t":
-            base += "; Gauss-Hermite quadrature over the sample SD (t test)"
+        t_test = self.endpoint.analysis == "t"
+        if kinds <= {"Normal", "PointMass"}:
+            base = "non-central t distribution (closed form)" if t_test else "closed form"
+        else:
+            base = "adaptive quadrature over the prior"
+        if t_test:
+            base += "; quadrature over the sample SD where needed (t test)"
+        if self.quadrature:
+            base += "; deterministic quadrature over the SD prior (no Monte Carlo error)"
         return base
-
