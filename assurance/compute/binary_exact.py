@@ -42,6 +42,7 @@ from functools import lru_cache
 from typing import Any
 
 import numpy as np
+from numpy.lib.stride_tricks import sliding_window_view
 from numpy.polynomial.legendre import leggauss
 from scipy import special
 
@@ -172,9 +173,13 @@ def treatment_breakpoints(x: float, scale: str) -> list[float]:
 # ------------------------------------------------------------------------------------------
 # probabilities of outcomes
 # ------------------------------------------------------------------------------------------
+@lru_cache(maxsize=256)
 def _log_comb(n: int) -> np.ndarray:
+    """``log C(n, x)`` for ``x = 0..n`` (cached, read-only)."""
     x = np.arange(n + 1)
-    return special.gammaln(n + 1) - special.gammaln(x + 1) - special.gammaln(n - x + 1)
+    out = special.gammaln(n + 1) - special.gammaln(x + 1) - special.gammaln(n - x + 1)
+    out.flags.writeable = False
+    return out
 
 
 def binomial_pmf(n: int, p) -> np.ndarray:
@@ -270,17 +275,18 @@ def posterior_below(a: float, b: float, n: int, t) -> np.ndarray:
     first = special.betainc(a, b + n, t)
     if n == 0:
         return first[None, :]
-    x = np.arange(n)[:, None]
+    # computed with x along the last (contiguous) axis; returned transposed (a view)
+    x = np.arange(n)[None, :]
     with np.errstate(divide="ignore", invalid="ignore"):
-        log_t, log_q = np.log(t)[None, :], np.log1p(-t)[None, :]
+        log_t, log_q = np.log(t)[:, None], np.log1p(-t)[:, None]
         log_term = (special.gammaln(a + b + n) - special.gammaln(a + x + 1)
                     - special.gammaln(b + n - x) + (a + x) * log_t + (b + n - x - 1) * log_q)
         terms = np.exp(log_term)
     terms = np.nan_to_num(terms, nan=0.0)
-    out = np.empty((n + 1, t.size))
-    out[0] = first
-    out[1:] = first[None, :] - np.cumsum(terms, axis=0)
-    return np.clip(out, 0.0, 1.0)
+    out = np.empty((t.size, n + 1))
+    out[:, 0] = first
+    out[:, 1:] = first[:, None] - np.cumsum(terms, axis=1)
+    return np.clip(out, 0.0, 1.0, out=out).T
 
 
 @dataclass(frozen=True)
@@ -511,7 +517,11 @@ class SuccessRegion:
         ``weights_c`` has shape ``(K, n_c + 1)`` (one row per rate, as
         :func:`binomial_pmf` gives), the result ``(K, n_t + 1)``: ``weights_c @ R.T``.
         """
-        w = weights_c[..., self.col]
+        col = self.col
+        if col.size and col[-1] - col[0] + 1 == col.size:  # consecutive control counts
+            w = weights_c[..., col[0]:col[-1] + 1]
+        else:
+            w = weights_c[..., col]
         lo, hi, x = self.lo, self.hi, np.arange(self.n_t + 1)
         top = hi == self.n_t
         bottom = (lo == 0) & ~top
@@ -546,22 +556,31 @@ class SuccessRegion:
         return out
 
 
+def _cumulative(w: np.ndarray, order: np.ndarray | None) -> np.ndarray:
+    """Running sums of ``w[..., order]`` along the last axis, with a leading 0."""
+    head = np.zeros(w.shape[:-1] + (w.shape[-1] + 1,))
+    np.cumsum(w if order is None else w[..., order], axis=-1, out=head[..., 1:])
+    return head
+
+
 def _sums_up_to(pos: np.ndarray, w: np.ndarray, x: np.ndarray, side: str) -> np.ndarray:
     """``out[..., i] = sum of w[..., j] over pos[j] <= x[i]`` (``< x[i]`` with side 'left')."""
-    order = np.argsort(pos, kind="stable")
-    head = np.cumsum(w[..., order], axis=-1)
-    count = np.searchsorted(pos[order], x, side=side)
-    head = np.concatenate((np.zeros(head.shape[:-1] + (1,)), head), axis=-1)
-    return head[..., count]
+    if pos.size > 1 and np.all(pos[1:] >= pos[:-1]):  # a staircase: already in order
+        order = None
+    else:
+        order = np.argsort(pos, kind="stable")
+        pos = pos[order]
+    return _cumulative(w, order)[..., np.searchsorted(pos, x, side=side)]
 
 
 def _sums_from(pos: np.ndarray, w: np.ndarray, x: np.ndarray) -> np.ndarray:
     """``out[..., i] = sum of w[..., j] over pos[j] >= x[i]`` (summed from the largest)."""
-    order = np.argsort(-pos, kind="stable")
-    head = np.cumsum(w[..., order], axis=-1)
-    count = pos.size - np.searchsorted(np.sort(pos), x, side="left")
-    head = np.concatenate((np.zeros(head.shape[:-1] + (1,)), head), axis=-1)
-    return head[..., count]
+    if pos.size > 1 and np.all(pos[1:] >= pos[:-1]):
+        order = np.arange(pos.size - 1, -1, -1)
+    else:
+        order = np.argsort(-pos, kind="stable")
+        pos = pos[order][::-1]
+    return _cumulative(w, order)[..., pos.size - np.searchsorted(pos, x, side="left")]
 
 
 def _first_passing(passes, n_t: int, n_c: int) -> np.ndarray:
@@ -697,15 +716,17 @@ def fisher_critical_counts(n_t: int, n_c: int, cutoff: float) -> np.ndarray:
 
     Notes
     -----
-    Given ``s``, ``X_t`` is hypergeometric with mean ``m = s n_t / N`` and variance ``v = s
-    (N - s) n_t n_c / (N^2 (N - 1))``. The tail is summed from the top down over a band of
-    ``x_t`` from ``floor(m) - 1`` to ``(z_{1-cutoff} + 9) sqrt(max v) + 12`` above it, one
-    band per total, vectorised: about ``N (z + 9) sqrt(v)`` terms instead of ``N n_t``. The
-    pmf is log-concave, so beyond the band (past the mode) the ratio of successive terms
-    falls and the mass left out is at most ``f / (1 - r)`` (``f`` the first term left out,
-    ``r`` its ratio to the last term kept); the band is used only if that bound is below
-    ``FISHER_BAND_SLACK * cutoff`` for every total and the band starts where the tail still
-    exceeds the cutoff, otherwise the whole ``(x_t, s)`` grid is summed.
+    Given ``s``, ``X_t`` is hypergeometric with mean ``m = s n_t / N`` and standard deviation
+    ``d = sqrt(s (N - s) n_t n_c / (N^2 (N - 1)))``. The tail is summed from the top down
+    over a band of ``x_t`` that starts 2 SD below the normal critical value (at ``m + max(z
+    - 2, 0) d - 1``, ``z = z_{1-cutoff}``) and is ``(y + 1 - max(z - 2, 0)) max(d) + 12``
+    wide, ``y = -Phi^{-1}(FISHER_BAND_SLACK * cutoff)``: one band per total, vectorised,
+    about ``10 N max(d)`` terms instead of ``N n_t``. The pmf is log-concave, so beyond the
+    band (past the mode) the ratio of successive terms falls and the mass left out is at
+    most ``f / (1 - r)`` (``f`` the first term left out, ``r`` its ratio to the last term
+    kept); the band is used only if that bound is below ``FISHER_BAND_SLACK * cutoff`` for
+    every total and the band starts where the tail still exceeds the cutoff, otherwise the
+    whole ``(x_t, s)`` grid is summed.
 
     Examples
     --------
@@ -717,32 +738,35 @@ def fisher_critical_counts(n_t: int, n_c: int, cutoff: float) -> np.ndarray:
     lo_s = np.maximum(s - n_c, 0)
     hi_s = np.minimum(s, n_t)
     lc_t, lc_c, lc_n = _log_comb(n_t), _log_comb(n_c), _log_comb(n)
-    var = s * (n - s) * (n_t * n_c / (n * n * max(n - 1, 1)))
-    z = max(float(special.ndtri(1.0 - cutoff)), 0.0)
-    width = int(math.ceil((z + 9.0) * math.sqrt(float(var.max())))) + 12
+    sd = np.sqrt(s * (n - s) * (n_t * n_c / (n * n * max(n - 1, 1))))
+    lift = max(float(-special.ndtri(cutoff)) - 2.0, 0.0)  # start 2 SD below the critical
+    top = float(-special.ndtri(FISHER_BAND_SLACK * cutoff)) + 1.0
+    width = int(math.ceil((top - lift) * float(sd.max()))) + 12
     if 2 * width < n_t:
-        start = np.clip(np.floor(s * (n_t / n)).astype(np.int64) - 1, lo_s, hi_s)
-        x = start[:, None] + np.arange(width + 1)[None, :]
-        inside = x <= hi_s[:, None]
-        x = np.minimum(x, hi_s[:, None])
-        log_pmf = lc_t[x] + lc_c[s[:, None] - x] - lc_n[:, None]
-        pmf = np.where(inside, np.exp(log_pmf), 0.0)
-        tail = np.cumsum(pmf[:, width - 1::-1], axis=1)[:, ::-1]
-        last, beyond = pmf[:, width - 1], pmf[:, width]
+        start = np.clip(np.floor(s * (n_t / n) + lift * sd).astype(np.int64) - 1, lo_s, hi_s)
+        # log pmf at x = start + j, j = 0..width, from sliding windows of the log binomial
+        # coefficients (-inf beyond the support, so the pmf is 0 there)
+        pad = np.full(width + 1, -np.inf)
+        win_t = sliding_window_view(np.concatenate((lc_t, pad)), width + 1)[start]
+        win_c = sliding_window_view(np.concatenate((lc_c[::-1], pad)),
+                                    width + 1)[n_c - s + start]  # lc_c[s - start - j]
+        pmf = np.exp((win_t + win_c - lc_n[:, None])[:, ::-1])  # from the band's top down
+        beyond, last = pmf[:, 0], pmf[:, 1]
+        tail = np.cumsum(pmf[:, 1:], axis=1)  # tail[:, -1] is at x = start
         with np.errstate(divide="ignore", invalid="ignore"):
             ratio = np.where(last > 0.0, beyond / last, 0.0)
             left_out = np.where(beyond > 0.0, beyond / (1.0 - ratio), 0.0)
         good = ((ratio < 1.0) & (left_out <= FISHER_BAND_SLACK * cutoff)
-                & ((start == lo_s) | (tail[:, 0] > cutoff)))
+                & ((start == lo_s) | (tail[:, -1] > cutoff)))
         if good.all():
-            return start + np.sum(tail > cutoff, axis=1)
+            return start + np.count_nonzero(tail > cutoff, axis=1)
     xt = np.arange(n_t + 1)[:, None]
     xc = s[None, :] - xt
     valid = (xc >= 0) & (xc <= n_c)
     log_pmf = lc_t[xt] + lc_c[np.clip(xc, 0, n_c)] - lc_n[None, :]
     pmf = np.where(valid, np.exp(log_pmf), 0.0)
     tail = np.cumsum(pmf[::-1], axis=0)[::-1]
-    return np.sum(tail > cutoff, axis=0)
+    return np.count_nonzero(tail > cutoff, axis=0)
 
 
 def _observed_benefit(spec: TestSpec, n_t: int, n_c: int) -> np.ndarray:

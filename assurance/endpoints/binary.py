@@ -748,6 +748,7 @@ class _BinaryCalculator(SuccessCalculator):
                         else RateArm.fixed_at(reference))
         self._regions: dict[tuple[int, int], np.ndarray] = {}
         self._node_sets: dict[tuple[Any, ...], _Nodes] = {}
+        self._outer_nodes: dict[tuple[Any, ...], tuple[Any, ...]] = {}
         self.dropped = 0.0 if self.beta_rates else self._dropped_mass()
         self.effect_spread = 0.0 if self.beta_rates else self._effect_spread()
 
@@ -939,7 +940,19 @@ class _BinaryCalculator(SuccessCalculator):
 
     def _outer_for_cut(self, part: BetaRates, cut: Any, k: int
                        ) -> tuple[np.ndarray, np.ndarray, np.ndarray | None]:
-        """Outer-arm nodes and, with a cut, the inner arm's boundary rate at each node."""
+        """Outer-arm nodes and, with a cut, the inner arm's boundary rate at each node.
+
+        They depend on the sizes only through the node count ``k``: computed once per part,
+        cut and ``k`` (the beta quantile function is the costly step).
+        """
+        key = (id(part), None if cut is None else (cut.value, cut.inclusive), k)
+        found = self._outer_nodes.get(key)
+        if found is None:
+            found = self._outer_nodes[key] = self._outer_for_cut_uncached(part, cut, k)
+        return found
+
+    def _outer_for_cut_uncached(self, part: BetaRates, cut: Any, k: int
+                                ) -> tuple[np.ndarray, np.ndarray, np.ndarray | None]:
         outer_control, outer, _ = self._beta_orientation(part)
         if cut is None:
             q, w = outer.split_nodes([], k)
