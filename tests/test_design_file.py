@@ -86,7 +86,9 @@ def test_mixture_table():
         ({"family": "normal", "mean": 1.0, "sd": 2.0, "sdd": 1}, ["'sdd'", "Did you mean"]),
         ({"family": "normal", "mean": "one", "sd": 2.0}, ["design_prior.mean", "'one'"]),
         ({"family": "scipy", "name": "poisson", "parameters": {"mu": 1}}, ["continuous"]),
-        ({"family": "scipy", "name": "gamma", "parameters": {"b": 1}}, ["do not fit"]),
+        ({"family": "scipy", "name": "gamma", "parameters": {"b": 1}},
+         ["'design_prior.parameters.b' is not a parameter", "'design_prior.parameters.a' "
+          "is required", "takes a, loc, scale"]),
         ({"family": "mixture", "parts": []}, ["'design_prior.parts'", "at least 1"]),
         ({"mean": 1.0}, ["family", "required"]),
     ],

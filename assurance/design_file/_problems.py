@@ -19,17 +19,58 @@ from ..errors import AssuranceInputError, DesignFileError
 __all__ = ["Problems", "did_you_mean"]
 
 
+#: keys written as other software or textbooks write them -> this file's key
+_SYNONYMS = {"loc": "location", "mu": "mean", "sigma": "sd", "std": "sd", "stdev": "sd",
+             "sd_log": "log_sd", "min": "lower", "max": "upper"}
+
+
+def _needed_similarity(a: str, b: str, cutoff: float) -> float:
+    """Short words need a closer match: 'df' is not a misspelling of 'sd'."""
+    shorter = min(len(a), len(b))
+    if shorter <= 3:
+        return max(cutoff, 0.8)
+    if shorter <= 5:
+        return max(cutoff, 0.75)
+    return cutoff
+
+
 def did_you_mean(value: Any, options: Any, cutoff: float = 0.6) -> str:
-    """`` Did you mean 'x'?`` for the closest option, or an empty string.
+    """`` Did you mean 'x'?`` for a close spelling of an option, or an empty string.
+
+    Only a spelling close enough to mean the same is suggested: short words need a closer
+    match (``df`` is not suggested as ``sd``, nor ``scale`` as ``shape``); a few common
+    other names are recognised (``loc`` for ``location``).
 
     Examples
     --------
     >>> did_you_mean("normel", ["normal", "uniform"])
     " Did you mean 'normal'?"
+    >>> did_you_mean("df", ["family", "mean", "sd"])
+    ''
     """
-    close = difflib.get_close_matches(str(value), [str(o) for o in options], n=1,
-                                      cutoff=cutoff)
-    return f" Did you mean {close[0]!r}?" if close else ""
+    word = str(value)
+    names = [str(o) for o in options]
+    if not names or len(word) > 3 * max(len(n) for n in names) + 10:
+        return ""  # far too long to be a misspelling (and slow to compare)
+    if _SYNONYMS.get(word) in names:
+        return f" Did you mean {_SYNONYMS[word]!r}?"
+    best, best_ratio = None, 0.0
+    for name in names:
+        ratio = difflib.SequenceMatcher(None, word, name).ratio()
+        if ratio >= _needed_similarity(word, name, cutoff) and ratio > best_ratio:
+            best, best_ratio = name, ratio
+    return f" Did you mean {best!r}?" if best is not None else ""
+
+
+def shown_key(key: Any) -> str:
+    """A key as the file wrote it, quoted and escaped, shortened when long."""
+    text = repr(str(key))
+    return text if len(text) <= 42 else text[:38] + "...'"
+
+
+def printable(text: str) -> str:
+    """``text`` with control characters escaped (for file names in messages)."""
+    return "".join(ch if ch.isprintable() or ch == " " else ascii(ch)[1:-1] for ch in text)
 
 
 #: Python parameter names -> design-file keys, where they differ
@@ -140,7 +181,7 @@ class Problems:
     """Problems found in one design file, reported together."""
 
     def __init__(self, source: str):
-        self.source = source
+        self.source = printable(str(source))
         self.items: list[str] = []
 
     def __bool__(self) -> bool:
@@ -170,24 +211,24 @@ class Problems:
         text = re.sub(r"\bGot (.*) instead\.$", r"Got \1.", text)
         self.add(where, text + note)
 
-    def add_validation(self, exc: Any, prefix: tuple[Any, ...] = ()) -> None:
-        """The schema's findings (a pydantic ``ValidationError``), rephrased."""
+    def add_validation(self, exc: Any, prefix: tuple[Any, ...] = (), raw: Any = None) -> None:
+        """The schema's findings (a pydantic ``ValidationError``), rephrased.
+
+        ``raw`` is the value validated (the table as the file wrote it), which lets a
+        suggestion leave out keys the table already has.
+        """
         for err in exc.errors(include_url=False):
             loc = tuple(prefix) + tuple(err["loc"])
             shown = tuple(p for p in loc if not (isinstance(p, str) and ":" in p))
-            self.add("", self._say(err, loc, shown))
+            table = _table_at(raw, shown[len(prefix):-1]) if raw is not None else None
+            self.add("", self._say(err, loc, shown, table))
 
-    def _say(self, err: dict[str, Any], loc: tuple[Any, ...], shown: tuple[Any, ...]) -> str:
+    def _say(self, err: dict[str, Any], loc: tuple[Any, ...], shown: tuple[Any, ...],
+             table: dict[str, Any] | None = None) -> str:
         kind, ctx, value = err["type"], err.get("ctx") or {}, err.get("input")
         path = _path(shown)
         if kind == "extra_forbidden":
-            model = _model_at(loc[:-1])
-            known = [] if model is None else [f.alias or n for n, f in model.model_fields.items()]
-            table = _path(shown[:-1])
-            place = f"[{table}]" if table else "the top level"
-            hint = did_you_mean(shown[-1], known, cutoff=0.5)
-            listing = f" Known keys: {', '.join(known)}." if known else ""
-            return f"unknown key {shown[-1]!r} in {place}.{hint}{listing}"
+            return _unknown_key(loc, shown, table)
         if kind == "missing":
             f = _field(_model_at(loc[:-1]), str(shown[-1]))
             why = f" ({f.description.rstrip('.')})" if f is not None and f.description else ""
@@ -222,6 +263,18 @@ class Problems:
                 value, bool) and kind.startswith(("greater", "less")) and _is_int_field(
                 _model_at(loc[:-1]), str(shown[-1])) else "a number"
             return f"'{path}' must be {what} {allowed}. Got {_shown(value)}."
+        if kind == "string_too_long":
+            size = len(value) if isinstance(value, str) else "more"
+            return (f"'{path}' must be at most {ctx.get('max_length')} characters. Got "
+                    f"{size:,} characters, starting {_shown(value)[:40]}...'.")
+        if kind == "string_too_short":
+            return f"'{path}' must not be empty. Got {_shown(value)}."
+        if kind == "string_pattern_mismatch":
+            if str(shown[-1]) == "[key]":
+                return (f"'{_path(shown[:-2])}' has a key that is not a name (letters, digits "
+                        f"and underscores, starting with a letter). Got {shown_key(shown[-2])}.")
+            return (f"'{path}' must be a name (letters, digits and underscores, starting with "
+                    f"a letter). Got {_shown(value)}.")
         if kind == "too_short":
             return (f"'{path}' must have at least {ctx.get('min_length')} "
                     f"entr{'y' if ctx.get('min_length') == 1 else 'ies'}. Got {_shown(value)}.")
@@ -250,6 +303,52 @@ class Problems:
         error = DesignFileError(message)
         error.problems = list(self.items)  # type: ignore[attr-defined]
         raise error
+
+
+def _table_at(raw: Any, where: tuple[Any, ...]) -> dict[str, Any] | None:
+    """The table (mapping) at ``where`` inside ``raw``, or None."""
+    node = raw
+    for part in where:
+        if isinstance(part, int) and isinstance(node, list) and 0 <= part < len(node):
+            node = node[part]
+        elif isinstance(node, dict) and part in node:
+            node = node[part]
+        else:
+            return None
+    return node if isinstance(node, dict) else None
+
+
+def _unknown_key(loc: tuple[Any, ...], shown: tuple[Any, ...],
+                 table: dict[str, Any] | None) -> str:
+    """An unknown key: where, a close spelling if there is one, the tables it belongs to."""
+    from .schema import TAGGED, MixturePrior
+
+    model = _model_at(loc[:-1])
+    known = [] if model is None else [f.alias or n for n, f in model.model_fields.items()]
+    name = str(shown[-1])
+    where = _path(shown[:-1])
+    place = f"[{where}]" if where else "the top level"
+    hint = did_you_mean(name, known, cutoff=0.5)
+    close = re.findall(r"'([^']*)'\?$", hint)
+    if close and close[0] in (table or {}):
+        hint += f" ({close[0]!r} is given too: keep one.)"
+    tag = next((str(p) for p in reversed(loc[:-1]) if isinstance(p, str) and ":" in p), "")
+    if model is MixturePrior and name in ("weight", "weights"):
+        hint += (" Each part carries its own 'weight': parts = [{ family = \"normal\", mean "
+                 "= 3.0, sd = 1.5, weight = 0.8 }, { family = \"point_mass\", value = 0.0, "
+                 "weight = 0.2 }].")
+    elif tag and not hint:
+        kind, _, own = tag.partition(":")
+        field = {"endpoint": "type", "rule": "rule"}.get(kind, "family")
+        others = [t.partition(":")[2] for t, m in TAGGED.items()
+                  if t.startswith(kind + ":") and t != tag and name in {
+                      f.alias or n for n, f in m.model_fields.items()}]
+        if others:
+            listed = " or ".join(", ".join(f'"{o}"' for o in others).rsplit(", ", 1))
+            hint = (f" {shown_key(name)} belongs to {field} = {listed}, not to {field} = "
+                    f'"{own}".')
+    listing = f" Known keys: {', '.join(known)}." if known else ""
+    return f"unknown key {shown_key(name)} in {place}.{hint}{listing}"
 
 
 def _is_int_field(model: Any, key: str) -> bool:

@@ -67,7 +67,7 @@ from typing import Any
 import numpy as np
 
 from ..errors import AssuranceInputError, DesignFileError
-from ._problems import Problems, did_you_mean
+from ._problems import Problems, did_you_mean, printable, shown_key
 
 __all__ = ["DesignFile", "read_design_file", "parse_design", "prior_from_table",
            "prior_with_origin", "endpoint_from_table"]
@@ -156,24 +156,43 @@ def read_design_file(path: str | Path) -> DesignFile:
     10.0
     """
     path = Path(path)
+    shown = printable(str(path))
     if not path.is_file():
         what = "is a folder, not a file" if path.is_dir() else "was not found"
-        raise DesignFileError(f"The design file {str(path)!r} {what}. Check the path.")
+        raise DesignFileError(f"The design file '{shown}' {what}. Check the path.")
     if path.stat().st_size > MAX_FILE_BYTES:
-        raise DesignFileError(f"{path} is {path.stat().st_size:,} bytes; a design file is a "
+        raise DesignFileError(f"{shown} is {path.stat().st_size:,} bytes; a design file is a "
                               f"short text file (at most {MAX_FILE_BYTES:,} bytes).")
     try:
         content = path.read_bytes()
     except OSError as exc:
-        raise DesignFileError(f"The design file {str(path)!r} cannot be read: "
+        raise DesignFileError(f"The design file '{shown}' cannot be read: "
                               f"{exc.strerror}.") from None
+    return replace(parse_design(_toml(content, shown), source=str(path)), content=content)
+
+
+def _toml(content: bytes, shown: str) -> dict[str, Any]:
+    """The file's tables: UTF-8 TOML, a leading byte order mark dropped; or a plain refusal."""
+    for mark, name in ((b"\xff\xfe\x00\x00", "UTF-32"), (b"\x00\x00\xfe\xff", "UTF-32"),
+                       (b"\xff\xfe", "UTF-16"), (b"\xfe\xff", "UTF-16")):
+        if content.startswith(mark):
+            raise DesignFileError(
+                f"{shown} is saved as {name} text (it starts with a {name} byte order mark); "
+                "save it as UTF-8 and read it again.")
+    if content.startswith(b"\xef\xbb\xbf"):  # a UTF-8 byte order mark: harmless, dropped
+        content = content[3:]
     try:
-        raw = tomllib.loads(content.decode("utf-8"))
+        text = content.decode("utf-8")
+    except UnicodeDecodeError as exc:
+        line = content[:exc.start].count(b"\n") + 1
+        raise DesignFileError(
+            f"{shown} is not a UTF-8 text file: byte {exc.start + 1} (line {line}) is "
+            f"0x{content[exc.start]:02x}, which UTF-8 does not allow there. Save the file as "
+            "UTF-8.") from None
+    try:
+        return tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
-        raise DesignFileError(f"{path} is not valid TOML: {exc}.") from None
-    except UnicodeDecodeError:
-        raise DesignFileError(f"{path} is not a UTF-8 text file.") from None
-    return replace(parse_design(raw, source=str(path)), content=content)
+        raise DesignFileError(f"{shown} is not valid TOML: {printable(str(exc))}.") from None
 
 
 def parse_design(raw: dict[str, Any], *, source: str = "design") -> DesignFile:
@@ -190,6 +209,11 @@ def parse_design(raw: dict[str, Any], *, source: str = "design") -> DesignFile:
     (0.025, 't')
     """
     problems = Problems(source)
+    if raw == {}:
+        problems.add("", "the file has no keys or tables (it is empty, or holds only "
+                     "comments). A design needs at least an [endpoint] table and a "
+                     "[design_prior] table; docs/design-file.md lists every key.")
+        problems.raise_if_any()
     tables = _validate_tables(raw, problems)
     built = _Builder(tables, problems, source).build()
     problems.raise_if_any()
@@ -222,14 +246,14 @@ def _validate_tables(raw: Any, problems: Problems) -> dict[str, Any]:
     out: dict[str, Any] = {}
     for name, value in raw.items():
         if name not in fields:
-            hint = did_you_mean(name, fields)
-            problems.add("", f"unknown table or key {name!r} at the top level.{hint} Known: "
-                         f"{', '.join(fields)}.")
+            hint = did_you_mean(name, [f for f in fields if f not in raw])
+            problems.add("", f"unknown table or key {shown_key(name)} at the top level.{hint} "
+                         f"Known: {', '.join(fields)}.")
             continue
         try:
             out[name] = _adapters()[name].validate_python(value)
         except ValidationError as exc:
-            problems.add_validation(exc, prefix=(name,))
+            problems.add_validation(exc, prefix=(name,), raw=value)
             out[name] = _FAILED
     for name, f in fields.items():
         if name in out:
@@ -293,6 +317,9 @@ class _Builder:
             endpoint = self.attempt(
                 "endpoint", lambda: _endpoint(t["endpoint"], effect, self),
                 {"assumed_hazard_ratio": "effect.assumed"} if borrowed else None)
+        if endpoint is not _FAILED and endpoint.to_dict().get("kind") == "binary":
+            for problem in _binary_rate_problems(t["endpoint"], endpoint, effect, t["zones"]):
+                self.problems.add("", problem)
         rule = _FAILED if t["success"] is _FAILED else self.attempt(
             "success", lambda: _rule(t["success"]))
         design_prior, origin = _FAILED, None
@@ -329,8 +356,10 @@ class _Builder:
         elif t["precision"] is _FAILED:
             precision = _FAILED
         title = t["title"] if t["title"] is not _FAILED else None
-        if title is None:
-            title = Path(self.source).stem or "Untitled trial"
+        if title is None:  # the file's name, made safe for a title
+            from .schema import MAX_TITLE
+
+            title = printable(Path(self.source).stem).strip()[:MAX_TITLE] or "Untitled trial"
         design = _FAILED
         if _ok(endpoint, rule, design_prior, analysis_prior, sd_prior, effect):
             design = self.attempt("", lambda: _trial_design(
@@ -528,6 +557,58 @@ def _record(t: dict[str, Any], title: str, endpoint: Any) -> dict[str, Any]:
     return record
 
 
+def _binary_rate_problems(table: Any, endpoint: Any, effect: Any, zones: Any) -> list[str]:
+    """Effects that would put the treatment response rate outside [0, 1].
+
+    Power at ``effect.assumed``, ``effect.also_power_at`` and ``effect.relevant`` is
+    computed at the planning (or reference) rate, so each must give a rate in [0, 1] there.
+    Zone values are read on the posterior of the effect, in which the control rate of two
+    arms is uncertain: a difference must lie in [-1, 1]; for one arm the reference rate is
+    fixed, so the same bounds as the effects apply.
+    """
+    scale, p = endpoint.scale, float(endpoint.control_rate)
+    if scale == "odds_ratio":
+        return []  # every positive odds ratio gives a rate inside (0, 1)
+    rate_key = ("endpoint.reference_rate" if table.reference_rate is not None
+                else "endpoint.control_rate")
+    if scale == "difference":
+        low, high = -p, 1.0 - p
+        room = (f"on the difference scale, effects must lie between {low:g} and {high:g} "
+                f"at '{rate_key}' = {p:g}")
+    else:
+        low, high = 0.0, 1.0 / p
+        room = f"on the risk ratio scale, effects must be at most {high:g} at '{rate_key}' = {p:g}"
+
+    def rate(x: float) -> float:
+        return p + x if scale == "difference" else p * x
+
+    values: list[tuple[str, float]] = []
+    if effect is not _FAILED:
+        values += [("effect.assumed", effect.assumed), ("effect.relevant", effect.relevant)]
+        values += [(f"effect.also_power_at[{i}]", v) for i, v in enumerate(effect.also_power_at)]
+    out = []
+    for key, x in values:
+        if x is None or (scale == "risk_ratio" and x <= 0):  # a ratio <= 0 is refused anyway
+            continue
+        r = rate(x)
+        if not -1e-12 <= r <= 1 + 1e-12:
+            how = f"{p:g} + {x:g}" if scale == "difference" else f"{p:g} x {x:g}"
+            out.append(f"'{key}' = {x:g} gives a treatment response rate of {r:.4g} "
+                       f"({how}), outside [0, 1]; {room}.")
+    if zones is not None and zones is not _FAILED:
+        one_arm = endpoint.layout == "single_arm"
+        for name in ("min_acceptable", "target"):
+            x = getattr(zones, name)
+            if scale == "risk_ratio" and (x <= 0 or not one_arm):
+                continue
+            lo, hi = (low, high) if one_arm else (-1.0, 1.0)
+            if not lo - 1e-12 <= x <= hi + 1e-12:
+                where = room if one_arm else ("a difference in response rates lies between "
+                                              "-1 and 1")
+                out.append(f"'zones.{name}' = {x:g} cannot be reached: {where}.")
+    return out
+
+
 def _scale_note(endpoint: Any) -> str:
     """For ratio endpoints: on which scale [effect] and rule values are read."""
     if not endpoint.ratio_scale:
@@ -588,7 +669,7 @@ def _prior_and_origin(table: Any, where: str, builder: _Builder | None, endpoint
         if abs(math.fsum(weights) - 1.0) > 1e-9:
             raise DesignFileError(
                 f"the weights of '{where}.parts' must sum to 1; they sum to "
-                f"{math.fsum(weights):g} ({' + '.join(f'{w:g}' for w in weights)}).")
+                f"{math.fsum(weights):.10g} ({' + '.join(f'{w:g}' for w in weights)}).")
         return priors.Mixture(comps, weights), None
     if family == "scipy":
         return _scipy_prior(table, where), None
@@ -644,31 +725,59 @@ def _beta_rates(table: Any, where: str, endpoint: Any) -> Any:
 
 
 def _scipy_prior(table: Any, where: str) -> Any:
+    """A scipy.stats prior: a fast distribution, its parameters checked by name."""
+    from ..priors.families import (
+        FAST_SCIPY_DISTRIBUTIONS,
+        FromScipy,
+        scipy_parameter_names,
+        scipy_parameter_problems,
+        scipy_takes,
+    )
+
+    name = table.name
+    if name not in FAST_SCIPY_DISTRIBUTIONS:
+        from scipy import stats
+
+        known = isinstance(getattr(stats, name, None), stats.rv_continuous)
+        hint = "" if known else did_you_mean(name, FAST_SCIPY_DISTRIBUTIONS)
+        why = (f"scipy.stats.{name} computes its distribution and quantile functions "
+               "numerically at every point, which can take hours over a plan; only "
+               "distributions with fast ones are allowed" if known else
+               "it must name a continuous scipy.stats distribution with fast distribution "
+               "and quantile functions")
+        raise DesignFileError(
+            f"'{where}.name' = {name!r} cannot be used: {why} (e.g. logistic, gamma, "
+            f"lognorm, weibull_min, t; docs/design-file.md lists them all).{hint}")
     from scipy import stats
 
-    from ..priors.families import FromScipy
-
-    dist = getattr(stats, table.name, None)
-    if not isinstance(dist, stats.rv_continuous):
-        hint = did_you_mean(table.name, [n for n in dir(stats) if isinstance(
-            getattr(stats, n, None), stats.rv_continuous)])
-        raise DesignFileError(f"'{where}.name' must name a continuous scipy.stats "
-                              f"distribution (e.g. 'logistic', 'gamma'). Got "
-                              f"{table.name!r}.{hint}")
-    try:
-        frozen = dist(**table.parameters)
-        frozen.cdf(0.0)
-    except TypeError as exc:
-        raise DesignFileError(f"'{where}.parameters' do not fit scipy.stats.{table.name}: "
-                              f"{exc}.") from None
+    gen = getattr(stats, name)
+    problems = scipy_parameter_problems(gen, dict(table.parameters))
+    if problems:
+        texts = []
+        for parameter, text in problems:
+            if parameter and parameter in table.parameters:
+                hint = ""
+                if parameter not in scipy_parameter_names(gen):  # a misspelt name
+                    hint = did_you_mean(parameter, [n for n in scipy_parameter_names(gen)
+                                                    if n not in table.parameters])
+                texts.append(f"'{where}.parameters.{parameter}' {text}.{hint}")
+            elif parameter:  # a shape left out
+                texts.append(f"'{where}.parameters.{parameter}' {text}.")
+            else:
+                texts.append(f"'{where}.parameters' of scipy.stats.{name} {text}.")
+        texts[-1] += f" {scipy_takes(gen)}"
+        error = DesignFileError(texts[0])
+        error.problems = texts  # type: ignore[attr-defined]
+        raise error
+    frozen = gen(**table.parameters)
     with np.errstate(all="ignore"):
         finite = np.all(np.isfinite(frozen.support())) or np.isfinite(frozen.mean())
     if not finite:
-        raise DesignFileError(f"scipy.stats.{table.name} with {table.parameters} has no finite "
-                              f"mean ('{where}').")
-    if not np.isfinite(frozen.cdf(0.0)) or np.isnan(frozen.mean()):
-        raise DesignFileError(f"'{where}.parameters' {table.parameters} are not valid for "
-                              f"scipy.stats.{table.name}.")
+        given = ", ".join(f"{k}={v:g}" for k, v in table.parameters.items())
+        raise DesignFileError(
+            f"'{where}': scipy.stats.{name}({given}) has no finite mean; a design-file prior "
+            "needs one (use a distribution with lighter tails, e.g. 't' with df > 1, or "
+            "bounded support).")
     return FromScipy(frozen)
 
 
@@ -738,7 +847,7 @@ def _validated(annotation_name: str, table: Any, where: str, source: str) -> Any
     try:
         return _adapters()[annotation_name].validate_python(table)
     except ValidationError as exc:
-        problems.add_validation(exc, prefix=tuple(where.split(".")))
+        problems.add_validation(exc, prefix=tuple(where.split(".")), raw=table)
     problems.raise_if_any()
 
 
@@ -762,7 +871,8 @@ def prior_with_origin(table: dict[str, Any], where: str, source: str = "design",
         return _prior_and_origin(model, where, None, _RatioStandIn(ratio))
     except AssuranceInputError as exc:
         if isinstance(exc, DesignFileError):
-            problems.add("", str(exc))
+            for problem in getattr(exc, "problems", [str(exc)]):
+                problems.add("", problem)
         else:
             problems.add_domain(exc, where)
     problems.raise_if_any()

@@ -82,6 +82,8 @@ def _allowed(prop: dict[str, Any]) -> str:
     if "const" in prop:
         return _toml_value(prop["const"])
     if "enum" in prop:
+        if len(prop["enum"]) > _LONGEST_ENUM:
+            return "one of the names listed below the table"
         return ", ".join(_toml_value(v) for v in prop["enum"])
     for key in ("anyOf", "oneOf"):
         if key in prop:
@@ -105,6 +107,10 @@ def _allowed(prop: dict[str, Any]) -> str:
     if kind == "boolean":
         return "true or false"
     if kind == "string":
+        if prop.get("pattern") == _PLAIN:
+            return f"one line of text, at most {prop.get('maxLength')} characters"
+        if "maxLength" in prop:
+            return f"text, at most {prop['maxLength']} characters"
         return "text"
     if kind == "array":
         item = _allowed(prop.get("items", {})) if prop.get("items") else "values"
@@ -116,11 +122,25 @@ def _allowed(prop: dict[str, Any]) -> str:
         return f"list of {size}({item})" if size else f"list of ({item})"
     if kind == "object":
         extra = prop.get("additionalProperties")
+        if not isinstance(extra, dict) and prop.get("patternProperties"):
+            extra = next(iter(prop["patternProperties"].values()))
         if isinstance(extra, dict):
             return f"table of names = ({_allowed(extra)})"
         return "table"
     return "see meaning"
 
+
+#: choices listed in the table's cell up to this many; longer lists go below the table
+_LONGEST_ENUM = 20
+
+
+def _plain_pattern() -> str:
+    from .schema import _PLAIN_PATTERN
+
+    return _PLAIN_PATTERN
+
+
+_PLAIN = _plain_pattern()
 
 #: tables that are in force with their keys' defaults when the file leaves them out
 _WITH_DEFAULTS = {"success", "effect", "targets", "monte_carlo"}
@@ -239,6 +259,10 @@ def reference_markdown() -> str:
         family = d["properties"]["family"].get("const", name)
         out += [f"### family = \"{family}\"", "", d.get("description", ""), "",
                 *_rows(d), ""]
+        for key, prop in d["properties"].items():
+            if len(prop.get("enum", [])) > _LONGEST_ENUM:
+                names = ", ".join(f"`{v}`" for v in prop["enum"])
+                out += [f"Allowed `{key}` values: {names}.", ""]
     return "\n".join(out).rstrip() + "\n"
 
 

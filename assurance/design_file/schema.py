@@ -19,6 +19,7 @@ from __future__ import annotations
 from typing import Annotated, Any, Literal, Union
 
 from pydantic import (
+    AfterValidator,
     BaseModel,
     ConfigDict,
     Discriminator,
@@ -79,6 +80,40 @@ def key(default: Any = ..., help: str = "", *, scale: str | None = None,
     return Field(default, description=help, alias=alias, json_schema_extra=extra or None,
                  **constraints)
 
+
+#: Longest title, in characters (TrialDesign has the same bound).
+MAX_TITLE = 200
+#: Longest scipy.stats name or parameter name (the longest scipy name has 18 characters).
+MAX_NAME = 40
+
+
+def _first_control(text: str) -> int | None:
+    """Index of the first control character (C0 but tab, DEL, C1), or None."""
+    for i, ch in enumerate(text):
+        if (ch < " " and ch != "\t") or "\x7f" <= ch <= "\x9f":
+            return i
+    return None
+
+
+def _plain_text(value: str) -> str:
+    """Text on one line: no control characters (shown escaped, never raw), not blank."""
+    at = _first_control(value)
+    if at is not None:
+        raise ValueError(f"must be plain text on one line without control characters; "
+                         f"character {at + 1} is {ascii(value[at])}")
+    if not value.strip():
+        raise ValueError("must not be blank")
+    return value
+
+
+#: JSON Schema pattern for the same rule (editors check it as you type)
+_PLAIN_PATTERN = "^[^\\u0000-\\u0008\\u000a-\\u001f\\u007f-\\u009f]*$"
+Title = Annotated[str, Field(min_length=1, max_length=MAX_TITLE,
+                             json_schema_extra={"pattern": _PLAIN_PATTERN}),
+                  AfterValidator(_plain_text)]
+#: a scipy.stats name or parameter name: lower-case letters, digits and underscores
+ScipyName = Annotated[str, Field(min_length=1, max_length=MAX_NAME,
+                                 pattern=r"^[A-Za-z_][A-Za-z0-9_]*$")]
 
 Positive = Annotated[float, Field(gt=0)]
 Probability = Annotated[float, Field(gt=0, lt=1)]
@@ -192,13 +227,32 @@ class GammaPrecisionPrior(Table):
     rate: Positive = key(help="Rate, > 0.", scale="outcome unit squared")
 
 
+def _scipy_names(schema: dict[str, Any]) -> None:
+    """The allowed scipy.stats names, for editors (read when the JSON Schema is made)."""
+    from ..priors.families import FAST_SCIPY_DISTRIBUTIONS
+
+    schema["enum"] = sorted(FAST_SCIPY_DISTRIBUTIONS)
+    schema.pop("pattern", None)
+
+
 class ScipyPrior(Table):
-    """Any continuous distribution of scipy.stats."""
+    """A continuous distribution of scipy.stats with fast distribution and quantile functions.
+
+    Only distributions whose distribution and quantile functions are closed form or fast
+    special functions are allowed (listed below); the others (levy_stable,
+    studentized_range, ...) compute them numerically at every point and can take hours over
+    a plan. The parameters are checked by name: each must be a number in the range scipy
+    allows (scale > 0), and the quantiles must be finite.
+    """
 
     family: Literal["scipy"] = key("scipy", "A continuous scipy.stats distribution by name.")
-    name: str = key(help="Name in scipy.stats, e.g. 'logistic' or 'gamma'.")
-    parameters: dict[str, float] = key(
-        {}, "Its parameters by name, e.g. { a = 36.0, scale = 0.0167 }.",
+    name: Annotated[ScipyName, WithJsonSchema(
+        {"type": "string", "maxLength": MAX_NAME})] = Field(
+        description="Name in scipy.stats, e.g. 'logistic' or 'gamma' (see the list below "
+        "the table).",
+        json_schema_extra=_scipy_names)
+    parameters: Annotated[dict[ScipyName, float], Field(max_length=12)] = key(
+        {}, "Its parameters by name (shapes, loc, scale), e.g. { a = 36.0, scale = 0.0167 }.",
         scale=_PRIOR_SCALE_TEXT)
 
 
@@ -324,8 +378,9 @@ _EVIDENCE_PRIORS: dict[str, type[Table]] = {
 #: mixture parts: each simple family with a weight
 _PARTS: dict[str, type[Table]] = {
     name: create_model(f"{cls.__name__}Part", __base__=cls, __doc__=cls.__doc__,
-                       weight=(Positive, key(help="Weight of this part; the weights of all "
-                                             "parts sum to 1.")))
+                       weight=(Annotated[float, Field(gt=0, le=1)],
+                               key(help="Weight of this part, in (0, 1]; the weights of all "
+                                   "parts sum to 1.")))
     for name, cls in _SIMPLE_PRIORS.items()
 }
 
@@ -592,7 +647,7 @@ class SizesTable(Table):
         None, "Step between sizes (none: about 50 sizes).", scale="patients")
     list_: list[Size] | None = key(
         None, "Explicit total sizes instead of from/to/step.", alias="list", scale="patients",
-        min_length=1)
+        min_length=1, max_length=MAX_SIZES)
 
     @model_validator(mode="after")
     def _one_form(self) -> SizesTable:
@@ -662,8 +717,9 @@ class MonteCarloTable(Table):
 class DesignFileModel(Table):
     """A whole design file."""
 
-    title: Annotated[str, Field(min_length=1)] | None = key(
-        None, "Name of the trial for the memo (none: the file's name).")
+    title: Title | None = key(
+        None, f"Name of the trial for the memo: one line of plain text, at most {MAX_TITLE} "
+        "characters (none: the file's name).")
     endpoint: EndpointTable = key(help="What is measured and how it is analysed.")
     success: SuccessTable = key(default_factory=SignificanceTable,
                                 help="When the trial counts as a success.")
