@@ -46,10 +46,14 @@ from assurance import (
     solve_sample_size,
 )
 from assurance.compute.binary_exact import (
+    SuccessRegion,
     TestSpec,
+    fisher_critical_counts,
     posterior_below,
     restricted_rates,
     success_region,
+    success_runs,
+    two_arm_z,
 )
 from assurance.compute.normal_outcome import Cut
 from assurance.design_file import endpoint_from_table, prior_from_table
@@ -82,6 +86,15 @@ def region_by_loop(test, n_t, n_c, alpha, *, sign=1.0, continuity=False):
                     continue  # a zero margin: no test (chi2_contingency refuses it)
                 res = stats.chi2_contingency(table, correction=continuity)
                 out[x_t, x_c] = favourable and res.pvalue <= 2 * alpha
+            elif test == "unpooled_z":  # Wald statistic written out by hand
+                pt, pc = x_t / n_t, x_c / n_c
+                cc = 0.5 * (1 / n_t + 1 / n_c) if continuity else 0.0
+                num = sign * (pt - pc) - cc
+                var = pt * (1 - pt) / n_t + pc * (1 - pc) / n_c
+                if var == 0:  # each arm all or none: z = +-inf by the numerator's sign
+                    out[x_t, x_c] = num > 0
+                else:
+                    out[x_t, x_c] = num / math.sqrt(var) >= stats.norm.isf(alpha)
             else:  # pooled z written out by hand
                 pooled = (x_t + x_c) / (n_t + n_c)
                 var = pooled * (1 - pooled) * (1 / n_t + 1 / n_c)
@@ -208,13 +221,15 @@ def test_normal_approximation_beyond_the_switch_point():
 @pytest.mark.parametrize(
     ("test", "continuity", "better"),
     [("z", False, "higher"), ("z", True, "higher"), ("z", False, "lower"),
+     ("unpooled_z", False, "higher"), ("unpooled_z", True, "lower"),
      ("chi_square", False, "higher"), ("chi_square", True, "lower"),
      ("fisher_exact", False, "higher"), ("fisher_exact", False, "lower")],
 )
 def test_exact_power_matches_enumeration(test, continuity, better):
     # Region: scipy.stats.fisher_exact (one-sided), scipy.stats.chi2_contingency (Pearson,
     # with and without Yates' correction; two-sided at 2 alpha and favourable direction),
-    # or the pooled z statistic written out per table. Power: scipy.stats.binom sums.
+    # or the pooled / unpooled z statistic written out per table. Power: scipy.stats.binom
+    # sums.
     ep = BinaryEndpoint(0.35, test=test, continuity_correction=continuity, better=better)
     sign = ep.sign
     spec = TestSpec(test, 0.025, sign, "difference", True, continuity=continuity)
@@ -248,6 +263,194 @@ def test_minimum_observed_effect_joins_the_region():
     region &= observed >= 0.25
     ours = calculator(ep, PointMass(0.0), rule).power(0.2, np.array([NT]), np.array([NC]))[0]
     assert ours == pytest.approx(power_by_enumeration(region, NT, NC, 0.5, 0.3), abs=ENUM_TOL)
+
+
+# ------------------------------------------------------------------------------------------
+# the unpooled (Wald) z test
+# ------------------------------------------------------------------------------------------
+def test_unpooled_z_matches_textbook_examples():
+    # Agresti (2007), An Introduction to Categorical Data Analysis, 2nd ed., Section 2.2.2,
+    # Table 2.2 (Physicians' Health Study): heart attacks in 189 of 11,034 physicians on
+    # placebo and 104 of 11,037 on aspirin; difference 0.0171 - 0.0094 = 0.0077 (text seen);
+    # its standard error 0.0015 and the Wald 95% interval (0.005, 0.011) from memory.
+    # Heart attacks are adverse: lower rates are better, aspirin is the treatment.
+    spec = TestSpec("unpooled_z", 0.025, -1.0, "difference", True)
+    diff = 189 / 11034 - 104 / 11037
+    se = diff / float(two_arm_z(spec, 104, 189, 11037, 11034))
+    assert round(diff, 4) == 0.0077
+    assert round(se, 4) == 0.0015
+    assert (round(diff - 1.96 * se, 3), round(diff + 1.96 * se, 3)) == (0.005, 0.011)
+    # The region at these sizes (11,035 control counts, bisection per count): for 189 on
+    # placebo, success up to the largest aspirin count whose hand-written Wald z reaches
+    # z_0.975, computed here over every count.
+    runs = {c: (lo, hi) for c, lo, hi in success_runs(spec, 11037, 11034).runs()}
+    x = np.arange(11038)
+    pt, pc = x / 11037, 189 / 11034
+    z = (pc - pt) / np.sqrt(pt * (1 - pt) / 11037 + pc * (1 - pc) / 11034)
+    assert runs[189] == (0, int(x[z >= stats.norm.isf(0.025)].max()))
+    assert runs[189][1] >= 104
+    # Moore, McCabe & Craig, Introduction to the Practice of Statistics, 7th ed., Exercise
+    # 8.62 (aspirin after stroke: favourable in 63 of 78 treated, 43 of 77 controls): the
+    # difference 0.249 has standard error 0.0721 (the worked solution published by a course
+    # using the book, sewkzh17.mywhc.ca/vhm801/2018w/ex/08_062.txt; the book's own answer
+    # not seen).
+    spec = TestSpec("unpooled_z", 0.025, 1.0, "difference", True)
+    diff = 63 / 78 - 43 / 77
+    assert round(diff, 3) == 0.249
+    assert round(diff / float(two_arm_z(spec, 63, 43, 78, 77)), 4) == 0.0721
+    region = region_by_loop("unpooled_z", 78, 77, 0.025)
+    assert region[63, 43]
+    assert np.array_equal(success_region(spec, 78, 77), region)
+
+
+def test_unpooled_z_type_one_error_is_reported_and_can_exceed_alpha():
+    # The results carry P(success) at the null (both arms at the control rate) per size;
+    # for the Wald test it is the enumeration over its own region (scipy.stats.binom here).
+    # The Wald test is liberal in small trials (common practice): at 5 and 10 per arm and
+    # rate 0.3 its size is 0.039 and 0.047 against 0.025 one-sided.
+    sizes = [10, 20, 30, 40]
+    ds = evaluate(TrialDesign(BinaryEndpoint(0.3, test="unpooled_z"), Normal(0.1, 0.05),
+                              rule=RULE), sizes)
+    for total, value in zip(sizes, ds.type_one_error.values, strict=True):
+        n = total // 2
+        ref = power_by_enumeration(region_by_loop("unpooled_z", n, n, 0.025), n, n, 0.3, 0.3)
+        assert value == pytest.approx(ref, abs=ENUM_TOL)
+    assert float(ds.type_one_error.max()) > 0.025
+    assert float(ds.type_one_error[1]) == pytest.approx(0.0474, abs=5e-5)  # computed above
+
+
+def test_unpooled_z_non_inferiority_counts_empty_arms_as_success():
+    # Wald non-inferiority test, margin 0.1 (higher better): z = (p_t - p_c + 0.1) / se with
+    # the unpooled se. Both arms without responders: se 0 and numerator 0.1, z = +inf, so
+    # the test declares non-inferiority (its known blind spot). Region by hand; type I error
+    # at p_t = p_c - 0.1 by scipy.stats.binom, through the results of evaluate.
+    n = 12
+    region = np.zeros((n + 1, n + 1), dtype=bool)
+    for x_t in range(n + 1):
+        for x_c in range(n + 1):
+            pt, pc = x_t / n, x_c / n
+            num = pt - pc + 0.1
+            var = pt * (1 - pt) / n + pc * (1 - pc) / n
+            region[x_t, x_c] = num > 0 if var == 0 else num / math.sqrt(var) >= 1.959963984540054
+    assert region[0, 0] and region[n, n]
+    ep = BinaryEndpoint(0.2, test="unpooled_z")
+    rule = Significance(0.025, margin=0.1)
+    spec = TestSpec("unpooled_z", 0.025, 1.0, "difference", True, null_shift=-0.1)
+    assert np.array_equal(success_region(spec, n, n), region)
+    ds = evaluate(TrialDesign(ep, Normal(0.0, 0.05), rule=rule), [2 * n])
+    assert float(ds.type_one_error[0]) == pytest.approx(
+        power_by_enumeration(region, n, n, 0.1, 0.2), abs=ENUM_TOL)
+
+
+@pytest.mark.parametrize(("p_c", "p_t", "n"), [(0.2, 0.4, 82), (0.6, 0.75, 150), (0.3, 0.4, 300)])
+def test_unpooled_normal_power_matches_statsmodels(p_c, p_t, n):
+    # Beyond the exact range the Wald test's power is Phi(d / se1 - z) with se1 the unpooled
+    # standard error at the true rates (null and alternative alike): statsmodels
+    # NormalIndPower with effect size d / s, s^2 = (p_t q_t + p_c q_c) / 2 (equal arms).
+    from statsmodels.stats.power import NormalIndPower
+
+    ep = BinaryEndpoint(p_c, test="unpooled_z", exact_up_to=0)
+    ours = calculator(ep, PointMass(0.0), RULE).power(p_t - p_c, np.array([n]), np.array([n]))
+    s = math.sqrt((p_t * (1 - p_t) + p_c * (1 - p_c)) / 2)
+    ref = NormalIndPower().power(effect_size=(p_t - p_c) / s, nobs1=n, alpha=0.025, ratio=1.0,
+                                 alternative="larger")
+    assert float(ours[0]) == pytest.approx(ref, abs=1e-10)
+
+
+# ------------------------------------------------------------------------------------------
+# success regions as runs: staircases and sums
+# ------------------------------------------------------------------------------------------
+def _natural_by_hand(pt, pc, scale):
+    with np.errstate(divide="ignore", invalid="ignore"):
+        if scale == "difference":
+            out = pt - pc
+        elif scale == "risk_ratio":
+            out = np.log(pt) - np.log(pc)
+        else:
+            out = np.log(pt / (1 - pt)) - np.log(pc / (1 - pc))
+    return np.where(np.isnan(out), 0.0, out)  # 0/0: no effect
+
+
+def _grid_by_hand(test, n_t, n_c, alpha, sign, continuity, scale, min_estimate):
+    """Decisions on the whole (x_t, x_c) grid, vectorised numpy and scipy.stats.hypergeom."""
+    x_t = np.arange(n_t + 1)[:, None]
+    x_c = np.arange(n_c + 1)[None, :]
+    pt, pc = x_t / n_t, x_c / n_c
+    if test == "fisher_exact":
+        s, big = x_t + x_c, n_t + n_c
+        p = (stats.hypergeom.sf(x_t - 1, big, n_t, s) if sign > 0
+             else stats.hypergeom.cdf(x_t, big, n_t, s))
+        out = p <= alpha * (1 + 1e-7)
+    else:
+        cc = 0.5 * (1 / n_t + 1 / n_c) if continuity else 0.0
+        num = sign * (pt - pc) - cc
+        if test == "unpooled_z":
+            var = pt * (1 - pt) / n_t + pc * (1 - pc) / n_c
+        else:
+            pooled = (x_t + x_c) / (n_t + n_c)
+            var = pooled * (1 - pooled) * (1 / n_t + 1 / n_c)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            z = num / np.sqrt(var)
+        out = z >= stats.norm.isf(alpha)
+        if test == "unpooled_z":
+            out = np.where(var == 0, num > 0, out)
+        else:
+            out &= var > 0
+    if min_estimate is not None:
+        out &= sign * _natural_by_hand(pt, pc, scale) >= min_estimate
+    return out
+
+
+@settings(max_examples=60, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(n_t=st.integers(1, 200), n_c=st.integers(1, 200),
+       test=st.sampled_from(["z", "unpooled_z", "chi_square", "fisher_exact"]),
+       better=st.sampled_from(["higher", "lower"]),
+       alpha=st.sampled_from([0.001, 0.01, 0.025, 0.05, 0.2, 0.45]), continuity=st.booleans(),
+       scale=st.sampled_from(["difference", "risk_ratio", "odds_ratio"]),
+       min_estimate=st.one_of(st.none(), st.floats(-0.3, 0.6)))
+def test_staircase_regions_equal_table_by_table_decisions(n_t, n_c, test, better, alpha,
+                                                          continuity, scale, min_estimate):
+    # The regions are found by bisection per control count (and, for Fisher's test, from
+    # critical counts per total summed over a band); every table decided independently
+    # (numpy by hand, scipy.stats.hypergeom for Fisher) must give the same region.
+    continuity = continuity and test != "fisher_exact"
+    sign = 1.0 if better == "higher" else -1.0
+    spec = TestSpec(test, alpha, sign, scale, True, continuity=continuity,
+                    min_estimate=min_estimate)
+    runs = success_runs(spec, n_t, n_c)
+    assert np.unique(runs.col).size == runs.col.size  # one run per control count
+    assert np.array_equal(runs.dense(), _grid_by_hand(test, n_t, n_c, alpha, sign,
+                                                      continuity, scale, min_estimate))
+
+
+@pytest.mark.parametrize(("n_t", "n_c", "alpha"),
+                         [(300, 200, 0.025), (150, 400, 0.001), (250, 250, 0.2)])
+def test_fisher_critical_counts_match_scipy_hypergeom(n_t, n_c, alpha):
+    # For every total s, the smallest x_t with P(X_t >= x_t | s) <= alpha: from
+    # scipy.stats.hypergeom.sf over every x_t (the package sums a band of the tail only).
+    big = n_t + n_c
+    s = np.arange(big + 1)[None, :]
+    x = np.arange(n_t + 2)[:, None]
+    ref = np.sum(stats.hypergeom.sf(x - 1, big, n_t, s) > alpha * (1 + 1e-7), axis=0)
+    assert np.array_equal(fisher_critical_counts(n_t, n_c, alpha * (1 + 1e-7)), ref)
+
+
+def test_sums_over_runs_equal_dense_matrix_products():
+    # Random regions with several runs per control count, empty columns and single arms:
+    # the sums over runs against numpy matrix products with the dense 0/1 region.
+    rng = np.random.default_rng(11)
+    for _ in range(60):
+        n_t, n_c = int(rng.integers(1, 30)), int(rng.integers(0, 30))
+        mask = rng.random((n_t + 1, n_c + 1)) < rng.random()
+        region = SuccessRegion.from_dense(mask)
+        assert np.array_equal(region.dense(), mask) and region.tables() == mask.sum()
+        dense = mask.astype(float)
+        pmf_t, pmf_c = rng.dirichlet(np.ones(n_t + 1)), rng.dirichlet(np.ones(n_c + 1))
+        w_c, w_t = rng.random((4, n_c + 1)), rng.random((4, n_t + 1))
+        assert region.probability(pmf_t, pmf_c) == pytest.approx(pmf_t @ dense @ pmf_c,
+                                                                 abs=1e-15)
+        np.testing.assert_allclose(region.by_treatment(w_c), w_c @ dense.T, rtol=0, atol=1e-13)
+        np.testing.assert_allclose(region.by_control(w_t), w_t @ dense, rtol=0, atol=1e-13)
 
 
 # ------------------------------------------------------------------------------------------
@@ -681,6 +884,7 @@ def test_point_mass_assurance_is_power(p_c, effect, n_t, n_c, scale, test):
      ({"control_rate": 0.3, "test": "t"}, "test"),
      ({"control_rate": 0.3, "test": "exact_binomial"}, "test"),
      ({"control_rate": 0.3, "layout": "single_arm", "test": "fisher_exact"}, "test"),
+     ({"control_rate": 0.3, "layout": "single_arm", "test": "unpooled_z"}, "test"),
      ({"control_rate": 0.3, "scale": "hazard_ratio"}, "scale"),
      ({"control_rate": 0.3, "better": "up"}, "better"),
      ({"control_rate": 0.3, "control_prior": (0.0, 2.0)}, "control_prior"),

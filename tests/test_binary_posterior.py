@@ -49,6 +49,7 @@ from assurance.compute.binary_exact import (
     RateArm,
     posterior_probabilities,
     posterior_region,
+    posterior_runs,
 )
 from assurance.compute.normal_outcome import Cut
 from assurance.design_file import parse_design
@@ -167,6 +168,33 @@ def test_bisection_region_equals_full_grid_for_larger_arms():
                              RateArm.beta(12.0, 28.0))
         full = posterior_probabilities(spec, 90, 60) >= 0.975 - 1e-12
         assert np.array_equal(posterior_region(spec, 90, 60), full)
+
+
+@pytest.mark.parametrize("better", ["higher", "lower"])
+def test_runs_and_their_sums_for_larger_arms(better):
+    # The region is kept as one run of x_t per control count (from the top when higher is
+    # better, from 0 when lower is better) and summed with prefix sums; against the region
+    # thresholded on all 91 x 61 tables, power by scipy.stats.binom and assurance by
+    # scipy.stats.betabinom summed over that dense region.
+    sign = 1.0 if better == "higher" else -1.0
+    spec = PosteriorSpec(0.95, 0.0, sign, "difference", True, RateArm.beta(1.0, 1.0),
+                         RateArm.beta(1.0, 1.0))
+    full = posterior_probabilities(spec, 90, 60) >= 0.95 - 1e-12
+    runs = posterior_runs(spec, 90, 60)
+    assert np.array_equal(runs.dense(), full)
+    assert np.all((runs.hi == 90) if better == "higher" else (runs.lo == 0))
+    ep = BinaryEndpoint(0.3, allocation=1.5, better=better)
+    assert ep.arm_sizes(np.array([150])) == (90, 60)
+    calc = calculator(ep, BetaRates((6.0, 14.0), (9.0, 11.0)), PosteriorProbability(0.95),
+                      UNIFORM)
+    effect = 0.15 if better == "higher" else -0.15
+    power = calc.power(ep.to_benefit(effect), np.array([90]), np.array([60]))[0]
+    assert power == pytest.approx(
+        power_by_enumeration(full.astype(float), 90, 60, 0.3 + effect, 0.3), abs=ENUM_TOL)
+    success = calc.success(np.array([90]), np.array([60]), []).success[0]
+    assert success == pytest.approx(
+        assurance_by_enumeration(full.astype(float), 90, 60, (9.0, 11.0), (6.0, 14.0)),
+        abs=ENUM_TOL)
 
 
 def test_quadrature_is_accurate_for_very_unequal_arms():

@@ -518,7 +518,7 @@ class SuccessRegion:
         :func:`binomial_pmf` gives), the result ``(K, n_t + 1)``: ``weights_c @ R.T``.
         """
         col = self.col
-        if col.size and col[-1] - col[0] + 1 == col.size:  # consecutive control counts
+        if col.size and np.all(col[1:] - col[:-1] == 1):  # consecutive control counts
             w = weights_c[..., col[0]:col[-1] + 1]
         else:
             w = weights_c[..., col]
