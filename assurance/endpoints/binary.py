@@ -421,11 +421,15 @@ class BinaryEndpoint(Endpoint):
     Notes
     -----
     **Exact enumeration.** For arm sizes ``(n_t, n_c)`` the success region ``R`` (outcomes
-    ``(x_t, x_c)`` at which the test succeeds) is computed once on the whole outcome grid.
-    Classical power at rates ``(p_t, p_c)`` is ``sum_R Bin(x_t; n_t, p_t) Bin(x_c; n_c,
-    p_c)``. Under a :class:`BetaRates` prior the prior predictive of each arm is
-    beta-binomial and assurance ``= sum_R BB(x_t; n_t, a_t, b_t) BB(x_c; n_c, a_c, b_c)``,
-    exact, no simulation (O'Hagan, Stevens & Campbell 2005 in its exact binomial form).
+    ``(x_t, x_c)`` at which the test succeeds) is computed once, as runs of treatment counts
+    per control count (:class:`~assurance.compute.binary_exact.SuccessRegion`): without a
+    margin every test's region is a staircase ``x_t >= t(x_c)`` (``x_t <= u(x_c)`` when lower
+    is better) whose steps are found by bisection, and every sum over ``R`` below is a sum
+    of prefix sums along ``x_t`` -- no dense matrix, no matrix product. Classical power at
+    rates ``(p_t, p_c)`` is ``sum_R Bin(x_t; n_t, p_t) Bin(x_c; n_c, p_c)``. Under a
+    :class:`BetaRates` prior the prior predictive of each arm is beta-binomial and assurance
+    ``= sum_R BB(x_t; n_t, a_t, b_t) BB(x_c; n_c, a_c, b_c)``, exact, no simulation
+    (O'Hagan, Stevens & Campbell 2005 in its exact binomial form).
 
     **Decomposition.** ``P(success and benefit > a)`` needs the joint law of outcome and
     rates: with ``q`` the rate of the arm whose prior is narrower (say control) and ``h(a,
@@ -483,8 +487,18 @@ class BinaryEndpoint(Endpoint):
 
     **Non-inferiority** margins (``Significance(margin=...)``) are supported for two arms on
     the difference scale with the z test (variance at the Farrington-Manning restricted
-    rates), and for a single arm on any scale (the reference rate is shifted by the margin).
-    Two-arm ratio margins and margins with the chi-square or Fisher test are refused.
+    rates) or the unpooled z test (Wald: observed rates; a trial with no responders in
+    either arm then succeeds, which its reported type I error shows), and for a single arm
+    on any scale (the reference rate is shifted by the margin). Two-arm ratio margins and
+    margins with the chi-square or Fisher test are refused.
+
+    **Type I error.** The results' ``type_one_error`` is the exact probability of success
+    with both rates at the null (the treatment rate at the control rate, shifted by any
+    margin), enumerated over the test's own region: for Fisher's test it stays below the
+    level, for the unpooled z test it can exceed it in small trials (0.047 at 10 per arm,
+    control rate 0.3, one-sided 0.025). Beyond ``exact_up_to`` it is the normal
+    approximation's: the level for the z tests (below it with a continuity correction),
+    close to it with a margin.
 
     References
     ----------
