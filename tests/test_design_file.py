@@ -201,3 +201,39 @@ def test_elicited_design_writes_the_fit_figure(tmp_path):
     assert main(["plan", str(path), "--out", str(out), "--quiet"]) == 0
     assert (out / "figures" / "prior_fit.png").stat().st_size > 0
     assert "elicited judgements" in (out / "memo.html").read_text()
+
+
+def test_a_byte_order_mark_is_read_and_kept_in_the_copy(tmp_path):
+    text = 'title = "With a mark"\n[endpoint]\nsd = 10\n[design_prior]\nfamily = "normal"\n' \
+           'mean = 4\nsd = 2\n'
+    path = tmp_path / "bom.toml"
+    path.write_bytes(b"\xef\xbb\xbf" + text.encode())
+    spec = read_design_file(path)
+    assert spec.design.title == "With a mark"
+    assert spec.content == b"\xef\xbb\xbf" + text.encode()  # the copy is byte for byte
+
+
+def test_a_title_taken_from_the_file_name_is_made_safe(tmp_path):
+    text = '[endpoint]\nsd = 10\n[design_prior]\nfamily = "normal"\nmean = 4\nsd = 2\n'
+    path = tmp_path / ("x" * 240 + ".toml")
+    path.write_text(text)
+    assert read_design_file(path).design.title == "x" * 200
+    path = tmp_path / "tab\there\x07.toml"
+    path.write_text(text)
+    assert read_design_file(path).design.title == "tab\\there\\x07"
+
+
+@pytest.mark.parametrize(("parameters", "words"), [
+    ({"a": 2.0, "scale": -0.5}, ["'design_prior.parameters.scale' must be a finite number > 0",
+                                 "Got -0.5"]),
+    ({"a": 2.0, "sclae": 0.5}, ["'design_prior.parameters.sclae' is not a parameter",
+                                "Did you mean 'scale'?", "takes a, loc, scale"]),
+    ({"a": 2.0, "loc": 1e308, "scale": 1e308}, ["'design_prior.parameters' of scipy.stats.gamma",
+                                                "quantiles"]),
+])
+def test_scipy_prior_tables_name_the_parameter(parameters, words):
+    with pytest.raises(DesignFileError) as info:
+        prior_from_table({"family": "scipy", "name": "gamma", "parameters": parameters},
+                         "design_prior")
+    for word in words:
+        assert word in str(info.value), (word, str(info.value))

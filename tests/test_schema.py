@@ -13,6 +13,7 @@ from __future__ import annotations
 import dataclasses
 import inspect
 import json
+import re
 import tomllib
 from pathlib import Path
 
@@ -112,6 +113,10 @@ def test_json_schema_accepts_every_case_study(path):
     _with(success__sided="both"),                        # not an allowed choice
     _with(targets__power=1.5),
     {k: v for k, v in GOOD.items() if k != "design_prior"},   # required table missing
+    _with(title="Trial \u001b[31m red"),                     # a control character
+    _with(title="x" * 201),                                  # too long
+    _with(design_prior={"family": "scipy", "name": "levy_stable",     # slow functions
+                        "parameters": {"alpha": 1.5, "beta": 0.0}}),
 ])
 def test_json_schema_rejects_typical_mistakes(raw):
     validator = jsonschema.Draft202012Validator(json_schema())
@@ -383,3 +388,45 @@ def test_record_fills_in_what_the_file_left_to_defaults():
     assert spec.record["success"] == {"rule": "significance", "alpha": 0.025, "sided": "one",
                                       "margin": 0.0}
     assert spec.record["title"] == "trial"
+
+
+# ---- text ---------------------------------------------------------------------------------
+def test_the_schema_and_trial_design_refuse_the_same_title_characters():
+    from assurance import ContinuousEndpoint, Normal, TrialDesign
+    from assurance.design import MAX_TITLE as PYTHON_MAX
+    from assurance.design_file.schema import MAX_TITLE as FILE_MAX
+    from assurance.errors import AssuranceInputError
+
+    assert FILE_MAX == PYTHON_MAX == 200
+    design = (ContinuousEndpoint(10.0), Normal(4.0, 2.0))
+    differ = []
+    for code in [*range(0x00, 0x100), 0x2028, 0x202E, 0xFEFF]:
+        title = f"Trial {chr(code)} one"
+        try:
+            parse_design(_with(title=title))
+            file_ok = True
+        except DesignFileError:
+            file_ok = False
+        try:
+            TrialDesign(*design, title=title)
+            python_ok = True
+        except AssuranceInputError:
+            python_ok = False
+        if file_ok != python_ok:
+            differ.append(hex(code))
+    assert differ == []
+    refused = [c for c in range(0x100) if c != 9 and (c < 0x20 or 0x7F <= c <= 0x9F)]
+    for code in refused:  # C0 but tab, DEL, C1
+        with pytest.raises(DesignFileError, match="without control characters"):
+            parse_design(_with(title=f"a{chr(code)}b"))
+
+
+def test_the_reference_page_lists_the_allowed_scipy_distributions():
+    from assurance.priors.families import FAST_SCIPY_DISTRIBUTIONS
+
+    page = reference_markdown()
+    line = next(t for t in page.splitlines() if t.startswith("Allowed `name` values:"))
+    listed = set(re.findall(r"`(\w+)`", line.split(":", 1)[1]))
+    assert listed == FAST_SCIPY_DISTRIBUTIONS
+    assert json_schema()["$defs"]["ScipyPrior"]["properties"]["name"]["enum"] == sorted(
+        FAST_SCIPY_DISTRIBUTIONS)
