@@ -44,7 +44,7 @@ all). A complete example::
     draws = 20000
     seed = 2026
 
-Every unknown key is an error naming the nearest known key.
+Every unknown key is an error listing the known keys (and one of close spelling, if any).
 
 Reading happens in three passes, and every problem found in any of them is reported
 together: the schema checks each table's keys, types and ranges; the tables are turned into

@@ -188,8 +188,10 @@ def reference_markdown() -> str:
         "when this page and the schema differ. Do not edit by hand. -->",
         "",
         "A design file is a [TOML](https://toml.io) file of tables. Only the keys below are "
-        "allowed; a misspelt key is an error that names the nearest known key. Numbers must "
-        "be numbers (`10` or `10.0`, never `\"10\"`) and finite; flags are `true` or `false`. "
+        "allowed; an unknown key is an error that lists the known keys and names one of close "
+        "spelling, if there is one. Numbers must be numbers (`10` or `10.0`, never `\"10\"`) "
+        "and finite; flags are `true` or `false`; the title is one line of plain text (no "
+        "control characters). The file is UTF-8 text (a leading byte order mark is allowed). "
         "Every problem in a file is reported in one run, each with its table, key, value and "
         "what is allowed (`assurance check FILE`), and a file that passes `check` is not "
         "rejected by `plan` for its inputs.",

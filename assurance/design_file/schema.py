@@ -8,10 +8,12 @@ page ``docs/design-file.md`` and the JSON Schema for editors
 (``docs/design-file.schema.json``); see :mod:`assurance.design_file.reference`.
 
 Keys are checked strictly: numbers must be numbers (``10`` or ``10.0``, never ``"10"``),
-finite, and inside their range; flags are ``true`` or ``false``; a key this schema does not
-declare is an error that names the nearest declared key. What one table alone cannot decide
-(a hazard ratio prior on a continuous endpoint, a relevant effect with no prior mass beyond
-it) is checked when the design is built, in :mod:`assurance.design_file.reader`.
+finite, and inside their range; flags are ``true`` or ``false``; titles are one line of plain
+text (no control characters, at most 200 characters); a key this schema does not declare is
+an error that lists the declared keys and names one of close spelling, if there is one.
+What one table alone cannot decide (a hazard ratio prior on a continuous endpoint, a relevant
+effect with no prior mass beyond it, a binary effect that gives a response rate outside
+[0, 1]) is checked when the design is built, in :mod:`assurance.design_file.reader`.
 """
 
 from __future__ import annotations
@@ -111,7 +113,7 @@ _PLAIN_PATTERN = "^[^\\u0000-\\u0008\\u000a-\\u001f\\u007f-\\u009f]*$"
 Title = Annotated[str, Field(min_length=1, max_length=MAX_TITLE,
                              json_schema_extra={"pattern": _PLAIN_PATTERN}),
                   AfterValidator(_plain_text)]
-#: a scipy.stats name or parameter name: lower-case letters, digits and underscores
+#: a scipy.stats name or parameter name: letters, digits and underscores
 ScipyName = Annotated[str, Field(min_length=1, max_length=MAX_NAME,
                                  pattern=r"^[A-Za-z_][A-Za-z0-9_]*$")]
 
