@@ -726,7 +726,7 @@ def fisher_critical_counts(n_t: int, n_c: int, cutoff: float) -> np.ndarray:
     most ``f / (1 - r)`` (``f`` the first term left out, ``r`` its ratio to the last term
     kept); the band is used only if that bound is below ``FISHER_BAND_SLACK * cutoff`` for
     every total and the band starts where the tail still exceeds the cutoff, otherwise the
-    whole ``(x_t, s)`` grid is summed.
+    whole support of every total is summed (at most ``(N + 1)(min(n_t, n_c) + 1)`` terms).
 
     Examples
     --------
@@ -742,17 +742,22 @@ def fisher_critical_counts(n_t: int, n_c: int, cutoff: float) -> np.ndarray:
     lift = max(float(-special.ndtri(cutoff)) - 2.0, 0.0)  # start 2 SD below the critical
     top = float(-special.ndtri(FISHER_BAND_SLACK * cutoff)) + 1.0
     width = int(math.ceil((top - lift) * float(sd.max()))) + 12
-    if 2 * width < n_t:
-        start = np.clip(np.floor(s * (n_t / n) + lift * sd).astype(np.int64) - 1, lo_s, hi_s)
-        # log pmf at x = start + j, j = 0..width, from sliding windows of the log binomial
-        # coefficients (-inf beyond the support, so the pmf is 0 there)
+
+    def band(start: np.ndarray, width: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """pmf at ``start + width`` and ``start + width - 1``, and the tails from the band's
+        top down (``tail[:, -1]`` at ``x = start``). The log pmf comes from sliding windows
+        of the log binomial coefficients, -inf beyond the support (pmf 0 there)."""
         pad = np.full(width + 1, -np.inf)
         win_t = sliding_window_view(np.concatenate((lc_t, pad)), width + 1)[start]
         win_c = sliding_window_view(np.concatenate((lc_c[::-1], pad)),
                                     width + 1)[n_c - s + start]  # lc_c[s - start - j]
-        pmf = np.exp((win_t + win_c - lc_n[:, None])[:, ::-1])  # from the band's top down
-        beyond, last = pmf[:, 0], pmf[:, 1]
-        tail = np.cumsum(pmf[:, 1:], axis=1)  # tail[:, -1] is at x = start
+        pmf = np.exp((win_t + win_c - lc_n[:, None])[:, ::-1])
+        return pmf[:, 0], pmf[:, 1], np.cumsum(pmf[:, 1:], axis=1)
+
+    support = min(n_t, n_c) + 1  # hi_s - lo_s < support for every total
+    if 2 * width < support:
+        start = np.clip(np.floor(s * (n_t / n) + lift * sd).astype(np.int64) - 1, lo_s, hi_s)
+        beyond, last, tail = band(start, width)
         with np.errstate(divide="ignore", invalid="ignore"):
             ratio = np.where(last > 0.0, beyond / last, 0.0)
             left_out = np.where(beyond > 0.0, beyond / (1.0 - ratio), 0.0)
@@ -760,13 +765,8 @@ def fisher_critical_counts(n_t: int, n_c: int, cutoff: float) -> np.ndarray:
                 & ((start == lo_s) | (tail[:, -1] > cutoff)))
         if good.all():
             return start + np.count_nonzero(tail > cutoff, axis=1)
-    xt = np.arange(n_t + 1)[:, None]
-    xc = s[None, :] - xt
-    valid = (xc >= 0) & (xc <= n_c)
-    log_pmf = lc_t[xt] + lc_c[np.clip(xc, 0, n_c)] - lc_n[None, :]
-    pmf = np.where(valid, np.exp(log_pmf), 0.0)
-    tail = np.cumsum(pmf[::-1], axis=0)[::-1]
-    return np.count_nonzero(tail > cutoff, axis=0)
+    _, _, tail = band(lo_s, support)  # the whole support of every total
+    return lo_s + np.count_nonzero(tail > cutoff, axis=1)
 
 
 def _observed_benefit(spec: TestSpec, n_t: int, n_c: int) -> np.ndarray:
