@@ -912,6 +912,28 @@ def test_beta_rates_rejects_bad_input(args, name):
         BetaRates(*args)
 
 
+def test_region_and_statistic_checks():
+    region = SuccessRegion.from_dense(np.ones((3, 2), dtype=bool))
+    with pytest.raises(AssuranceInputError, match="'pmf_t' parameter of SuccessRegion"):
+        region.probability(np.ones(2), np.ones(2))
+    with pytest.raises(AssuranceInputError, match="'weights_c' parameter of SuccessRegion"):
+        region.by_treatment(np.ones((4, 3)))
+    with pytest.raises(AssuranceInputError, match="'mask' parameter of SuccessRegion"):
+        SuccessRegion.from_dense(np.ones(3, dtype=bool))
+    with pytest.raises(AssuranceInputError, match="'lo' and 'hi' parameters"):
+        SuccessRegion.from_columns(2, [0, 1], [2])
+    spec = TestSpec("unpooled_z", 0.025, 1.0, "difference", True)
+    with pytest.raises(AssuranceInputError, match="'x_t' parameter of two_arm_z"):
+        two_arm_z(spec, 11, 3, 10, 10)
+    with pytest.raises(AssuranceInputError, match="'n_c' parameter of two_arm_z"):
+        two_arm_z(spec, 1, 0, 10, 0)
+    with pytest.raises(AssuranceInputError, match="'spec.test' parameter of two_arm_z"):
+        two_arm_z(TestSpec("fisher_exact", 0.025, 1.0, "difference", True), 1, 0, 10, 10)
+    with pytest.raises(AssuranceInputError, match="'unpooled_z' compares two arms"):
+        success_region(TestSpec("unpooled_z", 0.025, 1.0, "difference", False,
+                                reference=0.3), 10, 0)
+
+
 def test_calculator_and_design_checks():
     ep = BinaryEndpoint(0.3)
     with pytest.raises(AssuranceInputError, match="sizes"):

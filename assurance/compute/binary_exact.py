@@ -468,6 +468,12 @@ class SuccessRegion:
         """One run ``[lo[x_c], hi[x_c]]`` per control count (empty where ``lo > hi``)."""
         lo = np.asarray(lo, dtype=np.int64)
         hi = np.asarray(hi, dtype=np.int64)
+        if lo.ndim != 1 or lo.shape != hi.shape or lo.size == 0 \
+                or lo.min() < 0 or hi.max() > n_t:
+            raise AssuranceInputError(
+                "The 'lo' and 'hi' parameters of SuccessRegion.from_columns must be equally "
+                f"long, non-empty lists of counts in 0..{n_t}. Got {lo.tolist()!r} and "
+                f"{hi.tolist()!r} instead.")
         keep = lo <= hi
         return cls(int(n_t), lo.size - 1, np.flatnonzero(keep), lo[keep], hi[keep])
 
@@ -475,6 +481,11 @@ class SuccessRegion:
     def from_dense(cls, mask: np.ndarray) -> SuccessRegion:
         """The runs of a boolean array of shape ``(n_t + 1, n_c + 1)``."""
         mask = np.asarray(mask, dtype=bool)
+        if mask.ndim != 2 or mask.shape[0] < 2 or mask.shape[1] < 1:
+            raise AssuranceInputError(
+                "The 'mask' parameter of SuccessRegion.from_dense must be a boolean array "
+                "of shape (n_t + 1, n_c + 1) with n_t >= 1. Got shape "
+                f"{mask.shape!r} instead.")
         n_t, n_c = mask.shape[0] - 1, mask.shape[1] - 1
         padded = np.zeros((n_c + 1, n_t + 3), dtype=np.int8)
         padded[:, 1:-1] = mask.T
@@ -507,8 +518,18 @@ class SuccessRegion:
         inner = head[..., hi] - head[..., np.maximum(lo - 1, 0)]
         return np.where(hi == self.n_t, tail[..., lo], np.where(lo == 0, head[..., hi], inner))
 
+    def _check(self, values: np.ndarray, n: int, name: str, method: str) -> np.ndarray:
+        values = np.asarray(values, dtype=float)
+        if values.ndim == 0 or values.shape[-1] != n + 1:
+            raise AssuranceInputError(
+                f"The '{name}' parameter of SuccessRegion.{method} must have {n + 1} entries "
+                f"along its last axis. Got shape {values.shape!r} instead.")
+        return values
+
     def probability(self, pmf_t: np.ndarray, pmf_c: np.ndarray) -> float:
         """``sum over the region of pmf_t[x_t] pmf_c[x_c]`` (independent arms)."""
+        pmf_t = self._check(pmf_t, self.n_t, "pmf_t", "probability")
+        pmf_c = self._check(pmf_c, self.n_c, "pmf_c", "probability")
         return float(np.dot(pmf_c[self.col], self._run_sums(pmf_t)))
 
     def by_treatment(self, weights_c: np.ndarray) -> np.ndarray:
@@ -517,6 +538,7 @@ class SuccessRegion:
         ``weights_c`` has shape ``(K, n_c + 1)`` (one row per rate, as
         :func:`binomial_pmf` gives), the result ``(K, n_t + 1)``: ``weights_c @ R.T``.
         """
+        weights_c = self._check(weights_c, self.n_c, "weights_c", "by_treatment")
         col = self.col
         if col.size and np.all(col[1:] - col[:-1] == 1):  # consecutive control counts
             w = weights_c[..., col[0]:col[-1] + 1]
@@ -543,7 +565,7 @@ class SuccessRegion:
         ``weights_t`` has shape ``(K, n_t + 1)``, the result ``(K, n_c + 1)``:
         ``weights_t @ R``.
         """
-        sums = self._run_sums(weights_t)
+        sums = self._run_sums(self._check(weights_t, self.n_t, "weights_t", "by_control"))
         out = np.zeros(sums.shape[:-1] + (self.n_c + 1,))
         if self.col.size == 0:
             return out
