@@ -208,7 +208,10 @@ def test_help_imports_nothing_heavy():
 
 def test_monte_carlo_design_runs_and_reports_standard_errors(tmp_path):
     design = tmp_path / "mc.toml"
-    design.write_text(GOOD.replace("[sizes]", "[sd_prior]\nfamily = \"scaled_inv_chi_square\"\n"
+    # a Student t effect prior with a prior on the SD is simulated (a normal one is not)
+    text = GOOD.replace("family = \"normal\"\nmean = 4.0\nsd = 2.0",
+                        "family = \"student_t\"\ndf = 5.0\nlocation = 4.0\nscale = 2.0")
+    design.write_text(text.replace("[sizes]", "[sd_prior]\nfamily = \"scaled_inv_chi_square\"\n"
                                    "df = 30\nscale = 10.0\n[monte_carlo]\ndraws = 2000\n"
                                    "seed = 7\n[sizes]"))
     out = tmp_path / "out"

@@ -56,9 +56,11 @@ def exact():
 
 @pytest.fixture(scope="module")
 def monte_carlo():
+    # a Student t effect prior with a prior on the SD is simulated (normal effect priors
+    # are integrated exactly over the SD)
     design = asr.TrialDesign(
         asr.ContinuousEndpoint(sigma=10.0, better="lower"),
-        asr.Normal(-4.0, 2.5),
+        asr.StudentT(5, -4.0, 2.5),
         relevant_effect=-3.0,
         sigma_prior=asr.ScaledInvChiSquare(30, 10.0),
         title="Uncertain SD, lower is better",
