@@ -15,8 +15,12 @@ bounded and the range finite.
 
 from __future__ import annotations
 
+import math
+import weakref
+from collections import OrderedDict
+
 import numpy as np
-from scipy import integrate, special
+from scipy import special
 
 from ..priors.families import Normal, PointMass, Prior
 
@@ -33,7 +37,10 @@ def upper_orthant_normal(h: np.ndarray, k: np.ndarray, rho: np.ndarray) -> np.nd
     >>> round(float(upper_orthant_normal(0.0, 0.0, 0.5)), 6)  # 1/4 + arcsin(0.5)/(2 pi)
     0.333333
     """
-    h, k, rho = np.broadcast_arrays(*(np.asarray(v, dtype=float) for v in (h, k, rho)))
+    h, k, rho = (np.asarray(v, dtype=float) for v in (h, k, rho))
+    if k.ndim == 0 and np.isfinite(k) and rho.shape == h.shape:  # one cut: the usual call
+        return _lower_orthant(-h, np.full(h.shape, -float(k)), rho)
+    h, k, rho = np.broadcast_arrays(h, k, rho)
     out = np.empty(h.shape)
     k_low = np.isneginf(k)
     k_high = np.isposinf(k)
@@ -52,6 +59,13 @@ def _lower_orthant(x: np.ndarray, y: np.ndarray, r: np.ndarray) -> np.ndarray:
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
         ax = (y - r * x) / (x * root)
         ay = (x - r * y) / (y * root)
+    if np.isfinite(ax).all() and np.isfinite(ay).all():  # no zero, no overflow
+        # x and y are then nonzero, so the signs decide beta directly
+        beta = np.where((x > 0) == (y > 0), 0.0, 0.5)
+        val = 0.5 * (special.ndtr(x) + special.ndtr(y)) - special.owens_t(x, ax) \
+            - special.owens_t(y, ay) - beta
+        return np.clip(val, 0.0, 1.0)
+    with np.errstate(invalid="ignore"):
         # at x = 0 the argument is +-infinity and T(0, +-inf) = +-1/4 (scipy's owens_t agrees)
         ax = np.where(x == 0, np.sign(y - r * x) * np.inf, ax)
         ay = np.where(y == 0, np.sign(x - r * y) * np.inf, ay)
@@ -87,7 +101,15 @@ def prob_estimate_above(
     Returns
     -------
     numpy.ndarray
-        Probabilities with the broadcast shape of ``threshold`` and ``se``.
+        Probabilities with the broadcast shape of ``threshold`` and ``se``; NaN where a
+        threshold or standard error is not a finite number (standard error > 0), so that
+        the caller can report it instead of a wrong probability.
+
+    Notes
+    -----
+    Differences such as ``(c - m) / tau`` are formed directly; where the difference itself
+    overflows (two numbers near the largest double of opposite signs) they are formed as
+    ``c / tau - m / tau`` instead, and ``tau = sqrt(v + se^2)`` as ``hypot(sd, se)``.
 
     Examples
     --------
@@ -97,59 +119,273 @@ def prob_estimate_above(
     >>> round(float(p[0]), 6)  # Phi((1 - 0.5) / sqrt(2))
     0.638163
     """
-    c, s = np.broadcast_arrays(np.asarray(threshold, float), np.asarray(se, float))
-    total = np.zeros(c.shape)
-    for weight, part in prior.parts():
+    c, s = np.asarray(threshold, dtype=float), np.asarray(se, dtype=float)
+    if c.shape != s.shape:
+        c, s = np.broadcast_arrays(c, s)
+    bad = None
+    if not (np.isfinite(c).all() and np.isfinite(s).all() and (s > 0).all()):
+        bad = ~(np.isfinite(c) & np.isfinite(s) & (s > 0))
+        c, s = np.where(bad, 0.0, c), np.where(bad, 1.0, s)  # harmless stand-ins
+    parts = prior.parts()
+    total = None
+    for weight, part in parts:
         if isinstance(part, PointMass):
-            total += weight * _point_mass(part.value, c, s, effect_above, inclusive)
+            p = _point_mass(part.value, c, s, effect_above, inclusive)
         elif isinstance(part, Normal):
-            total += weight * _normal(part.mu, part.sigma, c, s, effect_above)
+            p = _normal(part.mu, part.sigma, c, s, effect_above)
         else:
-            total += weight * _continuous(part, c, s, effect_above)
+            p = _continuous(part, c, s, effect_above)
+        total = p * weight if total is None else total + weight * p
+    if bad is not None:
+        total[bad] = np.nan  # not computable: the caller reports it
     return np.clip(total, 0.0, 1.0)
 
 
+#: Below this, ``sqrt(sd^2 + se^2)`` is formed as ``hypot(sd, se)`` (the squares underflow).
+_TINY_SCALE = 1e-150
+
+
+def _scaled_gap(a, b, scale):
+    """``(a - b) / scale``; where ``a - b`` overflows, ``a / scale - b / scale``."""
+    with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
+        gap = (a - b) / scale
+        if not np.isfinite(gap).all():
+            a, b, scale = (np.asarray(v, dtype=float) for v in (a, b, scale))
+            gap = np.where(np.isfinite(a - b), gap, a / scale - b / scale)
+    return gap
+
+
 def _point_mass(value, c, s, cut, inclusive):
-    p = special.ndtr((value - c) / s)
     if cut is not None and not (value >= cut if inclusive else value > cut):
-        return np.zeros_like(p)
-    return p
+        return np.zeros(c.shape)
+    return special.ndtr(_scaled_gap(value, c, s))
 
 
 def _normal(m, sd, c, s, cut):
-    tau = np.sqrt(sd * sd + s * s)
-    h = (c - m) / tau
+    with np.errstate(over="ignore", under="ignore"):
+        tau = np.sqrt(sd * sd + s * s)
+    if not (np.isfinite(tau).all() and (tau > _TINY_SCALE).all()):  # squares left range
+        fix = ~(np.isfinite(tau) & (tau > _TINY_SCALE))
+        tau = np.where(fix, np.hypot(sd, s), tau)
+    h = _scaled_gap(c, m, tau)
     if cut is None:
         return special.ndtr(-h)
     rho = sd / tau
-    k = np.full_like(h, (cut - m) / sd)
-    return upper_orthant_normal(h, k, rho)
+    return upper_orthant_normal(h, _scaled_gap(cut, m, sd), rho)
+
+
+# ------------------------------------------------------------------------------------------
+# continuous priors other than the normal: a fixed panel rule, all thresholds at once
+# ------------------------------------------------------------------------------------------
+#: The estimate's noise ``z = (d - delta) / se`` is integrated over ``|z| <= _Z_END``: what
+#: lies beyond is below ``2 Phi(-8.5) = 2e-17``.
+_Z_END = 8.5
+#: Panel width in units of the standard error (the scale of the normal density).
+_STEP = 1.5
+#: Gauss-Legendre nodes per panel.
+_NODES = 10
+#: Prior probability levels whose quantiles split the panels, so that on any panel the
+#: prior's distribution function moves by at most 0.1 (and far less in the tails, where a
+#: heavy-tailed law bends most).
+_LEVELS = np.array([1e-15, 1e-13, 1e-11, 1e-9, 1e-7, 1e-6, 1e-5, 1e-4, 1e-3, 5e-3, 0.02, 0.05,
+                    0.1, 0.2, 0.3, 0.4, 0.5])
+_LEVELS = np.unique(np.concatenate([_LEVELS, 1.0 - _LEVELS]))
+_GAUSS = special.roots_legendre(_NODES)
+_SQRT_2PI = math.sqrt(2.0 * math.pi)
+#: Most panels one group of thresholds may span before each threshold gets its own nodes.
+_MAX_PANELS = 400
+#: Largest number of (threshold, node) products formed at once (memory bound); up to this
+#: size the normal densities are kept for the calls with a cut on the same thresholds.
+_BLOCK = 2_000_000
+
+_EDGES: weakref.WeakKeyDictionary = weakref.WeakKeyDictionary()
+_NODE_CACHE: OrderedDict = OrderedDict()
+_NODE_CACHE_SIZE = 2
+
+
+def _prior_edges(part: Prior) -> np.ndarray:
+    """Quantiles of ``part`` at the fixed levels and its finite support ends (cached)."""
+    try:
+        return _EDGES[part]
+    except (KeyError, TypeError):
+        pass
+    values = [part.ppf(float(p)) for p in _LEVELS]
+    values.extend(part.support())
+    edges = np.unique(np.array([v for v in values if math.isfinite(v)], dtype=float))
+    try:
+        _EDGES[part] = edges
+    except TypeError:  # pragma: no cover - a prior that cannot be weakly referenced
+        pass
+    return edges
+
+
+def _survival(part: Prior, x: np.ndarray) -> np.ndarray:
+    sf = getattr(part, "sf", None)
+    if sf is not None:
+        return np.asarray(sf(x), dtype=float)
+    return 1.0 - np.asarray(part.cdf(x), dtype=float)
+
+
+class _Nodes:
+    """Panels and nodes for one continuous part and one set of (threshold, se) pairs.
+
+    The pairs are made unique and grouped by standard error (a t analysis has many
+    thresholds per size, one per node of the sample-SD rule); each group gets one set of
+    nodes in ``delta`` covering ``[min c - 8.5 se, max c + 8.5 se]``, split every 1.5 se
+    and at the prior's fixed quantiles and support ends, 10 Gauss-Legendre nodes a panel.
+    A group whose thresholds spread over more than ``_MAX_PANELS`` panels is split into
+    one group per threshold. ``surv`` holds the prior's survival function at every node,
+    computed in one call; ``kernel`` the normal density of each threshold at its group's
+    nodes, kept for the calls with a cut that follow.
+    """
+
+    def __init__(self, part: Prior, c: np.ndarray, s: np.ndarray):
+        order = np.lexsort((c, s))
+        cs, ss = c[order], s[order]
+        new = np.ones(cs.size, dtype=bool)
+        new[1:] = (cs[1:] != cs[:-1]) | (ss[1:] != ss[:-1])
+        self.inverse = np.empty(c.size, dtype=np.intp)
+        self.inverse[order] = np.cumsum(new) - 1
+        self.c, self.s = cs[new], ss[new]         # sorted by se, then threshold
+        first = np.ones(self.s.size, dtype=bool)
+        first[1:] = self.s[1:] != self.s[:-1]
+        starts = np.flatnonzero(first)
+        ends = np.append(starts[1:], self.s.size) - 1
+        span = (self.c[ends] - self.c[starts]) / self.s[starts]
+        if span.max() > (_MAX_PANELS - 2 * _Z_END / _STEP) * _STEP:
+            first[:] = True                        # every threshold its own group
+            starts = ends = np.arange(self.s.size)
+        self.group = np.cumsum(first) - 1          # group of each unique threshold
+        se = self.s[starts]
+        low = self.c[starts] - _Z_END * se
+        high = self.c[ends] + _Z_END * se
+        count = np.ceil((high - low) / (_STEP * se)).astype(np.int64)
+        steps = np.arange(int(count.max()) + 1)
+        grid = np.minimum(low[:, None] + steps[None, :] * (_STEP * se)[:, None],
+                          high[:, None])
+        quantiles = np.clip(_prior_edges(part)[None, :], low[:, None], high[:, None])
+        edges = np.sort(np.concatenate([grid, quantiles, high[:, None]], axis=1), axis=1)
+        left, right = edges[:, :-1], edges[:, 1:]
+        valid = right > left
+        keep = max(int(valid.sum(axis=1).max()), 1)
+        pick = np.argsort(~valid, axis=1, kind="stable")[:, :keep]
+        self.left = np.take_along_axis(left, pick, axis=1)
+        self.right = np.where(np.take_along_axis(valid, pick, axis=1),
+                              np.take_along_axis(right, pick, axis=1), self.left)
+        self.x, self.weight = _panel_nodes(self.left, self.right)
+        self.surv = np.zeros(self.x.shape)
+        used = self.weight > 0
+        self.surv[used] = _survival(part, self.x[used])
+        self.kernel: np.ndarray | None = None
+        self.norm: np.ndarray | None = None
+
+    def _normal_kernel(self, block: slice) -> np.ndarray:
+        """``exp(-z^2 / 2)`` at every node of each threshold's group, ``z = (x - c) / se``."""
+        z = (self.x[self.group[block]] - self.c[block, None]) / self.s[block, None]
+        return np.exp(-0.5 * z * z)
+
+    def _sums(self, mass: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """``sum(mass * kernel)`` per threshold, and the rule's total normal mass."""
+        size = self.c.size * self.x.shape[1]
+        if self.kernel is None and size <= _BLOCK:
+            self.kernel = self._normal_kernel(slice(None))
+        if self.kernel is not None:
+            if self.norm is None:
+                self.norm = np.einsum("ij,ij->i", self.weight[self.group], self.kernel)
+            return np.einsum("ij,ij->i", mass[self.group], self.kernel), self.norm
+        out, norm = np.empty(self.c.size), np.empty(self.c.size)
+        for block in _blocks(self.c.size, self.x.shape[1]):
+            kernel = self._normal_kernel(block)
+            out[block] = np.einsum("ij,ij->i", mass[self.group[block]], kernel)
+            norm[block] = np.einsum("ij,ij->i", self.weight[self.group[block]], kernel)
+        self.norm = norm
+        return out, norm
+
+    def integral(self, part: Prior, cut: float | None) -> np.ndarray:
+        """``E_z[S(max(cut, c + se z))]`` for every unique threshold (no cut: ``S(c + se z)``).
+
+        The integral is divided by the rule's own integral of the normal density (1 to
+        within 1e-15), which keeps it right when ``se`` is so small beside ``c`` that the
+        nodes round to a few representable numbers; a window that rounds to a single
+        number gives the limit ``S(max(cut, c))``.
+        """
+        mass = self.weight * self.surv
+        extra = None
+        if cut is not None:
+            mass = np.where(np.repeat(self.left, _NODES, axis=1) >= cut, mass, 0.0)
+            inside = (self.left < cut) & (self.right > cut)
+            rows = np.flatnonzero(inside.any(axis=1))
+            if rows.size:  # the panel holding the cut is integrated again from the cut up
+                right = self.right[rows][inside[rows]]
+                ex, ew = _panel_nodes(np.full((rows.size, 1), float(cut)), right[:, None])
+                extra = (rows, ex, ew * _survival(part, ex))
+        out, norm = self._sums(mass)
+        if extra is not None:
+            rows, ex, em = extra
+            where = np.full(int(self.group[-1]) + 1, -1)
+            where[rows] = np.arange(rows.size)
+            mine = np.flatnonzero(where[self.group] >= 0)
+            r = where[self.group[mine]]
+            z = (ex[r] - self.c[mine, None]) / self.s[mine, None]
+            out[mine] += np.einsum("ij,ij->i", em[r], np.exp(-0.5 * z * z))
+        resolved = norm > 0.5 * _SQRT_2PI * self.s
+        out = np.where(resolved, out / np.where(resolved, norm, 1.0), 0.0)
+        if cut is not None:  # below the cut the survival function is S(cut)
+            at_cut = float(_survival(part, np.array([float(cut)]))[0])
+            out += at_cut * special.ndtr(_scaled_gap(cut, self.c, self.s))
+        if not resolved.all():
+            limit = _survival(part, self.c if cut is None else np.maximum(self.c, cut))
+            out = np.where(resolved, out, limit)
+        return out
+
+
+def _panel_nodes(left: np.ndarray, right: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    t, w = _GAUSS
+    half = 0.5 * (right - left)
+    mid = 0.5 * (right + left)
+    x = (mid[..., None] + half[..., None] * t).reshape(left.shape[0], -1)
+    weight = (half[..., None] * w).reshape(left.shape[0], -1)
+    return x, weight
+
+
+def _blocks(rows: int, width: int):
+    step = max(1, _BLOCK // max(width, 1))
+    for start in range(0, rows, step):
+        yield slice(start, min(start + step, rows))
+
+
+def _nodes_for(part: Prior, c: np.ndarray, s: np.ndarray) -> _Nodes:
+    key = (id(part), c.tobytes(), s.tobytes())
+    hit = _NODE_CACHE.get(key)
+    if hit is not None and hit[0] is part:
+        _NODE_CACHE.move_to_end(key)
+        return hit[1]
+    nodes = _Nodes(part, c, s)
+    _NODE_CACHE[key] = (part, nodes)
+    while len(_NODE_CACHE) > _NODE_CACHE_SIZE:
+        _NODE_CACHE.popitem(last=False)
+    return nodes
 
 
 def _continuous(part: Prior, c, s, cut):
-    """Integrate Phi((delta - c)/se) over delta = F^{-1}(u), u from F(cut) to 1."""
-    u_low = 0.0 if cut is None else float(part.cdf(cut))
-    if u_low >= 1.0:
-        return np.zeros(c.shape)
+    """``P(d > c [and delta > cut])`` for a continuous prior ``part``, every threshold at once.
 
-    def integrand(u: float) -> np.ndarray:
-        delta = part.ppf(min(max(u, 1e-300), 1 - 1e-16))
-        return special.ndtr((delta - c) / s)
-
-    # Bounded integrand on a finite range. Each column steps from 0 to 1 near u = F(c); a
-    # narrow step far in a tail could fall between the first nodes, so the places where the
-    # steps start, sit and end are given as breakpoints (at most about 150 of them).
-    points = _step_points(part, c, s, u_low)
-    value, _err = integrate.quad_vec(
-        integrand, u_low, 1.0, epsabs=1e-10, epsrel=1e-9, limit=4000, norm="max",
-        points=points,
-    )
-    return np.asarray(value)
-
-
-def _step_points(part: Prior, c: np.ndarray, s: np.ndarray, u_low: float) -> list[float]:
-    centres = np.unique(np.concatenate([c.ravel(), (c - 4 * s).ravel(), (c + 4 * s).ravel()]))
-    if centres.size > 150:
-        centres = np.quantile(centres, np.linspace(0.0, 1.0, 150))
-    u = np.unique(np.asarray(part.cdf(centres), dtype=float))
-    return [float(v) for v in u if u_low < v < 1.0]
+    With ``z = (delta - d) / se`` standard normal and independent of ``delta``,
+    ``P(d > c, delta > a) = E_z[S(max(a, c + se z))]`` where ``S`` is the prior's survival
+    function: a bounded integrand against the normal density. It is integrated by a fixed
+    Gauss-Legendre panel rule (see :class:`_Nodes`) in one survival-function call for all
+    thresholds; the part below the cut is ``S(a) Phi((a - c) / se)`` exactly. Thresholds
+    whose window ``c +- 8.5 se`` is not finite give NaN.
+    """
+    shape = c.shape
+    cf = np.ascontiguousarray(c, dtype=float).ravel()
+    sf = np.ascontiguousarray(s, dtype=float).ravel()
+    with np.errstate(over="ignore", invalid="ignore"):
+        ok = np.isfinite(cf - _Z_END * sf) & np.isfinite(cf + _Z_END * sf)
+    out = np.full(cf.size, np.nan)
+    if ok.any():
+        if not ok.all():
+            cf, sf = cf[ok], sf[ok]
+        nodes = _nodes_for(part, cf, sf)
+        out[ok] = nodes.integral(part, cut)[nodes.inverse]
+    return np.clip(out, 0.0, 1.0).reshape(shape)
