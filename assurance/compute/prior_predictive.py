@@ -9,8 +9,10 @@ or a grid of thresholds) these functions return
 
 Normal components use the closed form of O'Hagan, Stevens & Campbell (2005) and Owen's T
 function for the bivariate normal; point masses are exact; any other continuous component
-is integrated adaptively on the probability scale ``u = F(delta)``, where the integrand is
-bounded and the range finite.
+is integrated over the estimate's noise ``z = (delta - d) / se`` as
+``E_z[S(max(a, c + se z))]`` with ``S`` the prior's survival function (bounded, so a fixed
+Gauss-Legendre panel rule split every 1.5 se and at the prior's quantiles reaches about
+1e-11 for every threshold at once, one survival-function call for all nodes).
 """
 
 from __future__ import annotations
