@@ -30,7 +30,7 @@ from scipy import integrate, special, stats
 from ..priors.families import Normal, PointMass, Prior, ScaledInvChiSquare
 from ..rules.significance import Significance
 from .prior_predictive import prob_estimate_above, upper_orthant_normal
-from .sd_quadrature import flat_nodes, ratio_rule, sd_ratio_nodes
+from .sd_quadrature import ratio_rule, sd_ratio_nodes
 
 __all__ = ["Cut", "SuccessProbabilities", "DrawAverages", "exact_success", "monte_carlo_success",
            "EffectDraws", "nct_sf", "sd_prior_success", "sd_quadrature_covers"]
@@ -98,15 +98,12 @@ def nct_sf(t: Any, df: Any, nc: Any) -> np.ndarray:
 def _nct_sf_by_quadrature(t: np.ndarray, df: np.ndarray, nc: np.ndarray) -> np.ndarray:
     """``E_r[Phi(nc - t r)]`` with the feature-aware rule (a step of width ``1/t`` at
     ``nc / t``); ``t <= 0`` integrates a smooth function with the bulk panels alone."""
-    out = np.empty(t.size)
     positive = t > 0
     with np.errstate(divide="ignore", invalid="ignore"):
         centre = np.where(positive, nc / t, np.nan)
         width = np.where(positive, 1.0 / t, np.nan)
-    for g in ratio_rule(df, centre[None, :], width[None, :]):
-        c = g.columns
-        out[c] = np.sum(g.weight * special.ndtr(nc[c] - t[c] * g.ratio), axis=0)
-    return out
+    col, ratio, weight = ratio_rule(df, centre[None, :], width[None, :])
+    return np.bincount(col, weight * special.ndtr(nc[col] - t[col] * ratio), minlength=t.size)
 
 
 def exact_success(
@@ -215,8 +212,8 @@ def _t_test(prior: Prior, rule: Significance, se: np.ndarray, df: np.ndarray,
             if not kinked:
                 p = nct_sf(crit, df, (delta - low) / se)
             else:
-                col, ratio, weight = flat_nodes(ratio_rule(
-                    df, ((delta - low) / slope)[None, :], (1.0 / crit)[None, :], floor=floor))
+                col, ratio, weight = ratio_rule(
+                    df, ((delta - low) / slope)[None, :], (1.0 / crit)[None, :], floor=floor)
                 p = column_sums(col, weight * special.ndtr(
                     (delta - threshold(col, ratio)) / se[col]))
             success += w * p
@@ -239,8 +236,8 @@ def _t_test(prior: Prior, rule: Significance, se: np.ndarray, df: np.ndarray,
                 bend = m + (cut.value - m) * tau * tau / (sd * sd)
                 centres.append((bend - low) / slope)
                 widths.append(se * tau / (sd * slope))
-            col, ratio, weight = flat_nodes(ratio_rule(df, np.array(centres), np.array(widths),
-                                                       floor=floor))
+            col, ratio, weight = ratio_rule(df, np.array(centres), np.array(widths),
+                                            floor=floor)
             h = (threshold(col, ratio) - m) / tau[col]
             if kinked:
                 success += w * column_sums(col, weight * special.ndtr(-h))
@@ -505,19 +502,14 @@ def sd_prior_success(
             continue
         for we, part in prior.parts():
             centres, widths = _sd_features(part, rule, sp, k, crit, df, analysis, cuts)
-            nu = np.full(k.shape, sp.df)
-            for g in ratio_rule(nu, centres, widths):
-                col = g.columns
-                K = g.ratio.shape[0]
-                sigma = sp.scale / g.ratio  # (K, m)
-                res = exact_success(part, rule, sigma=1.0,
-                                    se_factor=(sigma * k[col][None, :]).ravel(),
-                                    df=np.tile(df[col], K), analysis=analysis, cuts=cuts,
-                                    critical=np.tile(crit[col], K))
-                weight = ws * we * g.weight
-                success[col] += np.sum(weight * res.success.reshape(K, -1), axis=0)
-                for j in range(len(cuts)):
-                    joint[j][col] += np.sum(weight * res.joint[j].reshape(K, -1), axis=0)
+            col, q, weight = ratio_rule(np.full(k.shape, sp.df), centres, widths)
+            # every (node, size) pair is one known-sigma computation
+            res = exact_success(part, rule, sigma=1.0, se_factor=sp.scale / q * k[col],
+                                df=df[col], analysis=analysis, cuts=cuts, critical=crit[col])
+            weight = ws * we * weight
+            success += np.bincount(col, weight * res.success, minlength=k.size)
+            for j in range(len(cuts)):
+                joint[j] += np.bincount(col, weight * res.joint[j], minlength=k.size)
     return SuccessProbabilities(success=np.clip(success, 0.0, 1.0),
                                 joint=[np.clip(p, 0.0, 1.0) for p in joint])
 
@@ -551,6 +543,11 @@ def _sd_features(part: Prior, rule: Significance, sigma_prior: ScaledInvChiSquar
     else:
         m, sd = part.mu, part.sigma
         add(m, lambda s: np.sqrt(sd * sd + (s * k) ** 2))
+        # where the standard error overtakes the prior SD (se = sd) the success probability
+        # turns from following the prior to following the noise: a broad change
+        q_cross = s0 * k / sd
+        centres.append(q_cross)
+        widths.append(q_cross)
         for cut in cuts:
             add(cut.value, lambda s: s * k * np.sqrt(sd * sd + (s * k) ** 2) / sd)
     if rule.min_estimate is not None:

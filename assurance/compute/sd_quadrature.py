@@ -14,26 +14,25 @@ joint probability, or the minimum observed effect), each with a known width. Two
 * **Gauss-Hermite** on the normal score of the chi-square quantile (nodes ``z_i``, ratio
   ``q(z_i)`` exact through the inverse incomplete gamma function). Accurate when every
   feature is wide on the score scale; the number of nodes is picked from the narrowest
-  feature (8 to 20 nodes), and the nodes of each df are cached.
+  feature (4 to 40 nodes), and the nodes of each df are cached.
 * **Composite Gauss-Legendre** on ``u = log q`` with the exact density of ``u``: panels
   between the scores -9, -8, ..., 9 of the distribution, and more panels placed around each
   feature (at 0, 0.7, 2, 5 and 12 widths either side). Used for small df, narrow features
   (small alpha, large effects, large n in a prior on the SD) and kinked thresholds, where a
   floor below which the integrand is constant is given: its probability becomes one node.
 
-Both return nodes and weights per column; ``sum(weight * g(ratio))`` is the expectation.
+Both give flat arrays of (column, ratio, weight); summing ``weight * g(ratio)`` by column is
+the expectation.
 """
 
 from __future__ import annotations
 
 import math
 from functools import lru_cache
-from typing import NamedTuple
-
 import numpy as np
 from scipy import special, stats
 
-__all__ = ["sd_ratio_nodes", "ratio_rule", "flat_nodes", "RatioNodes", "ratio_log_density"]
+__all__ = ["sd_ratio_nodes", "ratio_rule", "ratio_log_density"]
 
 _HERMITE_NODES = 32
 _LEGENDRE_NODES = 400
@@ -65,16 +64,10 @@ _PANEL = special.roots_legendre(_PANEL_NODES)
 #: (narrowest feature on the score scale, fewest degrees of freedom, Gauss-Hermite nodes):
 #: the first row a column satisfies gives its rule; none: the composite rule. A short rule
 #: needs the score map nearly straight (many df) as well as wide features.
-_TIERS = ((20.0, 100.0, 4), (8.0, 40.0, 5), (5.0, 10.0, 6), (3.0, 5.0, 8), (2.0, 5.0, 12),
-          (1.5, 5.0, 16), (1.0, 5.0, 20))
-
-
-class RatioNodes(NamedTuple):
-    """Nodes for the columns ``columns``: ``ratio`` and ``weight`` of shape ``(K, m)``."""
-
-    columns: np.ndarray
-    ratio: np.ndarray
-    weight: np.ndarray
+_TIERS = ((20.0, 100.0, 4), (8.0, 60.0, 6), (5.0, 30.0, 8), (3.0, 20.0, 12), (2.0, 15.0, 16),
+          (1.5, 10.0, 20), (1.0, 20.0, 24), (0.8, 30.0, 32), (0.65, 40.0, 40))
+_TIER_WIDTH, _TIER_DF = (np.array([row[i] for row in _TIERS])[:, None] for i in (0, 1))
+_TIER_NODES = np.array([row[2] for row in _TIERS], dtype=np.int64)
 
 
 def _chi_from_score(z: np.ndarray, half_df: np.ndarray) -> np.ndarray:
@@ -127,23 +120,10 @@ def ratio_log_density(u: np.ndarray, df: np.ndarray) -> np.ndarray:
 
 
 @lru_cache(maxsize=64)
-def _hermite_ratio(df_bytes: bytes, k: int) -> tuple[np.ndarray, np.ndarray]:
-    df = np.frombuffer(df_bytes, dtype=float)
-    x, w = _hermite_rule(k)
-    chi = _chi_from_score(x[:, None], df[None, :] / 2)
-    return np.sqrt(chi / df[None, :]), w
-
-
-@lru_cache(maxsize=64)
 def _bulk_log_ratio(df_bytes: bytes) -> np.ndarray:
     df = np.frombuffer(df_bytes, dtype=float)
     chi = _chi_from_score(_BULK_SCORES[:, None], df[None, :] / 2)
     return 0.5 * np.log(chi / df[None, :])
-
-
-def _per_unique(df: np.ndarray, table) -> tuple[np.ndarray, np.ndarray]:
-    uniq, inverse = np.unique(df, return_inverse=True)
-    return table(np.ascontiguousarray(uniq).tobytes()), inverse
 
 
 def _narrowest_score_width(df: np.ndarray, centres: np.ndarray, widths: np.ndarray
@@ -170,7 +150,7 @@ def _narrowest_score_width(df: np.ndarray, centres: np.ndarray, widths: np.ndarr
 
 def ratio_rule(df: np.ndarray, centres: np.ndarray | None = None,
                widths: np.ndarray | None = None, floor: np.ndarray | None = None
-               ) -> list[RatioNodes]:
+               ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Nodes and weights for ``E[g(q)]``, ``q = sqrt(X / df)``, ``X ~ chi2_df``, per column.
 
     Parameters
@@ -179,24 +159,25 @@ def ratio_rule(df: np.ndarray, centres: np.ndarray | None = None,
         1-D array of degrees of freedom, one per column, each > 0.
     centres, widths
         Arrays ``(F, len(df))``: the ratio at which ``g`` changes fastest and the width of
-        the change on the ratio scale (>= 0; 0 for a kink). A centre <= 0 or NaN is ignored.
+        the change on the ratio scale (>= 0; 0 for a kink). A centre that is NaN is ignored.
     floor
         Optional ratio per column below which ``g`` is constant (NaN or <= 0: none); its
         probability becomes one node at the floor.
 
     Returns
     -------
-    list of RatioNodes
-        Groups of columns sharing one number of nodes; ``sum(weight * g(ratio), axis=0)``
-        approximates ``E[g(q)]`` for the group's columns.
+    column, ratio, weight
+        Flat arrays, one entry per node: the column it belongs to, the ratio, the weight.
+        ``np.bincount(column, weight * g(ratio), minlength=len(df))`` approximates ``E[g(q)]``
+        for every column at once.
 
     Examples
     --------
     >>> import numpy as np
-    >>> [group] = ratio_rule(np.array([3.0]), centres=np.array([[0.4]]),
-    ...                      widths=np.array([[0.01]]))
-    >>> round(float(np.sum(group.weight * group.ratio**2)), 12)  # E[X / df] = 1
-    1.0
+    >>> col, r, w = ratio_rule(np.array([3.0, 40.0]), centres=np.array([[0.4, 0.4]]),
+    ...                        widths=np.array([[0.01, 0.01]]))
+    >>> np.round(np.bincount(col, w * r**2), 12)  # E[X / df] = 1 in each column
+    array([1., 1.])
     """
     df = np.atleast_1d(np.asarray(df, dtype=float))
     n = df.size
@@ -212,48 +193,50 @@ def ratio_rule(df: np.ndarray, centres: np.ndarray | None = None,
         floor = np.broadcast_to(np.asarray(floor, dtype=float), (n,))
         has_floor = np.isfinite(floor) & (floor > 0)
     narrowest = _narrowest_score_width(df, centres, widths)
-    tier = np.zeros(n, dtype=int)  # 0: composite
-    for least, fewest_df, k in reversed(_TIERS):
-        tier = np.where((narrowest >= least) & (df >= fewest_df), k, tier)
-    tier = np.where(has_floor, 0, tier)
+    fits = (narrowest >= _TIER_WIDTH) & (df >= _TIER_DF)  # (tiers, columns)
+    tier = np.where(fits.any(axis=0) & ~has_floor, _TIER_NODES[fits.argmax(axis=0)], 0)
 
-    groups = []
-    for k in np.unique(tier):
+    parts = []
+    if tier.any():
+        parts.append(_hermite_flat(df.tobytes(), tier.tobytes()))
+    if not tier.all():
+        cols = np.flatnonzero(tier == 0)
+        parts.append(_composite(df[cols], centres[:, cols], widths[:, cols], floor[cols],
+                                has_floor[cols], cols))
+    if len(parts) == 1:
+        return parts[0]
+    col, ratio, weight = (np.concatenate(pieces) for pieces in zip(*parts, strict=True))
+    return col, ratio, weight
+
+
+@lru_cache(maxsize=128)
+def _hermite_flat(df_bytes: bytes, tier_bytes: bytes
+                  ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Gauss-Hermite nodes of every column with a tier > 0, flat (cached: a grid asks for
+    the same tiers at every call)."""
+    df = np.frombuffer(df_bytes, dtype=float)
+    tier = np.frombuffer(tier_bytes, dtype=np.int64)
+    cols_out, ratio_out, weight_out = [], [], []
+    for k in np.unique(tier[tier > 0]):
         cols = np.flatnonzero(tier == k)
-        if k == 0:
-            groups.append(_composite(df[cols], centres[:, cols], widths[:, cols], floor[cols],
-                                     has_floor[cols], cols))
-        else:
-            table, inverse = _per_unique(df[cols], lambda b, k=int(k): _hermite_ratio(b, k))
-            ratio, w = table
-            weight = np.broadcast_to(w[:, None], (w.size, cols.size))
-            groups.append(RatioNodes(cols, ratio[:, inverse], weight))
-    return groups
-
-
-def flat_nodes(groups: list[RatioNodes]) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """The nodes of :func:`ratio_rule` as three flat arrays: column, ratio and weight.
-
-    One evaluation of an integrand over all columns at once, then
-    ``np.bincount(column, weight * values, minlength=ncols)`` sums each column.
-
-    Examples
-    --------
-    >>> import numpy as np
-    >>> col, r, w = flat_nodes(ratio_rule(np.array([4.0, 40.0])))
-    >>> np.round(np.bincount(col, w * r**2), 10)  # E[X / df] = 1 in each column
-    array([1., 1.])
-    """
-    cols = [np.broadcast_to(g.columns[None, :], g.ratio.shape).ravel() for g in groups]
-    ratio = [g.ratio.ravel() for g in groups]
-    weight = [np.broadcast_to(g.weight, g.ratio.shape).ravel() for g in groups]
-    return np.concatenate(cols), np.concatenate(ratio), np.concatenate(weight)
+        uniq, inverse = np.unique(df[cols], return_inverse=True)
+        x, w = _hermite_rule(int(k))
+        chi = _chi_from_score(x[:, None], uniq[None, :] / 2)
+        ratio = np.sqrt(chi / uniq[None, :])[:, inverse]
+        cols_out.append(np.tile(cols, int(k)))
+        ratio_out.append(ratio.ravel())
+        weight_out.append(np.repeat(w, cols.size))
+    col, ratio, weight = (np.concatenate(v) for v in (cols_out, ratio_out, weight_out))
+    for v in (col, ratio, weight):
+        v.setflags(write=False)
+    return col, ratio, weight
 
 
 def _composite(df: np.ndarray, centres: np.ndarray, widths: np.ndarray, floor: np.ndarray,
-               has_floor: np.ndarray, cols: np.ndarray) -> RatioNodes:
-    bulk, inverse = _per_unique(df, _bulk_log_ratio)
-    bulk = bulk[:, inverse]
+               has_floor: np.ndarray, cols: np.ndarray
+               ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    uniq, inverse = np.unique(df, return_inverse=True)
+    bulk = _bulk_log_ratio(uniq.tobytes())[:, inverse]
     lo = bulk[0]
     hi = bulk[-1]
     with np.errstate(divide="ignore", invalid="ignore"):
@@ -278,7 +261,7 @@ def _composite(df: np.ndarray, centres: np.ndarray, widths: np.ndarray, floor: n
             has_floor, floor, 0.0) ** 2), 0.0)
         ratio = np.concatenate([np.where(has_floor, floor, 1.0)[None, :], ratio])
         weight = np.concatenate([below[None, :], weight])
-    return RatioNodes(cols, ratio, weight)
+    return np.tile(cols, ratio.shape[0]), ratio.ravel(), weight.ravel()
 
 
 # -- the general-purpose rule for thresholds of any shape -----------------------------------
