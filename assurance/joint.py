@@ -95,12 +95,12 @@ def evaluate_joint(
     """
     import xarray as xr
 
-    from .planning import MAX_TOTAL
+    from .planning import MAX_DRAWS, MAX_TOTAL
 
     owner = "evaluate_joint"
     rho = check_real(correlation, "correlation", owner, low=-1, high=1, low_open=True,
                      high_open=True)
-    draws = check_int(draws, "draws", owner, low=100)
+    draws = check_int(draws, "draws", owner, low=100, high=MAX_DRAWS)
     for name, d in (("first", first), ("second", second)):
         if not hasattr(d, "endpoint") or not hasattr(d, "benefit_prior"):
             raise AssuranceInputError(

@@ -162,8 +162,9 @@ def evaluate_zones(
     """
     import xarray as xr
 
-    from .._validation import MAX_TOTAL
+    from .._validation import MAX_DRAWS, MAX_TOTAL, check_int
 
+    draws = check_int(draws, "draws", "evaluate_zones", low=100, high=MAX_DRAWS)
     if not isinstance(zones, GoConsiderStop):
         raise AssuranceInputError(
             f"The 'zones' parameter of evaluate_zones must be a GoConsiderStop. "
