@@ -435,6 +435,25 @@ def test_fisher_critical_counts_match_scipy_hypergeom(n_t, n_c, alpha):
     assert np.array_equal(fisher_critical_counts(n_t, n_c, alpha * (1 + 1e-7)), ref)
 
 
+def test_staircase_steps_do_not_depend_on_the_guess():
+    # The first passing rank per column comes from a guess checked by exact decisions and
+    # bisection where it misses: any guess (right, off by a few, absurd) gives the true
+    # steps of a random monotone staircase, counted here with numpy.
+    from assurance.compute.binary_exact import _first_passing
+
+    rng = np.random.default_rng(5)
+    for _ in range(40):
+        n_t, n_c = int(rng.integers(1, 60)), int(rng.integers(0, 60))
+        steps = np.sort(rng.integers(0, n_t + 2, n_c + 1))  # n_t + 1: nothing passes
+
+        def passes(rank, x_c, steps=steps):
+            return rank >= steps[x_c]
+
+        for guess in (None, steps, steps + rng.integers(-3, 4, n_c + 1),
+                      rng.integers(-10, n_t + 10, n_c + 1)):
+            assert np.array_equal(_first_passing(passes, n_t, n_c, guess), steps)
+
+
 def test_sums_over_runs_equal_dense_matrix_products():
     # Random regions with several runs per control count, empty columns and single arms:
     # the sums over runs against numpy matrix products with the dense 0/1 region.
