@@ -2,9 +2,11 @@
 
 from __future__ import annotations
 
+import json
 import math
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
+from functools import cached_property
 from typing import Any
 
 import numpy as np
@@ -178,18 +180,29 @@ class TrialDesign:
                 )
 
     # ---- the benefit scale (larger is better) used by all computations ---------------------
-    @property
+    # A TrialDesign is frozen and its parts are immutable, so what is derived from them is
+    # computed once per design and kept on the instance (``cached_property`` writes to the
+    # instance's ``__dict__``, which the frozen dataclass allows; fields, equality and
+    # ``dataclasses.replace`` are unaffected).
+    @cached_property
     def benefit_prior(self) -> Prior:
-        """The design prior on the benefit scale (larger is better)."""
+        """The design prior on the benefit scale (larger is better), built once per design."""
         return self.endpoint.benefit_prior(self.design_prior)
 
-    @property
+    @cached_property
     def benefit_rule(self) -> Any:
-        """The success rule on the benefit scale, with the analysis prior attached."""
+        """The success rule on the benefit scale, with the analysis prior attached (built
+        once per design)."""
         return self.endpoint.benefit_rule(self.rule, self.analysis_prior)
 
+    def _remember(self, key: Any, compute: Callable[[], Any]) -> Any:
+        memo = self.__dict__.setdefault("_memo", {})
+        if key not in memo:
+            memo[key] = compute()
+        return memo[key]
+
     def ceiling(self) -> float:
-        """The value assurance approaches as n grows: the most any sample size can give.
+        """The value assurance approaches as n grows.
 
         Notes
         -----
@@ -197,9 +210,19 @@ class TrialDesign:
         ``-margin`` for non-inferiority, or the minimum observed effect), the ceiling is
         ``P(effect > L)`` plus, for a point mass exactly at ``L`` (say "the drug does
         nothing"), its weight times the success probability there in the limit (alpha at
-        the null). Only false positives (successes when the true effect is at or just below
-        ``L``) can lift assurance at a finite n above it, by at most about alpha times the
-        prior probability of such effects.
+        the null). It is the most assurance can give through true effects beyond ``L``.
+        False positives (successes when the true effect is at or below ``L``) can lift
+        assurance at a finite n above it, by at most about alpha times the prior
+        probability of effects at or just below ``L``, and they fade as n grows;
+        :func:`~assurance.solve_sample_size` reports the highest value a size reaches when
+        a target lies above the ceiling.
+
+        Examples
+        --------
+        >>> from assurance import ContinuousEndpoint, Normal, TrialDesign
+        >>> d = TrialDesign(ContinuousEndpoint(sigma=1.0), Normal(0.5, 0.5))
+        >>> round(d.ceiling(), 4)  # P(effect > 0) = Phi(1)
+        0.8413
         """
         return self.success_limit()
 
@@ -215,6 +238,11 @@ class TrialDesign:
         >>> round(d.success_limit(), 4)  # 0.8 + 0.2 * 0.025 (false positives at no effect)
         0.805
         """
+        key = ("success_limit", None if effect_above is None else float(effect_above),
+               bool(inclusive))
+        return self._remember(key, lambda: self._success_limit(effect_above, inclusive))
+
+    def _success_limit(self, effect_above: float | None, inclusive: bool) -> float:
         rule, prior = self.benefit_rule, self.benefit_prior
         lowest = rule.lowest_passable_effect()
         if lowest == -math.inf:
@@ -232,14 +260,14 @@ class TrialDesign:
 
     def prob_benefit(self) -> float:
         """Prior probability that the treatment is better at all (effect beyond 0)."""
-        return self.benefit_prior.prob_above(0.0)
+        return self._remember("prob_benefit", lambda: self.benefit_prior.prob_above(0.0))
 
     def prob_relevant(self) -> float | None:
         """Prior probability that the effect is at least the relevant value."""
         if self.relevant_effect is None:
             return None
-        return self.benefit_prior.prob_above(self.endpoint.to_benefit(self.relevant_effect),
-                                             inclusive=True)
+        return self._remember("prob_relevant", lambda: self.benefit_prior.prob_above(
+            self.endpoint.to_benefit(self.relevant_effect), inclusive=True))
 
     def curve_effects(self) -> tuple[float, ...]:
         """Effects (natural scale) for the power curve: assumed, relevant and requested."""
@@ -247,6 +275,18 @@ class TrialDesign:
         if self.relevant_effect is not None:
             values.add(float(self.relevant_effect))
         return tuple(sorted(values))
+
+    def to_json(self) -> str:
+        """:meth:`to_dict` as JSON text (computed once per design), as results files hold it.
+
+        Examples
+        --------
+        >>> from assurance import ContinuousEndpoint, Normal, TrialDesign
+        >>> d = TrialDesign(ContinuousEndpoint(sigma=10.0), Normal(4.0, 2.0))
+        >>> json.loads(d.to_json())["design_prior"]["family"]
+        'normal'
+        """
+        return self._remember("json", lambda: json.dumps(self.to_dict()))
 
     def to_dict(self) -> dict[str, Any]:
         """Plain description of every input, for results and memos."""

@@ -8,16 +8,23 @@ above the ceiling that no sample size can pass.
 
 from __future__ import annotations
 
-import json
 import math
 import warnings
 from collections.abc import Callable, Sequence
 from dataclasses import asdict, dataclass
+from functools import lru_cache
 from typing import Any, Literal
 
 import numpy as np
 
-from ._validation import MAX_TOTAL, check_choice, check_int, check_real, check_real_array
+from ._validation import (
+    MAX_DRAWS,
+    MAX_TOTAL,
+    check_choice,
+    check_int,
+    check_real,
+    check_real_array,
+)
 from .compute.normal_outcome import Cut
 from .design import TrialDesign
 from .errors import AssuranceInputError, AssuranceWarning
@@ -153,8 +160,6 @@ def evaluate(
     >>> bool((ds.assurance <= ds.ceiling).all())
     True
     """
-    import xarray as xr
-
     from . import __version__
 
     if not isinstance(design, TrialDesign):
@@ -162,7 +167,7 @@ def evaluate(
             f"The 'design' parameter of evaluate must be a TrialDesign. Got {design!r} instead."
         )
     n = _check_sizes(design, sizes)
-    draws = check_int(draws, "draws", "evaluate", low=100)
+    draws = check_int(draws, "draws", "evaluate", low=100, high=MAX_DRAWS)
     if seed is not None:
         seed = check_int(seed, "seed", "evaluate", low=0)
     calc = _Calculator(design, draws, seed)
@@ -175,36 +180,36 @@ def evaluate(
         parts.append(calc.assurance(n_t[idx], n_c[idx]))
         if progress is not None:
             progress(done, len(chunks))
-    per_n = {key: np.concatenate([p[key] for p in parts]) for key in parts[0]}
+    per_n = parts[0] if len(parts) == 1 else \
+        {key: np.concatenate([p[key] for p in parts]) for key in parts[0]}
 
     effects = np.array(design.curve_effects())
     curve = np.vstack([calc.power(e, n_t, n_c) for e in effects])
     power = curve[int(np.flatnonzero(effects == design.assumed_effect)[0])]
-
     type_one = calc.engine.power(float(calc.rule.null_value), n_t, n_c)
-    data_vars: dict[str, Any] = {"power": ("n", power), "power_curve": (("effect", "n"), curve),
-                                 "type_one_error": ("n", type_one)}
-    data_vars.update({key: ("n", value) for key, value in per_n.items()})
+
+    data_vars: dict[str, tuple[tuple[str, ...], Any]] = {
+        "power": (("n",), power), "power_curve": (("effect", "n"), curve),
+        "type_one_error": (("n",), type_one)}
+    data_vars.update({key: (("n",), value) for key, value in per_n.items()})
     data_vars["ceiling"] = ((), design.ceiling())
     data_vars["prob_benefit"] = ((), design.prob_benefit())
     if design.relevant_effect is not None:
         data_vars["prob_relevant"] = ((), design.prob_relevant())
-    coords = {"n": n, "n_treatment": ("n", n_t), "n_control": ("n", n_c), "effect": effects}
-    coords.update({k: ("n", v) for k, v in design.endpoint.extra_coords(n_t, n_c).items()})
-    ds = xr.Dataset(
-        data_vars,
-        coords=coords,
-        attrs={
-            "title": design.title,
-            "design": json.dumps(design.to_dict()),
-            "method": calc.engine.method(),
-            "draws": draws if calc.monte_carlo else 0,
-            "seed": -1 if seed is None else seed,
-            "package_version": __version__,
-        },
-    )
-    _label(ds)
-    return ds
+    _require_finite(design, {k: v for k, (_, v) in data_vars.items()}, n, "evaluate")
+    coords: dict[str, tuple[tuple[str, ...], np.ndarray]] = {
+        "n": (("n",), n), "n_treatment": (("n",), n_t), "n_control": (("n",), n_c),
+        "effect": (("effect",), effects)}
+    coords.update({k: (("n",), v) for k, v in design.endpoint.extra_coords(n_t, n_c).items()})
+    attrs = {
+        "title": design.title,
+        "design": design.to_json(),
+        "method": calc.engine.method(),
+        "draws": draws if calc.monte_carlo else 0,
+        "seed": -1 if seed is None else seed,
+        "package_version": __version__,
+    }
+    return _dataset(data_vars, coords, attrs)
 
 
 _LABELS = {
@@ -222,12 +227,85 @@ _LABELS = {
 }
 
 
-def _label(ds: Any) -> None:
+@lru_cache(maxsize=256)
+def _long_name(name: str) -> str:
+    base = name.removesuffix("_mcse")
+    text = _LABELS.get(base, base)
+    return f"Monte Carlo standard error of {text}" if name.endswith("_mcse") else text
+
+
+def _dataset(data_vars: dict[str, tuple[tuple[str, ...], Any]],
+             coords: dict[str, tuple[tuple[str, ...], np.ndarray]],
+             attrs: dict[str, Any]) -> Any:
+    """The results Dataset: data variables labelled, ``n`` and ``effect`` indexed.
+
+    Every variable is already aligned on ``n`` and ``effect``, so the Dataset is assembled
+    from ready-made variables and indexes (``Dataset._construct_direct``, how xarray itself
+    builds Datasets internally) instead of the public constructor, which would re-check the
+    alignment (two thirds of evaluate's time on a closed-form design). If that constructor
+    is missing or changes signature in a later xarray, the public one builds the same
+    Dataset (a test compares the two).
+    """
+    try:
+        return _dataset_direct(data_vars, coords, attrs)
+    except (AttributeError, TypeError):  # pragma: no cover - depends on the xarray version
+        return _dataset_public(data_vars, coords, attrs)
+
+
+def _dataset_public(data_vars: dict[str, tuple[tuple[str, ...], Any]],
+                    coords: dict[str, tuple[tuple[str, ...], np.ndarray]],
+                    attrs: dict[str, Any]) -> Any:
+    import xarray as xr
+
+    ds = xr.Dataset({k: (dims, v) for k, (dims, v) in data_vars.items()},
+                    coords={k: (dims, v) for k, (dims, v) in coords.items()}, attrs=attrs)
     for name, var in ds.data_vars.items():
-        base = name.removesuffix("_mcse")
-        text = _LABELS.get(base, base)
-        var.attrs["long_name"] = f"Monte Carlo standard error of {text}" \
-            if name.endswith("_mcse") else text
+        var.attrs["long_name"] = _long_name(name)
+    return ds
+
+
+def _dataset_direct(data_vars: dict[str, tuple[tuple[str, ...], Any]],
+                    coords: dict[str, tuple[tuple[str, ...], np.ndarray]],
+                    attrs: dict[str, Any]) -> Any:
+    import xarray as xr
+
+    variables: dict[str, Any] = {}
+    sizes: dict[str, int] = {}
+    indexes: dict[str, Any] = {}
+    for name, (dims, value) in data_vars.items():
+        value = np.asarray(value, dtype=float)
+        _record_sizes(sizes, dims, value.shape)
+        variables[name] = xr.Variable(dims, value, {"long_name": _long_name(name)},
+                                      fastpath=value.ndim > 0)
+    for name, (dims, value) in coords.items():
+        value = np.asarray(value)
+        _record_sizes(sizes, dims, value.shape)
+        if dims == (name,):  # a dimension coordinate carries a pandas index
+            index = _index(name, value.tobytes(), value.dtype.str)
+            indexes[name] = index
+            variables.update(index.create_variables())
+        else:
+            variables[name] = xr.Variable(dims, value, fastpath=True)
+    return xr.Dataset._construct_direct(variables, set(coords), sizes, dict(attrs), indexes)
+
+
+@lru_cache(maxsize=16)
+def _index(name: str, data: bytes, dtype: str) -> Any:
+    """A pandas index of a dimension coordinate; immutable, so shared by Datasets on the same
+    sizes (an evaluation asked again on the same grid, as solving and planning do)."""
+    import pandas as pd
+    from xarray.indexes import PandasIndex
+
+    value = np.frombuffer(data, dtype=np.dtype(dtype)).copy()
+    return PandasIndex(pd.Index(value, name=name), name, coord_dtype=value.dtype, fastpath=True)
+
+
+def _record_sizes(sizes: dict[str, int], dims: tuple[str, ...], shape: tuple[int, ...]) -> None:
+    if len(dims) != len(shape):  # never expected: the public constructor explains it
+        raise TypeError(f"dimensions {dims} do not match shape {shape}")
+    for dim, length in zip(dims, shape, strict=True):
+        if sizes.setdefault(dim, length) != length:
+            raise TypeError(f"dimension {dim} has lengths {sizes[dim]} and {length}")
 
 
 # ------------------------------------------------------------------------------------------
@@ -235,7 +313,13 @@ def _label(ds: Any) -> None:
 # ------------------------------------------------------------------------------------------
 @dataclass(frozen=True)
 class SampleSizeAnswer:
-    """The smallest sample size that reaches a target, or why none does."""
+    """The smallest sample size that reaches a target, or why none does.
+
+    ``ceiling`` is the limit of the quantity as n grows. ``highest`` and
+    ``highest_n_total`` are filled when the target is at or above that limit: the solver
+    then searches every size up to ``max_total`` for the highest value (false positives can
+    lift it above the limit at a finite n) and reports it, with the size that gives it.
+    """
 
     quantity: str
     target: float
@@ -247,6 +331,8 @@ class SampleSizeAnswer:
     achieved_mcse: float | None
     ceiling: float
     message: str
+    highest: float | None = None
+    highest_n_total: int | None = None
 
     def to_dict(self) -> dict[str, Any]:
         return asdict(self)
@@ -262,6 +348,10 @@ def _ceiling_for(calc: _Calculator, quantity: str) -> float:
     return min(limit / calc.prob_relevant, 1.0)
 
 
+#: Control-arm sizes tried (geometrically spaced) when looking for the highest value.
+SCAN_POINTS = 160
+
+
 def solve_sample_size(
     design: TrialDesign,
     target: float,
@@ -274,16 +364,20 @@ def solve_sample_size(
     """Smallest sample size at which ``quantity`` reaches ``target``.
 
     Sizes are searched on the control arm (whole patients), the treatment arm getting
-    ``ceil(allocation * n_control)``; for one group, on the whole sample. The search doubles
-    until the target is met, then bisects, so that one patient fewer on control falls short.
-    It assumes the probability rises with n, as it does for these rules in practical
-    designs. :func:`evaluate` splits the returned total into the same arms.
+    ``ceil(allocation * n_control)``; for one group, on the whole sample. Below the ceiling
+    (the limit of the quantity as n grows) the search doubles until the target is met, then
+    bisects, so that one patient fewer on control falls short. It assumes the probability
+    rises with n, as it does for these rules in practical designs. :func:`evaluate` splits
+    the returned total into the same arms.
 
-    A target at or above the ceiling (the limit of the quantity as n grows) is reported as
-    not reachable. False positives (successes when the true effect is at or just below the
-    lowest passable effect) can lift assurance at moderate n slightly above that limit, by
-    at most about alpha times the prior probability of such effects; such a target is still
-    reported as not reachable, since no true effect supports it.
+    A target at or above the ceiling is reachable only where the quantity rises above its
+    limit at a finite n. That happens through false positives: successes when the true
+    effect is at or below the lowest effect at which the rule can be passed (a point mass
+    just below the null, say), which fade as n grows. For such a target the solver
+    evaluates sizes from the smallest to ``max_total`` (160 sizes spaced evenly on a log
+    scale, then the peak refined to the patient), reports the highest value and where it
+    lies (``highest``, ``highest_n_total``), and returns the smallest size reaching the
+    target if the highest value does, saying that the target lies above the ceiling.
 
     Parameters
     ----------
@@ -297,13 +391,20 @@ def solve_sample_size(
     max_total
         Largest total sample size considered.
     draws, seed
-        Monte Carlo settings when sigma is uncertain (the same draws serve every n).
+        Monte Carlo settings when sigma is uncertain (the same draws serve every n);
+        ``draws`` between 100 and 2,000,000.
 
     Returns
     -------
     SampleSizeAnswer
-        ``reached`` is False, with the reason in ``message``, when the target is at or above
-        the ceiling or needs more than ``max_total`` patients.
+        ``reached`` is False, with the reason in ``message``, when no size up to
+        ``max_total`` reaches the target.
+
+    Raises
+    ------
+    AssuranceInputError
+        For invalid inputs, and when the design's numbers are too extreme for a finite
+        probability at some size (the message names the parameter).
 
     Examples
     --------
@@ -326,57 +427,129 @@ def solve_sample_size(
         )
     max_total = check_int(max_total, "max_total", owner, low=design.endpoint.smallest_total,
                           high=MAX_TOTAL)
-    draws = check_int(draws, "draws", owner, low=100)
+    draws = check_int(draws, "draws", owner, low=100, high=MAX_DRAWS)
+    if seed is not None:
+        seed = check_int(seed, "seed", owner, low=0)
     calc = _Calculator(design, draws, seed)
     ceiling = _ceiling_for(calc, quantity)
     label = quantity.replace("_", " ")
+    endpoint = design.endpoint
+    peak: tuple[float, int] | None = None  # (highest value, its control size) once scanned
+
+    def totals(n_c: np.ndarray) -> np.ndarray:
+        n_t_arr, n_c_arr = endpoint.sizes_from_control(np.asarray(n_c))
+        return n_t_arr + n_c_arr
+
+    def values_at(n_c: np.ndarray) -> np.ndarray:
+        n_t_arr, n_c_arr = endpoint.sizes_from_control(np.asarray(n_c))
+        values = np.asarray(calc.quantity(quantity, n_t_arr, n_c_arr), dtype=float)
+        _require_finite(design, {quantity: values}, n_t_arr + n_c_arr, owner)
+        return values
+
+    def value_at(n_c: int) -> float:
+        return float(values_at(np.array([n_c]))[0])
 
     def answer(reached: bool, n_c: int | None, message: str) -> SampleSizeAnswer:
+        highest = None if peak is None else peak[0]
+        at = None if peak is None else int(totals(np.array([peak[1]]))[0])
         if n_c is None:
             return SampleSizeAnswer(quantity, target, reached, None, None, None, None, None,
-                                    ceiling, message)
-        n_t_arr, n_c_arr = design.endpoint.sizes_from_control(np.array([n_c]))
-        value = calc.quantity(quantity, n_t_arr, n_c_arr)
+                                    ceiling, message, highest, at)
+        n_t_arr, n_c_arr = endpoint.sizes_from_control(np.array([n_c]))
+        value = values_at(np.array([n_c]))
         mcse = None
         if calc.monte_carlo and quantity != "power":
             mcse = float(calc.assurance(n_t_arr, n_c_arr)[f"{quantity}_mcse"][0])
         return SampleSizeAnswer(quantity, target, reached, int(n_t_arr[0] + n_c_arr[0]),
                                 int(n_t_arr[0]), int(n_c_arr[0]), float(value[0]), mcse,
-                                ceiling, message)
+                                ceiling, message, highest, at)
 
-    if target >= ceiling:
-        return answer(False, None,
-                      f"Target {label} {target:g} is not reachable: no sample size can pass "
-                      f"the ceiling of {ceiling:.3f} (the limit as n grows: the prior "
-                      "probability of effects at which the rule can be passed). Lower the "
-                      "target or revisit the design.")
-
-    def value_at(n_c: int) -> float:
-        n_t_arr, n_c_arr = design.endpoint.sizes_from_control(np.array([n_c]))
-        return float(calc.quantity(quantity, n_t_arr, n_c_arr)[0])
-
-    arms = design.endpoint.arms
-    low = max(1, math.ceil(design.endpoint.smallest_total / arms))
-    while int(np.sum(design.endpoint.sizes_from_control(np.array([low])))) < \
-            design.endpoint.smallest_total:
+    low = max(1, math.ceil(endpoint.smallest_total / endpoint.arms))
+    while int(totals(np.array([low]))[0]) < endpoint.smallest_total:
         low += 1
-    if value_at(low) >= target:
-        return answer(True, low, "Reached at the smallest size the analysis allows.")
-    high = low
-    limit = _control_limit(design, max_total)
-    while value_at(high) < target:
-        if high >= limit:
-            return answer(False, None,
-                          f"Target {label} {target:g} needs more than {max_total} patients "
-                          f"(ceiling {ceiling:.3f}).")
-        low, high = high, min(2 * high, limit)
-    while high - low > 1:
-        mid = (low + high) // 2
-        if value_at(mid) >= target:
-            high = mid
+    limit = max(_control_limit(design, max_total), low)
+
+    def bisect(below: int, above: int) -> int:
+        """Smallest size in (below, above] reaching the target, value(below) < target."""
+        while above - below > 1:
+            mid = (below + above) // 2
+            if value_at(mid) >= target:
+                above = mid
+            else:
+                below = mid
+        return above
+
+    if target < ceiling:
+        if value_at(low) >= target:
+            return answer(True, low, "Reached at the smallest size the analysis allows.")
+        high = low
+        while value_at(high) < target:
+            if high >= limit:
+                return answer(False, None,
+                              f"Target {label} {target:g} needs more than {max_total} "
+                              f"patients (ceiling {ceiling:.3f}: the limit as n grows).")
+            low, high = high, min(2 * high, limit)
+        return answer(True, bisect(low, high), f"Smallest size reaching {label} {target:g}.")
+
+    # At or above the limit: only a finite n where false positives still count can reach it.
+    grid = np.unique(np.geomspace(low, limit, SCAN_POINTS).round().astype(np.int64))
+    grid = grid[(grid >= low) & (grid <= limit)]
+    values = values_at(grid)
+    best = int(np.argmax(values))
+    peak = _refine_peak(value_at, grid, values, best)
+    edge = calc.rule.lowest_passable_effect()
+    no_better = (f"no better than {float(endpoint.from_benefit(edge)) + 0.0:g}"
+                 if math.isfinite(edge) else "at or below the lowest passable effect")
+    false_positives = (f"false positives (successes when the true effect is {no_better}, "
+                       "the least effect the rule can pass), which fade as n grows")
+    ceiling_text = f"the ceiling {ceiling:.3f} (the limit as n grows)"
+    peak_total = int(totals(np.array([peak[1]]))[0])
+    if peak[0] < target:
+        if peak[0] > ceiling:
+            why = (f"the highest {label} any size up to {max_total} patients gives is "
+                   f"{peak[0]:.4f}, at {peak_total} patients, above {ceiling_text} only "
+                   f"through {false_positives}")
         else:
-            low = mid
-    return answer(True, high, f"Smallest size reaching {label} {target:g}.")
+            why = (f"no size up to {max_total} patients passes {ceiling_text}; the highest "
+                   f"{label} is {peak[0]:.4f}, at {peak_total} patients")
+        return answer(False, None,
+                      f"Target {label} {target:g} is not reachable: {why}. Lower the target "
+                      "or revisit the design.")
+    sizes = np.append(grid, peak[1])
+    values = np.append(values, peak[0])
+    order = np.argsort(sizes, kind="stable")
+    sizes, values = sizes[order], values[order]
+    first = int(np.flatnonzero(values >= target)[0])
+    n_c = int(sizes[0]) if first == 0 else bisect(int(sizes[first - 1]), int(sizes[first]))
+    return answer(True, n_c,
+                  f"Smallest size reaching {label} {target:g}, a target above {ceiling_text}: "
+                  f"it is reached only through {false_positives}; the highest {label} is "
+                  f"{peak[0]:.4f}, at {peak_total} patients.")
+
+
+def _refine_peak(value_at: Callable[[int], float], grid: np.ndarray, values: np.ndarray,
+                 best: int) -> tuple[float, int]:
+    """Highest value near grid point ``best``: ternary search on whole sizes between its
+    neighbours (the quantity is assumed to have one peak there)."""
+    lo = int(grid[max(best - 1, 0)])
+    hi = int(grid[min(best + 1, grid.size - 1)])
+    top = (float(values[best]), int(grid[best]))
+    while hi - lo > 2:
+        a = lo + (hi - lo) // 3
+        b = hi - (hi - lo) // 3
+        va, vb = value_at(a), value_at(b)
+        for v, n in ((va, a), (vb, b)):
+            if v > top[0] or (v == top[0] and n < top[1]):
+                top = (v, n)
+        if va < vb:
+            lo = a
+        else:
+            hi = b
+    for n in range(lo, hi + 1):
+        v = value_at(n)
+        if v > top[0] or (v == top[0] and n < top[1]):
+            top = (v, n)
+    return top
 
 
 def _control_limit(design: TrialDesign, max_total: int) -> int:
@@ -384,3 +557,71 @@ def _control_limit(design: TrialDesign, max_total: int) -> int:
     if ep.layout == "single_arm":
         return max_total
     return max(1, int(max_total / (1 + ep.allocation)))
+
+
+# ------------------------------------------------------------------------------------------
+# no quantity is returned NaN or infinite
+# ------------------------------------------------------------------------------------------
+#: Magnitudes outside [1e-150, 1e150] are named first when a figure cannot be computed: the
+#: arithmetic squares standard errors and effects, which then leave double precision.
+_HUGE, _TINY = 1e150, 1e-150
+
+
+def _require_finite(design: TrialDesign, values: dict[str, Any], n_total: np.ndarray,
+                    owner: str) -> None:
+    """Raise :class:`AssuranceInputError` naming a parameter if any value is not finite."""
+    if np.isfinite(np.concatenate([np.ravel(v) for v in values.values()])).all():
+        return
+    for name, value in values.items():
+        arr = np.asarray(value, dtype=float)
+        if np.isfinite(arr).all():
+            continue
+        bad = np.flatnonzero(~np.isfinite(np.atleast_1d(arr)))
+        sizes = np.atleast_1d(n_total)
+        at = f" at n = {int(sizes[bad[0]])}" if arr.ndim == 1 and bad.size and \
+            sizes.size == arr.size else ""
+        param, param_owner, got = _extreme_parameter(design)
+        if param is None:
+            raise AssuranceInputError(
+                f"The 'design' parameter of {owner} gives a {name.replace('_', ' ')} that "
+                f"cannot be computed in double precision{at}: its numbers must keep every "
+                f"standard error, threshold and probability finite. Got {design.to_json()} "
+                "instead.")
+        raise AssuranceInputError(
+            f"The '{param}' parameter of {param_owner} must be a number between {_TINY:g} "
+            f"and {_HUGE:g} in size for {owner} to compute a finite "
+            f"{name.replace('_', ' ')}{at}. Got {got!r} instead.")
+
+
+def _extreme_parameter(design: TrialDesign) -> tuple[str | None, str, Any]:
+    """The first number of the design whose size lies outside [1e-150, 1e150]."""
+    endpoint = design.endpoint
+    candidates: list[tuple[str, str, Any]] = []
+    candidates += [(k, type(endpoint).__name__, v) for k, v in endpoint.to_dict().items()]
+    candidates += [("design_prior", "TrialDesign", v) for v in _numbers(design.design_prior
+                                                                         .to_dict())]
+    if design.sigma_prior is not None:
+        candidates += [("sigma_prior", "TrialDesign", v)
+                       for v in _numbers(design.sigma_prior.to_dict())]
+    rule = design.rule
+    candidates += [(k, type(rule).__name__, v) for k, v in rule.to_dict().items()]
+    candidates += [("assumed_effect", "TrialDesign", design.assumed_effect),
+                   ("relevant_effect", "TrialDesign", design.relevant_effect)]
+    candidates += [("power_effects", "TrialDesign", v) for v in design.power_effects]
+    for name, owner, value in candidates:
+        for x in _numbers(value):
+            if abs(x) > _HUGE or 0 < abs(x) < _TINY:
+                return name, owner, value
+    return None, "", None
+
+
+def _numbers(value: Any) -> list[float]:
+    if isinstance(value, bool) or value is None or isinstance(value, str):
+        return []
+    if isinstance(value, int | float | np.integer | np.floating):
+        return [float(value)]
+    if isinstance(value, dict):
+        return [x for v in value.values() for x in _numbers(v)]
+    if isinstance(value, list | tuple):
+        return [x for v in value for x in _numbers(v)]
+    return []

@@ -1,10 +1,12 @@
-"""Solving for the sample size, and the ceiling that no sample size can pass.
+"""Solving for the sample size; the ceiling (the limit as n grows) and the highest value.
 
 For each answer: the target is met at the solved size and missed with one patient fewer on
 control (one fewer patient for a single group), checked both with the package's evaluate()
 on the same arm sizes and, where a closed form exists, with an independent scipy computation
 (non-central t power, common practice; normal-prior assurance Phi((m - c)/sqrt(v + se^2)),
-O'Hagan, Stevens & Campbell 2005).
+O'Hagan, Stevens & Campbell 2005). Targets between the ceiling and the highest value that
+false positives give at a finite n are checked against a brute-force scan of that closed
+form over every control size.
 """
 
 from __future__ import annotations
@@ -29,6 +31,7 @@ from assurance import (
     evaluate,
     solve_sample_size,
 )
+from assurance._validation import MAX_DRAWS
 from assurance.errors import AssuranceInputError
 
 DESIGNS = {
@@ -131,8 +134,11 @@ def test_assurance_solution_against_closed_form(mean, sd, sigma, target):
 
 @pytest.mark.parametrize("seed", [3, 31, 314])
 def test_monte_carlo_solution_uses_the_same_draws(seed):
-    design = TrialDesign(ContinuousEndpoint(8.0), Normal(4.0, 2.0), relevant_effect=3.0,
+    # A Student t effect prior with a prior on sigma is averaged by Monte Carlo (a normal one
+    # now has a deterministic quadrature over sigma).
+    design = TrialDesign(ContinuousEndpoint(8.0), StudentT(8, 4.0, 2.0), relevant_effect=3.0,
                          sigma_prior=ScaledInvChiSquare(12.0, 8.0))
+    assert "Monte Carlo" in evaluate(design, [100], draws=400, seed=seed).attrs["method"]
     for quantity, target in (("assurance", 0.6), ("conditional_assurance", 0.8)):
         ans = solve_sample_size(design, target, quantity=quantity, draws=4000, seed=seed)
         assert ans.reached
@@ -248,23 +254,121 @@ def test_answer_to_dict_round_trip():
                       "achieved", "achieved_mcse", "ceiling", "message"}
 
 
-def test_target_above_ceiling_is_refused_even_if_false_positives_pass_it():
+def test_target_reached_only_through_false_positives_is_solved_and_said():
     # Half the prior says "slightly harmful" (N(-0.01, 0.001^2)), half "clearly better".
-    # Ceiling = P(delta > 0) = 0.5, yet at n = 100 false positives add ~0.011. By design
-    # (documented in solve_sample_size) a target at or above the ceiling is not reachable by
-    # any true effect, so the solver refuses it and says so with the ceiling's value.
+    # Ceiling = P(delta > 0) = 0.5, yet at n = 100 false positives add ~0.011: a target of
+    # 0.505 is reached at finite n, and the answer says it lies above the ceiling.
     prior = Mixture([Normal(-0.01, 0.001), Normal(3.0, 0.3)], [0.5, 0.5])
     design = TrialDesign(ContinuousEndpoint(1.0, analysis="z"), prior)
-    se = math.sqrt(2 / 50)
     z = stats.norm.isf(0.025)
-    # independent: 0.5 Phi((m1 - z se)/tau1) + 0.5 Phi((m2 - z se)/tau2) (O'Hagan et al. 2005)
-    at_100 = 0.5 * stats.norm.cdf((-0.01 - z * se) / math.hypot(0.001, se)) \
-        + 0.5 * stats.norm.cdf((3.0 - z * se) / math.hypot(0.3, se))
-    assert at_100 > 0.505 > design.ceiling()
-    assert float(evaluate(design, [100]).assurance[0]) == pytest.approx(at_100, abs=1e-9)
+
+    def closed_form(n_c):  # 0.5 Phi((m1 - z se)/tau1) + 0.5 Phi((m2 - z se)/tau2), O'Hagan 2005
+        se = np.sqrt(2 / np.asarray(n_c, dtype=float))
+        return 0.5 * stats.norm.cdf((-0.01 - z * se) / np.hypot(0.001, se)) \
+            + 0.5 * stats.norm.cdf((3.0 - z * se) / np.hypot(0.3, se))
+
+    assert float(closed_form(50)) > 0.505 > design.ceiling()
+    assert float(evaluate(design, [100]).assurance[0]) == pytest.approx(float(closed_form(50)),
+                                                                       abs=1e-9)
     ans = solve_sample_size(design, 0.505)
-    assert not ans.reached
+    assert ans.reached and ans.achieved >= 0.505
+    # smallest: the brute-force scan of every control size agrees
+    every = np.arange(1, 20001)
+    values = closed_form(every)
+    assert ans.n_control == int(every[np.flatnonzero(values >= 0.505)[0]])
+    assert ans.highest == pytest.approx(float(values.max()), abs=1e-9)
+    assert ans.highest_n_total == 2 * int(every[np.argmax(values)])
+    assert "above the ceiling" in ans.message and "false positives" in ans.message
     assert f"{design.ceiling():.3f}" in ans.message
+
+
+POINT_BELOW_NULL = Mixture([PointMass(-0.05), Normal(2.0, 0.5)], [0.3, 0.7])
+
+
+def _below_null_closed_form(n_c):
+    """0.3 * power at -0.05 + 0.7 * normal-prior assurance (O'Hagan et al. 2005)."""
+    z = stats.norm.isf(0.025)
+    se = np.sqrt(2 / np.asarray(n_c, dtype=float))
+    return 0.3 * stats.norm.cdf((-0.05 - z * se) / se) \
+        + 0.7 * stats.norm.cdf((2.0 - z * se) / np.hypot(0.5, se))
+
+
+def test_point_mass_just_below_the_null_lifts_assurance_above_the_ceiling():
+    # 30% "slightly harmful" at -0.05: at finite n the test rejects there more often than
+    # it will as n grows, so assurance peaks above its limit 0.7 P(N(2, 0.5) > 0).
+    design = TrialDesign(ContinuousEndpoint(1.0, analysis="z"), POINT_BELOW_NULL)
+    ceiling = 0.7 * stats.norm.sf(0.0, 2.0, 0.5)
+    assert design.ceiling() == pytest.approx(ceiling, abs=1e-14)
+    every = np.arange(1, 200_001)
+    values = _below_null_closed_form(every)
+    peak, at = float(values.max()), int(every[np.argmax(values)])
+    assert peak > ceiling + 0.003  # the situation under test
+    for target in (ceiling, (ceiling + peak) / 2, peak - 1e-7):
+        ans = solve_sample_size(design, target)
+        assert ans.reached, ans.message
+        assert ans.n_control == int(every[np.flatnonzero(values >= target)[0]])
+        assert float(_below_null_closed_form(ans.n_control)) >= target
+        assert ans.highest == pytest.approx(peak, abs=1e-9)
+        assert ans.highest_n_total == 2 * at
+        assert "above the ceiling" in ans.message
+    ans = solve_sample_size(design, peak + 1e-6)
+    assert not ans.reached and ans.n_total is None
+    assert ans.highest == pytest.approx(peak, abs=1e-9) and ans.highest_n_total == 2 * at
+    assert f"{peak:.4f}" in ans.message and f"{ceiling:.3f}" in ans.message
+    assert "false positives" in ans.message and "not reachable" in ans.message
+    # the answer's highest value is what evaluate reports at that size
+    ds = evaluate(design, [ans.highest_n_total])
+    assert float(ds.assurance[0]) == pytest.approx(ans.highest, abs=1e-12)
+
+
+def test_highest_value_is_searched_up_to_max_total_only():
+    # With at most 80 patients the peak (116 patients) is out of reach: the highest value is
+    # then at the largest size allowed, and a target between it and the peak is refused
+    # with that value.
+    design = TrialDesign(ContinuousEndpoint(1.0, analysis="z"), POINT_BELOW_NULL)
+    values = _below_null_closed_form(np.arange(1, 41))
+    top = float(values.max())
+    assert int(np.argmax(values)) == 39 and top > design.ceiling()
+    ans = solve_sample_size(design, top + 1e-5, max_total=80)
+    assert not ans.reached and "up to 80 patients" in ans.message
+    assert ans.highest == pytest.approx(top, abs=1e-9) and ans.highest_n_total == 80
+    assert solve_sample_size(design, top + 1e-5).reached  # more patients reach it
+
+
+def test_limit_approached_from_below_is_never_reached():
+    # A normal prior centred where the rule can be passed rises towards its ceiling and
+    # never passes it (O'Hagan et al. 2005 closed form is increasing in n here), so the
+    # highest value sits at the largest size and stays below the ceiling.
+    design = TrialDesign(ContinuousEndpoint(1.0, analysis="z"), Normal(0.2, 0.4))
+    ans = solve_sample_size(design, design.ceiling(), max_total=20_000)
+    assert not ans.reached
+    assert ans.highest < design.ceiling()
+    assert ans.highest_n_total == 20_000
+    assert "no size up to 20000 patients passes the ceiling" in ans.message
+
+
+def test_a_size_whose_figures_cannot_be_computed_is_an_error_not_a_success():
+    # An SD of 1e308 overflows every standard error and threshold: the solver must not
+    # treat the resulting NaN as reaching the target.
+    for analysis in ("t", "z"):
+        design = TrialDesign(ContinuousEndpoint(1e308, analysis=analysis), Normal(1.0, 1.0))
+        with pytest.raises(AssuranceInputError,
+                           match=r"'sigma' parameter of ContinuousEndpoint.*Got 1e\+308"):
+            solve_sample_size(design, 0.5)
+    # power by z: the threshold 1.96 se overflows too
+    with pytest.raises(AssuranceInputError, match=r"'sigma' parameter of ContinuousEndpoint"):
+        solve_sample_size(design, 0.9, quantity="power")
+
+
+@pytest.mark.parametrize("draws", [99, MAX_DRAWS + 1])
+def test_draws_outside_the_allowed_range_are_refused(draws):
+    design = TrialDesign(ContinuousEndpoint(8.0), StudentT(8, 4.0, 2.0),
+                         sigma_prior=ScaledInvChiSquare(12.0, 8.0))
+    with pytest.raises(AssuranceInputError, match=rf"'draws' parameter of solve_sample_size.*"
+                                                 rf"\[100, 2e\+06\].*Got {draws}"):
+        solve_sample_size(design, 0.6, draws=draws)
+    with pytest.raises(AssuranceInputError, match=rf"'draws' parameter of evaluate.*Got {draws}"):
+        evaluate(design, [100], draws=draws)
 
 
 def test_ceiling_is_the_limit_for_many_priors():
