@@ -61,12 +61,12 @@ def _lower_orthant(x: np.ndarray, y: np.ndarray, r: np.ndarray) -> np.ndarray:
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
         ax = (y - r * x) / (x * root)
         ay = (x - r * y) / (y * root)
-    if np.isfinite(ax).all() and np.isfinite(ay).all():  # no zero, no overflow
-        # x and y are then nonzero, so the signs decide beta directly
-        beta = np.where((x > 0) == (y > 0), 0.0, 0.5)
+        usual = np.isfinite(ax + ay).all()
+    if usual:  # no zero and no overflow: x, y nonzero, so their signs decide beta
+        beta = 0.5 * ((x > 0) != (y > 0))
         val = 0.5 * (special.ndtr(x) + special.ndtr(y)) - special.owens_t(x, ax) \
             - special.owens_t(y, ay) - beta
-        return np.clip(val, 0.0, 1.0)
+        return np.minimum(np.maximum(val, 0.0), 1.0)
     with np.errstate(invalid="ignore"):
         # at x = 0 the argument is +-infinity and T(0, +-inf) = +-1/4 (scipy's owens_t agrees)
         ax = np.where(x == 0, np.sign(y - r * x) * np.inf, ax)
@@ -125,7 +125,7 @@ def prob_estimate_above(
     if c.shape != s.shape:
         c, s = np.broadcast_arrays(c, s)
     bad = None
-    if not (np.isfinite(c).all() and np.isfinite(s).all() and (s > 0).all()):
+    if not (np.isfinite(c + s).all() and (s > 0).all()):
         bad = ~(np.isfinite(c) & np.isfinite(s) & (s > 0))
         c, s = np.where(bad, 0.0, c), np.where(bad, 1.0, s)  # harmless stand-ins
     parts = prior.parts()
@@ -140,7 +140,7 @@ def prob_estimate_above(
         total = p * weight if total is None else total + weight * p
     if bad is not None:
         total[bad] = np.nan  # not computable: the caller reports it
-    return np.clip(total, 0.0, 1.0)
+    return np.minimum(np.maximum(total, 0.0), 1.0)  # NaN stays NaN
 
 
 #: Below this, ``sqrt(sd^2 + se^2)`` is formed as ``hypot(sd, se)`` (the squares underflow).
@@ -164,16 +164,20 @@ def _point_mass(value, c, s, cut, inclusive):
 
 
 def _normal(m, sd, c, s, cut):
-    with np.errstate(over="ignore", under="ignore"):
+    with np.errstate(over="ignore", under="ignore", invalid="ignore", divide="ignore"):
         tau = np.sqrt(sd * sd + s * s)
-    if not (np.isfinite(tau).all() and (tau > _TINY_SCALE).all()):  # squares left range
+        h = (c - m) / tau
+        usual = np.isfinite(h).all() and tau.min() > _TINY_SCALE
+    if not usual:  # squares or differences that leave the range of doubles
         fix = ~(np.isfinite(tau) & (tau > _TINY_SCALE))
         tau = np.where(fix, np.hypot(sd, s), tau)
-    h = _scaled_gap(c, m, tau)
+        h = _scaled_gap(c, m, tau)
     if cut is None:
         return special.ndtr(-h)
-    rho = sd / tau
-    return upper_orthant_normal(h, _scaled_gap(cut, m, sd), rho)
+    k = (cut - m) / sd
+    if math.isfinite(k):  # P(Z1 > h, Z2 > k) = Phi2(-h, -k; rho), Owen's T identity
+        return _lower_orthant(-h, np.full(h.shape, -k), sd / tau)
+    return upper_orthant_normal(h, _scaled_gap(cut, m, sd), sd / tau)
 
 
 # ------------------------------------------------------------------------------------------
