@@ -166,6 +166,7 @@ def evaluate(
         raise AssuranceInputError(
             f"The 'design' parameter of evaluate must be a TrialDesign. Got {design!r} instead."
         )
+    _check_scale(design, "evaluate")
     n = _check_sizes(design, sizes)
     draws = check_int(draws, "draws", "evaluate", low=100, high=MAX_DRAWS)
     if seed is not None:
@@ -418,6 +419,7 @@ def solve_sample_size(
         raise AssuranceInputError(
             f"The 'design' parameter of {owner} must be a TrialDesign. Got {design!r} instead."
         )
+    _check_scale(design, owner)
     target = check_real(target, "target", owner, low=0, high=1, low_open=True, high_open=True)
     check_choice(quantity, "quantity", owner, QUANTITIES)
     if quantity == "conditional_assurance" and design.relevant_effect is None:
@@ -562,39 +564,45 @@ def _control_limit(design: TrialDesign, max_total: int) -> int:
 # ------------------------------------------------------------------------------------------
 # no quantity is returned NaN or infinite
 # ------------------------------------------------------------------------------------------
-#: Magnitudes outside [1e-150, 1e150] are named first when a figure cannot be computed: the
-#: arithmetic squares standard errors and effects, which then leave double precision.
+#: Every number of a design (SDs, effects, prior parameters, margins; mixture weights aside)
+#: must be 0 or of a size within [1e-150, 1e150]: the arithmetic squares and multiplies
+#: them, and beyond this range some engines would overflow or underflow to a wrong but
+#: finite probability (found at 1e300 and 1e-300) instead of a NaN that can be caught.
 _HUGE, _TINY = 1e150, 1e-150
+
+
+def _check_scale(design: TrialDesign, owner: str) -> None:
+    """Raise :class:`AssuranceInputError` naming the first number of the design out of range."""
+    param, param_owner, got = design._remember("extreme_parameter",
+                                               lambda: _extreme_parameter(design))
+    if param is not None:
+        raise AssuranceInputError(
+            f"The '{param}' parameter of {param_owner} must be 0 or a number between "
+            f"{_TINY:g} and {_HUGE:g} in size for {owner} to compute finite probabilities. "
+            f"Got {got!r} instead.")
 
 
 def _require_finite(design: TrialDesign, values: dict[str, Any], n_total: np.ndarray,
                     owner: str) -> None:
-    """Raise :class:`AssuranceInputError` naming a parameter if any value is not finite."""
+    """Raise :class:`AssuranceInputError` if any value is not finite (never expected once
+    :func:`_check_scale` passed; a last guard so that NaN is never reported or compared)."""
     if np.isfinite(np.concatenate([np.ravel(v) for v in values.values()])).all():
         return
     for name, value in values.items():
-        arr = np.asarray(value, dtype=float)
+        arr = np.atleast_1d(np.asarray(value, dtype=float))
         if np.isfinite(arr).all():
             continue
-        bad = np.flatnonzero(~np.isfinite(np.atleast_1d(arr)))
         sizes = np.atleast_1d(n_total)
-        at = f" at n = {int(sizes[bad[0]])}" if arr.ndim == 1 and bad.size and \
-            sizes.size == arr.size else ""
-        param, param_owner, got = _extreme_parameter(design)
-        if param is None:
-            raise AssuranceInputError(
-                f"The 'design' parameter of {owner} gives a {name.replace('_', ' ')} that "
-                f"cannot be computed in double precision{at}: its numbers must keep every "
-                f"standard error, threshold and probability finite. Got {design.to_json()} "
-                "instead.")
+        bad = np.flatnonzero(~np.isfinite(arr))
+        at = f" at n = {int(sizes[bad[0]])}" if sizes.size == arr.size else ""
         raise AssuranceInputError(
-            f"The '{param}' parameter of {param_owner} must be a number between {_TINY:g} "
-            f"and {_HUGE:g} in size for {owner} to compute a finite "
-            f"{name.replace('_', ' ')}{at}. Got {got!r} instead.")
+            f"The 'design' parameter of {owner} gives a {name.replace('_', ' ')} that cannot "
+            f"be computed in double precision{at}: its numbers must keep every standard "
+            f"error, threshold and probability finite. Got {design.to_json()} instead.")
 
 
 def _extreme_parameter(design: TrialDesign) -> tuple[str | None, str, Any]:
-    """The first number of the design whose size lies outside [1e-150, 1e150]."""
+    """The first number of the design whose size lies outside [1e-150, 1e150] (not 0)."""
     endpoint = design.endpoint
     candidates: list[tuple[str, str, Any]] = []
     candidates += [(k, type(endpoint).__name__, v) for k, v in endpoint.to_dict().items()]
@@ -603,6 +611,9 @@ def _extreme_parameter(design: TrialDesign) -> tuple[str | None, str, Any]:
     if design.sigma_prior is not None:
         candidates += [("sigma_prior", "TrialDesign", v)
                        for v in _numbers(design.sigma_prior.to_dict())]
+    if design.analysis_prior is not None:
+        candidates += [("analysis_prior", "TrialDesign", v)
+                       for v in _numbers(design.analysis_prior.to_dict())]
     rule = design.rule
     candidates += [(k, type(rule).__name__, v) for k, v in rule.to_dict().items()]
     candidates += [("assumed_effect", "TrialDesign", design.assumed_effect),
@@ -616,12 +627,13 @@ def _extreme_parameter(design: TrialDesign) -> tuple[str | None, str, Any]:
 
 
 def _numbers(value: Any) -> list[float]:
+    """Every number inside ``value`` (dicts, lists), mixture weights aside."""
     if isinstance(value, bool) or value is None or isinstance(value, str):
         return []
     if isinstance(value, int | float | np.integer | np.floating):
         return [float(value)]
     if isinstance(value, dict):
-        return [x for v in value.values() for x in _numbers(v)]
+        return [x for k, v in value.items() if k != "weights" for x in _numbers(v)]
     if isinstance(value, list | tuple):
         return [x for v in value for x in _numbers(v)]
     return []

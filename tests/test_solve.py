@@ -360,6 +360,25 @@ def test_a_size_whose_figures_cannot_be_computed_is_an_error_not_a_success():
         solve_sample_size(design, 0.9, quantity="power")
 
 
+def test_nan_from_an_engine_never_counts_as_reaching_the_target(monkeypatch):
+    # Whatever produced it, a NaN is an error: compared with >= it would read as "not
+    # reached" and with < as "reached" (a bisection treats either as a verdict).
+    from assurance import planning
+
+    design = TrialDesign(ContinuousEndpoint(1.0), Normal(0.5, 0.3))
+    real = planning._Calculator.quantity
+
+    def broken(self, name, n_t, n_c):
+        values = np.array(real(self, name, n_t, n_c), dtype=float)
+        values[np.asarray(n_c) >= 40] = np.nan
+        return values
+
+    monkeypatch.setattr(planning._Calculator, "quantity", broken)
+    for target in (0.6, 0.99):  # below and above the ceiling (two search paths)
+        with pytest.raises(AssuranceInputError, match=r"cannot be computed.*at n = "):
+            solve_sample_size(design, target)
+
+
 @pytest.mark.parametrize("draws", [99, MAX_DRAWS + 1])
 def test_draws_outside_the_allowed_range_are_refused(draws):
     design = TrialDesign(ContinuousEndpoint(8.0), StudentT(8, 4.0, 2.0),

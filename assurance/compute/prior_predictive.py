@@ -125,7 +125,7 @@ def prob_estimate_above(
     if c.shape != s.shape:
         c, s = np.broadcast_arrays(c, s)
     bad = None
-    if not (np.isfinite(c + s).all() and (s > 0).all()):
+    if not (np.isfinite(c).all() and np.isfinite(s).all() and (s > 0).all()):
         bad = ~(np.isfinite(c) & np.isfinite(s) & (s > 0))
         c, s = np.where(bad, 0.0, c), np.where(bad, 1.0, s)  # harmless stand-ins
     parts = prior.parts()
@@ -167,7 +167,7 @@ def _normal(m, sd, c, s, cut):
     with np.errstate(over="ignore", under="ignore", invalid="ignore", divide="ignore"):
         tau = np.sqrt(sd * sd + s * s)
         h = (c - m) / tau
-        usual = np.isfinite(h).all() and tau.min() > _TINY_SCALE
+        usual = np.isfinite(tau).all() and tau.min() > _TINY_SCALE and np.isfinite(h).all()
     if not usual:  # squares or differences that leave the range of doubles
         fix = ~(np.isfinite(tau) & (tau > _TINY_SCALE))
         tau = np.where(fix, np.hypot(sd, s), tau)
