@@ -86,7 +86,7 @@ def test_reference_page_lists_every_key_and_every_choice():
             assert f"`{f.alias or name}`" in page, (model.__name__, name)
     # the allowed values of a choice key, e.g. the ratio scales of a binary endpoint
     assert '"difference", "risk_ratio", "odds_ratio"' in page
-    assert '"z", "chi_square", "fisher_exact", "exact_binomial"' in page
+    assert '"z", "unpooled_z", "chi_square", "fisher_exact", "exact_binomial"' in page
 
 
 def test_every_key_has_one_sentence_of_help():

@@ -457,10 +457,12 @@ class BinaryTable(Table):
     allocation: Positive = key(1.0, _ALLOCATION)
     scale: Literal["difference", "risk_ratio", "odds_ratio"] = key(
         "difference", "Scale of the effect: rate difference, risk ratio or odds ratio.")
-    test: Literal["z", "chi_square", "fisher_exact", "exact_binomial"] = key(
-        "z", "Test at the analysis (exact_binomial: one arm); power by exact enumeration.")
-    continuity_correction: bool = key(False, "Continuity correction for the z or chi-square "
-                                      "test.")
+    test: Literal["z", "unpooled_z", "chi_square", "fisher_exact", "exact_binomial"] = key(
+        "z", "Test at the analysis: 'z' pools the rates for the variance, 'unpooled_z' uses "
+        "each arm's own (two arms), 'exact_binomial' is for one arm; power by exact "
+        "enumeration.")
+    continuity_correction: bool = key(False, "Continuity correction for the z, unpooled z or "
+                                      "chi-square test.")
     better: Literal["higher", "lower"] = key("higher", "Whether a higher response rate is good.")
     control_prior: Pair | None = key(None, "Beta pair [a, b] for the control rate when the "
                                      "design prior is on the effect alone.")
