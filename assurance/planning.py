@@ -564,22 +564,33 @@ def _control_limit(design: TrialDesign, max_total: int) -> int:
 # ------------------------------------------------------------------------------------------
 # no quantity is returned NaN or infinite
 # ------------------------------------------------------------------------------------------
-#: Every number of a design (SDs, effects, prior parameters, margins; mixture weights aside)
-#: must be 0 or of a size within [1e-150, 1e150]: the arithmetic squares and multiplies
-#: them, and beyond this range some engines would overflow or underflow to a wrong but
-#: finite probability (found at 1e300 and 1e-300) instead of a NaN that can be caught.
+#: Every finite number of a design (SDs, effects, prior parameters, margins; mixture weights
+#: aside) must be at most 1e150 in size, and every scale (SD, prior scale or SD, rate) at
+#: least 1e-150: the arithmetic squares and multiplies them, and beyond this range some
+#: engines would overflow or underflow to a wrong but finite probability (found at scales
+#: 1e300 and 1e-300) instead of a NaN that can be caught.
 _HUGE, _TINY = 1e150, 1e-150
+_SCALE_KEYS = frozenset({"sigma", "sd", "scale", "rate"})
 
 
 def _check_scale(design: TrialDesign, owner: str) -> None:
     """Raise :class:`AssuranceInputError` naming the first number of the design out of range."""
-    param, param_owner, got = design._remember("extreme_parameter",
-                                               lambda: _extreme_parameter(design))
-    if param is not None:
-        raise AssuranceInputError(
-            f"The '{param}' parameter of {param_owner} must be 0 or a number between "
-            f"{_TINY:g} and {_HUGE:g} in size for {owner} to compute finite probabilities. "
-            f"Got {got!r} instead.")
+    found = design._remember("extreme_parameter", lambda: _extreme_parameter(design))
+    if found is None:
+        return
+    param, param_owner, shown, key = found
+    purpose = f"for {owner} to compute finite probabilities"
+    if isinstance(shown, str):  # a prior, shown by its description
+        allowed = (f"have every number at most {_HUGE:g} in size and every scale at least "
+                   f"{_TINY:g}")
+        got = shown
+    else:
+        allowed = (f"be a number between {_TINY:g} and {_HUGE:g}" if key in _SCALE_KEYS
+                   else f"be a number at most {_HUGE:g}") + " in size"
+        got = repr(shown)
+    raise AssuranceInputError(
+        f"The '{param}' parameter of {param_owner} must {allowed} {purpose}. Got {got} "
+        "instead.")
 
 
 def _require_finite(design: TrialDesign, values: dict[str, Any], n_total: np.ndarray,
@@ -601,39 +612,39 @@ def _require_finite(design: TrialDesign, values: dict[str, Any], n_total: np.nda
             f"error, threshold and probability finite. Got {design.to_json()} instead.")
 
 
-def _extreme_parameter(design: TrialDesign) -> tuple[str | None, str, Any]:
-    """The first number of the design whose size lies outside [1e-150, 1e150] (not 0)."""
-    endpoint = design.endpoint
-    candidates: list[tuple[str, str, Any]] = []
-    candidates += [(k, type(endpoint).__name__, v) for k, v in endpoint.to_dict().items()]
-    candidates += [("design_prior", "TrialDesign", v) for v in _numbers(design.design_prior
-                                                                         .to_dict())]
-    if design.sigma_prior is not None:
-        candidates += [("sigma_prior", "TrialDesign", v)
-                       for v in _numbers(design.sigma_prior.to_dict())]
-    if design.analysis_prior is not None:
-        candidates += [("analysis_prior", "TrialDesign", v)
-                       for v in _numbers(design.analysis_prior.to_dict())]
-    rule = design.rule
-    candidates += [(k, type(rule).__name__, v) for k, v in rule.to_dict().items()]
-    candidates += [("assumed_effect", "TrialDesign", design.assumed_effect),
-                   ("relevant_effect", "TrialDesign", design.relevant_effect)]
-    candidates += [("power_effects", "TrialDesign", v) for v in design.power_effects]
-    for name, owner, value in candidates:
-        for x in _numbers(value):
-            if abs(x) > _HUGE or 0 < abs(x) < _TINY:
-                return name, owner, value
-    return None, "", None
+def _extreme_parameter(design: TrialDesign) -> tuple[str, str, Any, str] | None:
+    """The first number of the design out of range (see ``_HUGE``, ``_TINY``): the
+    parameter's name, its owner, its value (a prior as its description) and the key."""
+    endpoint, rule = design.endpoint, design.rule
+    # (parameter, owner, value shown, numbers looked at)
+    candidates: list[tuple[str, str, Any, Any]] = []
+    candidates += [(k, type(endpoint).__name__, v, {k: v})
+                   for k, v in endpoint.to_dict().items()]
+    for name in ("design_prior", "sigma_prior", "analysis_prior"):
+        prior = getattr(design, name)
+        if prior is not None:
+            candidates.append((name, "TrialDesign", prior.describe(), prior.to_dict()))
+    candidates += [(k, type(rule).__name__, v, {k: v}) for k, v in rule.to_dict().items()]
+    for name in ("assumed_effect", "relevant_effect"):
+        candidates.append((name, "TrialDesign", getattr(design, name), getattr(design, name)))
+    candidates += [("power_effects", "TrialDesign", v, v) for v in design.power_effects]
+    for name, owner, shown, value in candidates:
+        for key, x in _numbers(value, name):
+            if not math.isfinite(x):  # an infinite truncation bound means "no bound"
+                continue
+            if abs(x) > _HUGE or (key in _SCALE_KEYS and 0 < abs(x) < _TINY):
+                return name, owner, shown, key
+    return None
 
 
-def _numbers(value: Any) -> list[float]:
-    """Every number inside ``value`` (dicts, lists), mixture weights aside."""
+def _numbers(value: Any, key: str) -> list[tuple[str, float]]:
+    """``(key, number)`` for every number inside ``value`` (mixture weights aside)."""
     if isinstance(value, bool) or value is None or isinstance(value, str):
         return []
     if isinstance(value, int | float | np.integer | np.floating):
-        return [float(value)]
+        return [(key, float(value))]
     if isinstance(value, dict):
-        return [x for k, v in value.items() if k != "weights" for x in _numbers(v)]
+        return [pair for k, v in value.items() if k != "weights" for pair in _numbers(v, k)]
     if isinstance(value, list | tuple):
-        return [x for v in value for x in _numbers(v)]
+        return [pair for v in value for pair in _numbers(v, key)]
     return []

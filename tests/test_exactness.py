@@ -176,24 +176,34 @@ def test_thresholds_that_are_not_numbers_give_nan_for_the_caller():
 def test_overflowing_sd_is_an_error_naming_sigma(analysis, prior):
     design = TrialDesign(ContinuousEndpoint(1e308, analysis=analysis), prior)
     with pytest.raises(AssuranceInputError,
-                       match=r"The 'sigma' parameter of ContinuousEndpoint must be 0 or a "
-                             r"number between 1e-150 and 1e\+150 in size.*Got 1e\+308 instead"):
+                       match=r"The 'sigma' parameter of ContinuousEndpoint must be a number "
+                             r"between 1e-150 and 1e\+150 in size.*Got 1e\+308 instead"):
         evaluate(design, [3, 10, 1000])
 
 
 @pytest.mark.parametrize(("design", "words"), [
-    (TrialDesign(ContinuousEndpoint(1.0), Normal(1e-200, 1.0)), "'design_prior' parameter"),
+    (TrialDesign(ContinuousEndpoint(1.0), Normal(0.5, 1e-200)),
+     r"'design_prior' parameter of TrialDesign must have every number at most 1e\+150 in "
+     r"size and every scale at least 1e-150.*Got normal\(mean=0.5, sd=1e-200\) instead"),
+    (TrialDesign(ContinuousEndpoint(1e-160), Normal(0.5, 1.0)), "'sigma' parameter"),
     (TrialDesign(ContinuousEndpoint(1.0), Normal(0.5, 1.0),
                  rule=Significance(0.025, margin=1e200)), "'margin' parameter of Significance"),
     (TrialDesign(ContinuousEndpoint(1.0), Normal(0.5, 1.0), relevant_effect=0.2,
-                 power_effects=(1e-300,)), "'power_effects' parameter of TrialDesign"),
+                 power_effects=(1e200,)), "'power_effects' parameter of TrialDesign"),
     (TrialDesign(ContinuousEndpoint(1.0), StudentT(4, 0.5, 1e160)), "'design_prior' parameter"),
-], ids=["tiny-prior-mean", "huge-margin", "tiny-power-effect", "huge-prior-scale"])
+], ids=["tiny-prior-sd", "tiny-sigma", "huge-margin", "huge-power-effect",
+        "huge-prior-scale"])
 def test_numbers_out_of_range_are_named_before_computing(design, words):
+    # Locations may be tiny (a mean of 1e-200 is a mean of 0); scales may not.
     for call in (lambda: evaluate(design, [10, 100]), lambda: planning.solve_sample_size(
             design, 0.5)):
         with pytest.raises(AssuranceInputError, match=words):
             call()
+    tiny_mean = TrialDesign(ContinuousEndpoint(1.0, analysis="z"), Normal(1e-200, 1.0))
+    ds = evaluate(tiny_mean, [100])  # P(d > c) with m = 0 (O'Hagan et al. 2005)
+    se = math.sqrt(2 / 50)
+    assert float(ds.assurance[0]) == pytest.approx(
+        stats.norm.sf(stats.norm.isf(0.025) * se / math.hypot(1.0, se)), abs=1e-12)
 
 
 def test_differences_that_overflow_are_still_computed():

@@ -12,8 +12,13 @@ Every bound here is a fact of probability, not a value from this package:
   threshold c(n) >= L gives Phi((m - c)/tau) <= Phi((m - L)/sd), so assurance <= ceiling;
 * as n grows the threshold tends to L, so assurance tends to the ceiling.
 
-Tolerance 1e-6 on comparisons that go through the package's quadratures (adaptive quadrature
-at 1e-10 and the sample-SD rule, observed error <= 4e-7).
+Tolerance 1e-6 on comparisons that go through the package's quadratures (the fixed rule over
+the prior, about 1e-11, and the sample-SD rule, observed error <= 4e-7).
+
+At extreme scales two further facts hold: multiplying every effect, SD and margin by the
+same constant leaves every probability unchanged (scale invariance, common practice), and
+whatever the numbers, evaluate returns finite probabilities in [0, 1] or raises
+AssuranceInputError naming a parameter.
 """
 
 from __future__ import annotations
@@ -35,6 +40,7 @@ from assurance import (
     Uniform,
     evaluate,
 )
+from assurance.errors import AssuranceInputError
 
 TOL = 1e-6
 SETTINGS = settings(max_examples=50, deadline=None,
@@ -163,15 +169,104 @@ def test_assurance_tends_to_ceiling(design):
     # se at n = 1e14 is below 1e-5: the threshold sits within ~1e-4 of L and the estimate's
     # noise is negligible, so with prior densities <= 4 the gap is below 1e-3. A point mass
     # within 1e-4 of L (but not at it) is still short of its limit at any finite n: skip.
-    # Closed-form families only: priors integrated by adaptive quadrature (Student t,
-    # truncated normal, uniform, scipy) can miss the step of the power curve at one large n
-    # -- a known core bug, see test_quadrature_catches_a_narrow_step_at_one_large_n in
-    # test_assurance_exact.py.
     lowest = _benefit_lowest(design)
     assume(all(loc == lowest or abs(loc - lowest) > 1e-4
                for loc, _ in design.benefit_prior.atoms()))
     ds = evaluate(design, [10**14])
     assert float(ds.assurance[0]) == pytest.approx(float(ds.ceiling), abs=1e-3)
+
+
+@FEW
+@given(designs(continuous_only=True, with_relevant=False))
+def test_assurance_tends_to_ceiling_through_the_fixed_rule(design):
+    # The same limit for the families integrated by the fixed rule (uniform, Student t,
+    # truncated normal; z analysis: a t analysis of these goes through the sample-SD
+    # quadrature first). The step of the power curve at n = 1e14 is 1e-5 wide; the rule's
+    # panels follow it at every size, so it is never missed.
+    ep = design.endpoint
+    z = ContinuousEndpoint(ep.sigma, layout=ep.layout, allocation=ep.allocation, analysis="z",
+                           better=ep.better)
+    d = TrialDesign(z, design.design_prior, rule=design.rule)
+    ds = evaluate(d, [10**14])
+    assert float(ds.assurance[0]) == pytest.approx(float(ds.ceiling), abs=1e-3)
+
+
+SCALED_PRIORS = ["normal", "mixture_atom", "point_mass", "uniform", "student_t"]
+
+
+@st.composite
+def scaled_pairs(draw):
+    """A design at unit scale and the same design with every effect-scale number times
+    10^k, |k| <= 140 (the whole allowed range of sizes of numbers, 1e-150 to 1e150)."""
+    k = 10.0 ** draw(st.integers(-140, 140))
+    analysis = draw(st.sampled_from(["z", "t"]))
+    kind = draw(st.sampled_from(SCALED_PRIORS if analysis == "z" else SCALED_PRIORS[:3]))
+    sigma = draw(st.floats(0.5, 20.0, **finite))
+    # no tiny nonzero mean: times 1e-140 it would underflow to 0, a different design for
+    # "effect > 0" (an atom at 0 is not a benefit, one at 1e-309 is)
+    mean = draw(st.one_of(st.just(0.0), st.floats(1e-3, 8.0), st.floats(-3.0, -1e-3)))
+    sd = draw(st.floats(0.1, 4.0, **finite))
+    margin = draw(st.sampled_from([0.0, 0.5, 2.0]))
+    min_est = draw(st.sampled_from([None, 0.0, 1.0]))
+    alpha = draw(st.sampled_from([0.01, 0.025, 0.1]))
+    w = draw(st.floats(0.05, 0.95, **finite))
+
+    def build(c):
+        prior = {"normal": lambda: Normal(mean * c, sd * c),
+                 "mixture_atom": lambda: Mixture([PointMass(0.0), Normal(mean * c, sd * c)],
+                                                 [w, 1.0 - w]),
+                 "point_mass": lambda: PointMass(mean * c),
+                 "uniform": lambda: Uniform((mean - sd) * c, (mean + sd) * c),
+                 "student_t": lambda: StudentT(5.0, mean * c, sd * c)}[kind]()
+        rule = Significance(alpha, margin=margin * c,
+                            min_estimate=None if min_est is None else min_est * c)
+        return TrialDesign(ContinuousEndpoint(sigma * c, analysis=analysis), prior, rule=rule,
+                           assumed_effect=(mean + 0.5) * c)
+
+    return build(1.0), build(k)
+
+
+@SETTINGS
+@given(scaled_pairs())
+def test_probabilities_do_not_depend_on_the_unit(pair):
+    unit, scaled = pair
+    a, b = evaluate(unit, SIZES), evaluate(scaled, SIZES)
+    for name in ("assurance", "power", "type_one_error", "prob_success_and_benefit"):
+        np.testing.assert_allclose(b[name].values, a[name].values, rtol=0, atol=1e-9,
+                                   err_msg=name)
+    assert float(b.ceiling) == pytest.approx(float(a.ceiling), abs=1e-12)
+
+
+EXPONENTS = st.one_of(st.integers(-170, 170), st.sampled_from([-330, -320, -308, 308, 310]))
+
+
+@SETTINGS
+@given(EXPONENTS, EXPONENTS, EXPONENTS,
+       st.sampled_from(["z", "t"]), st.sampled_from(["normal", "mixture_atom", "point_mass"]),
+       st.sampled_from([3, 1000, 10**15]))
+def test_any_numbers_give_finite_probabilities_or_a_named_error(a, b, c, analysis, kind, n):
+    # SD, prior SD and prior mean each anywhere from 1e-320 to 1e320 (beyond the largest
+    # double they are refused when built): evaluate either refuses, naming a parameter, or
+    # returns probabilities that are finite and in [0, 1].
+    sigma, sd, mean = (float(f"1e{e}") for e in (a, b, c))  # 1e309 reads as inf
+    mean = -mean
+    try:
+        endpoint = ContinuousEndpoint(sigma, analysis=analysis)
+        prior = {"normal": lambda: Normal(mean, sd),
+                 "mixture_atom": lambda: Mixture([PointMass(0.0), Normal(mean, sd)], [0.3, 0.7]),
+                 "point_mass": lambda: PointMass(mean)}[kind]()
+        design = TrialDesign(endpoint, prior)
+    except AssuranceInputError:
+        return  # refused when built (zero, subnormal or infinite numbers)
+    try:
+        ds = evaluate(design, [n])
+    except AssuranceInputError as exc:
+        assert "parameter of" in str(exc) and "Got" in str(exc)
+        return
+    for name in ("assurance", "power", "type_one_error", "prob_success_and_benefit", "ceiling",
+                 "prob_benefit"):
+        v = ds[name].values
+        assert np.all(np.isfinite(v)) and np.all((v >= 0) & (v <= 1)), name
 
 
 @SETTINGS

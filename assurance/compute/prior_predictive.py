@@ -55,22 +55,29 @@ def upper_orthant_normal(h: np.ndarray, k: np.ndarray, rho: np.ndarray) -> np.nd
     return out
 
 
+#: Below this size an argument of the bivariate normal is computed by the ratio form (the
+#: products ``x * root`` lose digits among subnormal numbers).
+_TINY_ARGUMENT = 1e-280
+
+
 def _lower_orthant(x: np.ndarray, y: np.ndarray, r: np.ndarray) -> np.ndarray:
     """Phi2(x, y; r) = 1/2 Phi(x) + 1/2 Phi(y) - T(x, a_x) - T(y, a_y) - beta (Owen 1956)."""
     root = np.sqrt(1.0 - r * r)
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
         ax = (y - r * x) / (x * root)
         ay = (x - r * y) / (y * root)
-        usual = np.isfinite(ax + ay).all()
-    if usual:  # no zero and no overflow: x, y nonzero, so their signs decide beta
+        usual = np.isfinite(ax + ay).all() and np.abs(x).min() > _TINY_ARGUMENT \
+            and np.abs(y).min() > _TINY_ARGUMENT
+    if usual:  # no zero, no overflow, no subnormal: the signs of x and y decide beta
         beta = 0.5 * ((x > 0) != (y > 0))
         val = 0.5 * (special.ndtr(x) + special.ndtr(y)) - special.owens_t(x, ax) \
             - special.owens_t(y, ay) - beta
         return np.minimum(np.maximum(val, 0.0), 1.0)
-    with np.errstate(invalid="ignore"):
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        # as ratios, which stay exact for tiny (even subnormal) x and y of similar size;
         # at x = 0 the argument is +-infinity and T(0, +-inf) = +-1/4 (scipy's owens_t agrees)
-        ax = np.where(x == 0, np.sign(y - r * x) * np.inf, ax)
-        ay = np.where(y == 0, np.sign(x - r * y) * np.inf, ay)
+        ax = np.where(x == 0, np.sign(y - r * x) * np.inf, (y / x - r) / root)
+        ay = np.where(y == 0, np.sign(x - r * y) * np.inf, (x / y - r) / root)
     sx, sy = np.sign(x), np.sign(y)
     beta = np.where(sx * sy > 0, 0.0, np.where(sx * sy < 0, 0.5, np.where(x + y >= 0, 0.0, 0.5)))
     val = 0.5 * (special.ndtr(x) + special.ndtr(y)) - special.owens_t(x, np.nan_to_num(ax)) \
