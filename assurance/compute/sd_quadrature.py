@@ -29,6 +29,7 @@ from __future__ import annotations
 
 import math
 from functools import lru_cache
+
 import numpy as np
 from scipy import special, stats
 
@@ -61,6 +62,8 @@ _BULK_SCORES = np.arange(-9.0, 9.5, 1.0)
 _PATTERN = np.array([-12.0, -5.0, -2.0, -0.7, 0.0, 0.7, 2.0, 5.0, 12.0])
 _PANEL_NODES = 10
 _PANEL = special.roots_legendre(_PANEL_NODES)
+#: a feature at least this wide on the score scale needs no panels of its own
+_BROAD = 2.0
 #: (narrowest feature on the score scale, fewest degrees of freedom, Gauss-Hermite nodes):
 #: the first row a column satisfies gives its rule; none: the composite rule. A short rule
 #: needs the score map nearly straight (many df) as well as wide features.
@@ -126,6 +129,16 @@ def _bulk_log_ratio(df_bytes: bytes) -> np.ndarray:
     return 0.5 * np.log(chi / df[None, :])
 
 
+def _bulk_ends(df: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Ratios at the scores -9 and 9 by Wilson-Hilferty (common practice), the lower end
+    pushed down to at most 3e-5, and to 0 below 5 df: never above the exact end (checked
+    against scipy.stats.chi2 for df 5 to 1e4); the upper end within 10% of it."""
+    a = 2.0 / (9.0 * df)
+    lo = np.where(df < 5.0, 0.0, np.maximum(1.0 - a - 9.0 * np.sqrt(a), 1e-3) ** 1.5)
+    hi = (1.0 - a + 9.0 * np.sqrt(a)) ** 1.5
+    return lo, hi
+
+
 def _narrowest_score_width(df: np.ndarray, centres: np.ndarray, widths: np.ndarray
                            ) -> np.ndarray:
     """Width on the score scale of the narrowest feature that reaches the bulk, per column.
@@ -133,19 +146,42 @@ def _narrowest_score_width(df: np.ndarray, centres: np.ndarray, widths: np.ndarr
     Wilson-Hilferty (common practice): the score of ``q`` is about ``(q^(2/3) - 1 + a) /
     sqrt(a)``, ``a = 2 / (9 df)``, so ``dz/dq`` is about ``sqrt(2 df) q^(-1/3)``. The bulk is
     the ratios of scores -9 to 9; a feature more than 12 widths outside it leaves the
-    integrand flat there. The width is read where the score
-    scale is tightest within five widths above the centre. Only used to choose a rule, so rough is enough.
+    integrand flat there. The width is read where the score scale is tightest within five
+    widths above the centre. Only used to choose a rule, so rough is enough.
     """
-    a = 2.0 / (9.0 * df)
-    lo = np.maximum(1.0 - a - 9.0 * np.sqrt(a), 1e-3) ** 1.5
-    hi = (1.0 - a + 9.0 * np.sqrt(a)) ** 1.5
-    with np.errstate(invalid="ignore"):
+    lo, hi = _bulk_ends(df)
+    with np.errstate(invalid="ignore", divide="ignore"):
         reach = np.isfinite(centres) & (np.abs(centres - np.clip(centres, lo, hi))
                                         <= 12.0 * widths)
         # judged where the score scale is tightest within five widths of the centre
         near = np.clip(centres + 5.0 * widths, lo, hi)
         width = widths * np.sqrt(2.0 * df) * near ** (-1.0 / 3.0)
     return np.where(reach, width, np.inf).min(axis=0, initial=np.inf)
+
+
+def _exact_score_width(df: np.ndarray, centres: np.ndarray, widths: np.ndarray
+                       ) -> np.ndarray:
+    """Width of each feature on the score scale, read at the centre and five widths either
+    side (the smallest of the three); NaN where the score cannot be formed (far tails)."""
+    h = df / 2
+    out = np.full(centres.shape, np.inf)
+    with np.errstate(all="ignore"):
+        for step in (-5.0, 0.0, 5.0):
+            q = centres + step * widths
+            ok = np.isfinite(q) & (q > 0)
+            q = np.where(ok, q, 1.0)
+            x = h * q * q
+            low = q < 1.0
+            z = np.where(low, special.ndtri(special.gammainc(h, x)),
+                         -special.ndtri(special.gammaincc(h, x)))
+            # dz/dq = f_q(q) / phi(z), f_q(q) = f_u(log q) / q
+            log_slope = ratio_log_density(np.log(q), df) - np.log(q) + 0.5 * z * z \
+                + 0.5 * math.log(2 * math.pi)
+            width = widths * np.exp(log_slope)
+            width = np.where(ok & np.isfinite(width), width, np.where(ok, np.nan, np.inf))
+            out = np.fmin(out, width) if step else np.where(np.isnan(width), np.nan,
+                                                            np.fmin(out, width))
+    return out
 
 
 def ratio_rule(df: np.ndarray, centres: np.ndarray | None = None,
@@ -192,15 +228,29 @@ def ratio_rule(df: np.ndarray, centres: np.ndarray | None = None,
     else:
         floor = np.broadcast_to(np.asarray(floor, dtype=float), (n,))
         has_floor = np.isfinite(floor) & (floor > 0)
+    # a floor outside the bulk (scores -9 to 9) bends nothing: below it the mass is under
+    # 1e-19 (the integrand is its smooth upper branch), above it all mass is constant
+    lo, hi = _bulk_ends(df)
+    above = has_floor & (floor > 1.1 * hi)
+    has_floor = has_floor & (floor >= lo) & ~above
     narrowest = _narrowest_score_width(df, centres, widths)
+    narrowest = np.where(above, np.inf, narrowest)
     fits = (narrowest >= _TIER_WIDTH) & (df >= _TIER_DF)  # (tiers, columns)
     tier = np.where(fits.any(axis=0) & ~has_floor, _TIER_NODES[fits.argmax(axis=0)], 0)
 
     parts = []
-    if tier.any():
+    if above.any():
+        # one node at the floor carries all the mass
+        tier = np.where(above, 0, tier)
+        keep = ~above
+        k = np.flatnonzero(above)
+        parts.append((k, floor[k].copy(), np.ones(k.size)))
+    else:
+        keep = np.ones(n, dtype=bool)
+    if (tier > 0).any():
         parts.append(_hermite_flat(df.tobytes(), tier.tobytes()))
-    if not tier.all():
-        cols = np.flatnonzero(tier == 0)
+    if ((tier == 0) & keep).any():
+        cols = np.flatnonzero((tier == 0) & keep)
         parts.append(_composite(df[cols], centres[:, cols], widths[:, cols], floor[cols],
                                 has_floor[cols], cols))
     if len(parts) == 1:
@@ -239,6 +289,10 @@ def _composite(df: np.ndarray, centres: np.ndarray, widths: np.ndarray, floor: n
     bulk = _bulk_log_ratio(uniq.tobytes())[:, inverse]
     lo = bulk[0]
     hi = bulk[-1]
+    # a feature two score units wide or wider is resolved by the bulk panels (one unit,
+    # ten nodes each): its own panels would only cost time
+    broad = _exact_score_width(df, centres, widths) >= _BROAD
+    centres = np.where(broad, np.nan, centres)
     with np.errstate(divide="ignore", invalid="ignore"):
         u_floor = np.where(has_floor, np.log(np.where(has_floor, floor, 1.0)), -np.inf)
         # panels about each feature are laid on the ratio scale, then read on the log scale
@@ -248,20 +302,23 @@ def _composite(df: np.ndarray, centres: np.ndarray, widths: np.ndarray, floor: n
     start = np.maximum(lo, u_floor)
     points = np.clip(np.concatenate([bulk, extra, start[None, :]]), start, hi)
     points.sort(axis=0)
-    left, right = points[:-1], points[1:]
-    half = 0.5 * (right - left)
-    mid = 0.5 * (right + left)
+    half = 0.5 * (points[1:] - points[:-1])
+    panel, column = np.nonzero(half > 0)  # panels squeezed to nothing are dropped
+    half = half[panel, column]
+    mid = 0.5 * (points[1:][panel, column] + points[:-1][panel, column])
     x, w = _PANEL
-    u = (mid[:, None, :] + half[:, None, :] * x[None, :, None]).reshape(-1, df.size)
-    weight = (half[:, None, :] * w[None, :, None]).reshape(-1, df.size) \
-        * np.exp(ratio_log_density(u, df[None, :]))
+    u = (mid[:, None] + half[:, None] * x[None, :]).ravel()
+    node_df = np.repeat(df[column], x.size)
+    weight = np.outer(half, w).ravel() * np.exp(ratio_log_density(u, node_df))
+    col = np.repeat(cols[column], x.size)
     ratio = np.exp(u)
     if has_floor.any():
-        below = np.where(has_floor, special.gammainc(df / 2, df / 2 * np.where(
-            has_floor, floor, 0.0) ** 2), 0.0)
-        ratio = np.concatenate([np.where(has_floor, floor, 1.0)[None, :], ratio])
-        weight = np.concatenate([below[None, :], weight])
-    return np.tile(cols, ratio.shape[0]), ratio.ravel(), weight.ravel()
+        k = np.flatnonzero(has_floor)
+        below = special.gammainc(df[k] / 2, df[k] / 2 * floor[k] ** 2)
+        col = np.concatenate([cols[k], col])
+        ratio = np.concatenate([floor[k], ratio])
+        weight = np.concatenate([below, weight])
+    return col, ratio, weight
 
 
 # -- the general-purpose rule for thresholds of any shape -----------------------------------

@@ -178,5 +178,5 @@ class _ContinuousCalculator(SuccessCalculator):
         if t_test:
             base += "; quadrature over the sample SD where needed (t test)"
         if self.quadrature:
-            base += "; deterministic quadrature over the SD prior (no Monte Carlo error)"
+            base += "; deterministic quadrature over the SD prior"
         return base
