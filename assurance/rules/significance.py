@@ -14,7 +14,7 @@ from dataclasses import dataclass
 from typing import Any, Literal
 
 import numpy as np
-from scipy import special, stats
+from scipy import special
 
 from .._validation import check_choice, check_real
 
@@ -89,7 +89,7 @@ class Significance:
 
     def critical_t(self, df: np.ndarray) -> np.ndarray:
         """Student t critical values ``t_{1 - alpha, df}``."""
-        return stats.t.isf(self.one_sided_alpha, df)
+        return -special.stdtrit(df, self.one_sided_alpha)  # t quantile, no scipy.stats import
 
     def threshold(self, se: Any, critical: Any) -> np.ndarray:
         """Threshold ``c`` the estimate must exceed, for standard error(s) ``se``."""
