@@ -81,8 +81,10 @@ class _Calculator:
             # probability are exact transforms of the joint (and of its standard error).
             joint = res.joint[1]
             out["prob_success_and_relevant"] = joint
-            out["prob_miss_relevant"] = np.clip(self.prob_relevant - joint, 0.0, 1.0)
-            out["conditional_assurance"] = np.clip(joint / self.prob_relevant, 0.0, 1.0)
+            out["prob_miss_relevant"] = np.minimum(np.maximum(self.prob_relevant - joint, 0.0),
+                                                   1.0)
+            out["conditional_assurance"] = np.minimum(
+                np.maximum(joint / self.prob_relevant, 0.0), 1.0)
             if self.monte_carlo:
                 out["prob_success_and_relevant_mcse"] = res.joint_mcse[1]
                 out["prob_miss_relevant_mcse"] = res.joint_mcse[1]
@@ -95,11 +97,28 @@ class _Calculator:
         return self.assurance(n_t, n_c)[name]
 
 
+def _calculator(design: TrialDesign, draws: int, seed: int | None) -> _Calculator:
+    """The design's calculator; an exact one (no Monte Carlo draws, so the same for every
+    ``draws`` and ``seed``) is built once per design and kept on it."""
+    kept = design._remember("exact_calculator", lambda: [])
+    if kept:
+        return kept[0]
+    calc = _Calculator(design, draws, seed)
+    if not calc.monte_carlo:
+        kept.append(calc)
+    return calc
+
+
 # ------------------------------------------------------------------------------------------
 # evaluate over a grid
 # ------------------------------------------------------------------------------------------
 def _check_sizes(design: TrialDesign, sizes: Any) -> np.ndarray:
     smallest = design.endpoint.smallest_total
+    if isinstance(sizes, np.ndarray) and sizes.ndim == 1 and sizes.size \
+            and sizes.dtype.kind in "iu":  # whole numbers already: range and order suffice
+        arr = sizes.astype(np.int64)
+        if smallest <= arr[0] and sizes[-1] <= MAX_TOTAL and (np.diff(arr) > 0).all():
+            return arr  # sorted without repeats: what np.unique would return
     arr = check_real_array(sizes, "sizes", "evaluate", low=smallest, high=MAX_TOTAL)
     if np.any(arr != np.round(arr)):
         raise AssuranceInputError(
@@ -171,7 +190,7 @@ def evaluate(
     draws = check_int(draws, "draws", "evaluate", low=100, high=MAX_DRAWS)
     if seed is not None:
         seed = check_int(seed, "seed", "evaluate", low=0)
-    calc = _Calculator(design, draws, seed)
+    calc = _calculator(design, draws, seed)
     n_t, n_c = design.endpoint.arm_sizes(n)
 
     chunks = np.array_split(np.arange(n.size), max(1, math.ceil(n.size / 25))) \
@@ -271,16 +290,19 @@ def _dataset_direct(data_vars: dict[str, tuple[tuple[str, ...], Any]],
     import xarray as xr
 
     variables: dict[str, Any] = {}
-    sizes: dict[str, int] = {}
+    sizes: dict[str, int] = {name: len(value) for name, (dims, value) in coords.items()
+                             if dims == (name,)}
     indexes: dict[str, Any] = {}
     for name, (dims, value) in data_vars.items():
         value = np.asarray(value, dtype=float)
-        _record_sizes(sizes, dims, value.shape)
+        if value.shape != tuple(sizes.get(d, -1) for d in dims):  # never expected
+            raise TypeError(f"{name}: dimensions {dims} do not match shape {value.shape}")
         variables[name] = xr.Variable(dims, value, {"long_name": _long_name(name)},
                                       fastpath=value.ndim > 0)
     for name, (dims, value) in coords.items():
         value = np.asarray(value)
-        _record_sizes(sizes, dims, value.shape)
+        if value.shape != tuple(sizes.get(d, -1) for d in dims):  # never expected
+            raise TypeError(f"{name}: dimensions {dims} do not match shape {value.shape}")
         if dims == (name,):  # a dimension coordinate carries a pandas index
             index = _index(name, value.tobytes(), value.dtype.str)
             indexes[name] = index
@@ -299,14 +321,6 @@ def _index(name: str, data: bytes, dtype: str) -> Any:
 
     value = np.frombuffer(data, dtype=np.dtype(dtype)).copy()
     return PandasIndex(pd.Index(value, name=name), name, coord_dtype=value.dtype, fastpath=True)
-
-
-def _record_sizes(sizes: dict[str, int], dims: tuple[str, ...], shape: tuple[int, ...]) -> None:
-    if len(dims) != len(shape):  # never expected: the public constructor explains it
-        raise TypeError(f"dimensions {dims} do not match shape {shape}")
-    for dim, length in zip(dims, shape, strict=True):
-        if sizes.setdefault(dim, length) != length:
-            raise TypeError(f"dimension {dim} has lengths {sizes[dim]} and {length}")
 
 
 # ------------------------------------------------------------------------------------------
@@ -432,7 +446,7 @@ def solve_sample_size(
     draws = check_int(draws, "draws", owner, low=100, high=MAX_DRAWS)
     if seed is not None:
         seed = check_int(seed, "seed", owner, low=0)
-    calc = _Calculator(design, draws, seed)
+    calc = _calculator(design, draws, seed)
     ceiling = _ceiling_for(calc, quantity)
     label = quantity.replace("_", " ")
     endpoint = design.endpoint
@@ -597,7 +611,8 @@ def _require_finite(design: TrialDesign, values: dict[str, Any], n_total: np.nda
                     owner: str) -> None:
     """Raise :class:`AssuranceInputError` if any value is not finite (never expected once
     :func:`_check_scale` passed; a last guard so that NaN is never reported or compared)."""
-    if np.isfinite(np.concatenate([np.ravel(v) for v in values.values()])).all():
+    # probabilities lie in [0, 1], so their sum is finite exactly when every one is
+    if math.isfinite(np.add.reduce(np.concatenate([np.ravel(v) for v in values.values()]))):
         return
     for name, value in values.items():
         arr = np.atleast_1d(np.asarray(value, dtype=float))

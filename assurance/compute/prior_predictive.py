@@ -66,8 +66,8 @@ def _lower_orthant(x: np.ndarray, y: np.ndarray, r: np.ndarray) -> np.ndarray:
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
         ax = (y - r * x) / (x * root)
         ay = (x - r * y) / (y * root)
-        usual = np.isfinite(ax + ay).all() and np.abs(x).min() > _TINY_ARGUMENT \
-            and np.abs(y).min() > _TINY_ARGUMENT
+        usual = _all_finite(ax + ay) and _smallest(np.abs(x)) > _TINY_ARGUMENT \
+            and _smallest(np.abs(y)) > _TINY_ARGUMENT
     if usual:  # no zero, no overflow, no subnormal: the signs of x and y decide beta
         beta = 0.5 * ((x > 0) != (y > 0))
         val = 0.5 * (special.ndtr(x) + special.ndtr(y)) - special.owens_t(x, ax) \
@@ -132,7 +132,7 @@ def prob_estimate_above(
     if c.shape != s.shape:
         c, s = np.broadcast_arrays(c, s)
     bad = None
-    if not (np.isfinite(c).all() and np.isfinite(s).all() and (s > 0).all()):
+    if not (_all_finite(c) and 0.0 < _smallest(s) and _largest(s) < math.inf):
         bad = ~(np.isfinite(c) & np.isfinite(s) & (s > 0))
         c, s = np.where(bad, 0.0, c), np.where(bad, 1.0, s)  # harmless stand-ins
     parts = prior.parts()
@@ -152,6 +152,19 @@ def prob_estimate_above(
 
 #: Below this, ``sqrt(sd^2 + se^2)`` is formed as ``hypot(sd, se)`` (the squares underflow).
 _TINY_SCALE = 1e-150
+
+
+# whole-array checks by plain ufunc reductions (a NaN propagates through minimum/maximum)
+def _all_finite(x: np.ndarray) -> bool:
+    return bool(np.logical_and.reduce(np.isfinite(x), axis=None))
+
+
+def _smallest(x: np.ndarray) -> float:
+    return np.minimum.reduce(x, axis=None)
+
+
+def _largest(x: np.ndarray) -> float:
+    return np.maximum.reduce(x, axis=None)
 
 
 def _scaled_gap(a, b, scale):
@@ -174,7 +187,7 @@ def _normal(m, sd, c, s, cut):
     with np.errstate(over="ignore", under="ignore", invalid="ignore", divide="ignore"):
         tau = np.sqrt(sd * sd + s * s)
         h = (c - m) / tau
-        usual = np.isfinite(tau).all() and tau.min() > _TINY_SCALE and np.isfinite(h).all()
+        usual = _TINY_SCALE < _smallest(tau) and _largest(tau) < math.inf and _all_finite(h)
     if not usual:  # squares or differences that leave the range of doubles
         fix = ~(np.isfinite(tau) & (tau > _TINY_SCALE))
         tau = np.where(fix, np.hypot(sd, s), tau)
@@ -182,8 +195,19 @@ def _normal(m, sd, c, s, cut):
     if cut is None:
         return special.ndtr(-h)
     k = (cut - m) / sd
-    if math.isfinite(k):  # P(Z1 > h, Z2 > k) = Phi2(-h, -k; rho), Owen's T identity
-        return _lower_orthant(-h, np.full(h.shape, -k), sd / tau)
+    if math.isfinite(k) and abs(k) > _TINY_ARGUMENT:
+        # P(Z1 > h, Z2 > k) = Phi2(x, y; r) with x = -h, y = -k, r = sd / tau, by Owen's T
+        # identity; sqrt(1 - r^2) = se / tau exactly, without the cancellation as r -> 1
+        x, y, r = -h, -k, sd / tau
+        root = s / tau
+        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+            ax = (y - r * x) / (x * root)
+            ay = (x - r * y) / (y * root)
+            usual = _all_finite(ax + ay) and _smallest(np.abs(x)) > _TINY_ARGUMENT
+        if usual:
+            val = 0.5 * (special.ndtr(x) + special.ndtr(y)) - special.owens_t(x, ax) \
+                - special.owens_t(y, ay) - 0.5 * ((x > 0) != (y > 0))
+            return np.minimum(np.maximum(val, 0.0), 1.0)
     return upper_orthant_normal(h, _scaled_gap(cut, m, sd), sd / tau)
 
 

@@ -49,7 +49,7 @@ class TwoArmSizing:
             return n.copy(), np.zeros_like(n)
         r = self.allocation
         if r == 1.0:  # m + ceil(m) = 2 m <= n: the largest fit is n // 2 (the usual case)
-            control = np.clip(n // 2, 1, np.maximum(n - 1, 1))
+            control = np.minimum(np.maximum(n // 2, 1), np.maximum(n - 1, 1))
             return n - control, control
         m = np.floor(n / (1 + r)).astype(np.int64) + 2
         for _ in range(6):  # m + ceil(r m) is increasing in m: step down to the largest fit
