@@ -2,8 +2,10 @@
 
 :func:`evaluate` returns an :class:`xarray.Dataset` with dimension ``n`` (total patients) and
 an ``effect`` dimension for the power curve; :func:`solve_sample_size` finds the smallest n
-for a target power, assurance or conditional assurance, and says plainly when a target lies
-above the ceiling that no sample size can pass.
+for a target power, assurance or conditional assurance. Above the ceiling (the limit as n
+grows) it searches every size up to the largest allowed for the highest value, and says
+plainly whether a target is reached only through false positives or not at all.
+Every returned figure is finite, or the call names the parameter that prevents it.
 """
 
 from __future__ import annotations
@@ -241,7 +243,7 @@ _LABELS = {
     "prob_success_and_relevant": "P(success and the effect is clinically relevant)",
     "conditional_assurance": "P(success | effect is clinically relevant)",
     "prob_miss_relevant": "P(no success although the effect is clinically relevant)",
-    "ceiling": "highest assurance any sample size can reach",
+    "ceiling": "limit of assurance as n grows (false positives can lift a finite n above it)",
     "prob_benefit": "prior probability that the treatment is better",
     "prob_relevant": "prior probability that the effect is clinically relevant",
 }
