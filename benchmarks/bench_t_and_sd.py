@@ -3,7 +3,7 @@
 Each row: our time, a peer or a bare limit measured in the same run, their ratio, and the
 target with "met" / "not met". Run alone (``python benchmarks/bench_t_and_sd.py``) or through
 ``benchmarks/run.py``. Times are the best mean over several batches (warm: node caches
-filled); "cold" clears the node caches before every call.
+filled); "cold" clears the node caches and the cached critical values before every call.
 
 Rows
 ----
@@ -41,10 +41,13 @@ def best_of(func, repeat: int = 7, number: int = 20) -> float:
 
 def _clear_caches() -> None:
     from assurance.compute import sd_quadrature as sq
+    from assurance.endpoints import continuous
 
     sq._hermite_flat.cache_clear()
+    sq._HERMITE_CACHE.clear()
     sq._bulk_log_ratio.cache_clear()
     sq._nodes_for.cache_clear()
+    continuous._critical_t_cached.cache_clear()
 
 
 def _row(label: str, ours: float, peer_label: str, peer: float, target: str, met: bool

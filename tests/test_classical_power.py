@@ -26,11 +26,11 @@ from assurance import (
     solve_sample_size,
 )
 
-# t power is the non-central t distribution function (scipy's nctdtr at reflected arguments),
-# the same series statsmodels calls through scipy.stats.nct, so both sides agree to rounding;
-# with a minimum observed effect the package integrates over the sample SD (feature-aware
-# quadrature, observed worst 4e-11 against scipy.stats.nct over df 1..1e15, alpha down to
-# 1e-8) and the reference is scipy.integrate.quad at 1e-12. 1e-9 is the target.
+# t power: a short Gauss-Hermite rule over the sample SD where the integrand is smooth on the
+# normal-score scale, scipy's non-central t distribution function elsewhere; with a minimum
+# observed effect, the feature-aware quadrature over the sample SD. Observed worst 4e-11
+# against scipy.stats.nct (which statsmodels calls) over df 1..1e15, alpha down to 1e-8; the
+# minimum-estimate reference is scipy.integrate.quad at 1e-12. 1e-9 is the target.
 T_TOL = 1e-9
 # The z path is a closed form on both sides: agreement to rounding.
 Z_TOL = 1e-12

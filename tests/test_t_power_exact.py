@@ -13,11 +13,12 @@ References, all outside the package:
 * assurance under a normal prior: ``scipy.integrate.quad`` of ``scipy.stats.nct.sf`` power
   over the prior density; joint probabilities the same from the cut upwards.
 
-Tolerances: 1e-9 is the issue's target. The package takes power and normal-prior assurance
-from scipy's non-central t distribution function, so against ``scipy.stats.nct`` the
-difference is rounding; its own quadrature over the sample SD (joint probabilities, minimum
-observed effect, fallback where scipy's series does not converge) was observed within 4e-11
-of ``scipy.stats.nct`` over df 1 to 1e15 and alpha 0.45 to 1e-8. The quad references are run
+Tolerances: 1e-9 is the issue's target. The package computes power and normal-prior
+assurance by a short Gauss-Hermite rule over the sample SD where the integrand is smooth on
+the normal-score scale and by scipy's non-central t distribution function elsewhere; its
+quadrature over the sample SD (also used for joint probabilities, a minimum observed effect,
+and where scipy's series does not converge) was observed within 4e-11 of
+``scipy.stats.nct`` over df 1 to 1e15 and alpha 0.45 to 1e-8. The quad references are run
 at ``epsabs=1e-14``.
 """
 

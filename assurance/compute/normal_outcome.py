@@ -30,7 +30,7 @@ from scipy import integrate, special
 from ..priors.families import Normal, PointMass, Prior, ScaledInvChiSquare
 from ..rules.significance import Significance
 from .prior_predictive import prob_estimate_above, upper_orthant_normal
-from .sd_quadrature import ratio_rule, sd_ratio_nodes
+from .sd_quadrature import hermite_part, ratio_rule, sd_ratio_nodes
 
 __all__ = ["Cut", "SuccessProbabilities", "DrawAverages", "exact_success", "monte_carlo_success",
            "EffectDraws", "nct_sf", "sd_prior_success", "sd_quadrature_covers"]
@@ -72,11 +72,15 @@ def nct_sf(t: Any, df: Any, nc: Any) -> np.ndarray:
 
     Notes
     -----
-    ``T = (Z + nc) / sqrt(X / df)``, so ``P(T > t) = P(-T < -t)`` and ``-T`` is non-central t
-    with ``-nc``: the lower tail of scipy's ``nctdtr`` at ``(df, -nc, -t)`` keeps full
-    precision in the upper tail. Where that series does not converge (very large ``nc`` or
-    far tails; it returns NaN) the value comes from the quadrature over
-    ``r = sqrt(X / df)`` with a feature at ``r = nc / t`` (:func:`.sd_quadrature.ratio_rule`).
+    ``T = (Z + nc) / r`` with ``r = sqrt(X / df)``, ``X ~ chi2_df``, so
+    ``P(T > t) = E_r[Phi(nc - t r)]``. Where that integrand changes slowly on the normal score
+    of ``r`` (many degrees of freedom, a step of width ``1/t`` at ``r = nc / t`` wide on that
+    scale) a short Gauss-Hermite rule gives it to about 1e-12
+    (:func:`.sd_quadrature.hermite_part`, 2 to 40 nodes). Elsewhere: ``P(T > t) = P(-T < -t)``
+    and ``-T`` is non-central t with ``-nc``, so the lower tail of scipy's ``nctdtr`` at
+    ``(df, -nc, -t)`` keeps full precision in the upper tail; where that series does not
+    converge (it returns NaN: very large ``nc``, far tails) the composite rule of
+    :func:`.sd_quadrature.ratio_rule` integrates it.
 
     Examples
     --------
@@ -85,23 +89,36 @@ def nct_sf(t: Any, df: Any, nc: Any) -> np.ndarray:
     0.751188
     """
     t, df, nc = np.broadcast_arrays(*(np.asarray(v, dtype=float) for v in (t, df, nc)))
-    with np.errstate(all="ignore"):
-        p = special.nctdtr(df, -nc, -t)
-    bad = ~np.isfinite(p)
-    if bad.any():
-        p = np.array(p, dtype=float)
-        p[bad] = _nct_sf_by_quadrature(t[bad], df[bad], nc[bad])
-    return np.clip(p, 0.0, 1.0)
+    shape = t.shape
+    t, df, nc = t.ravel(), df.ravel(), nc.ravel()
+    centre, width = _step(t, nc)
+    col, ratio, weight, covered = hermite_part(df, centre, width)
+    p = np.bincount(col, weight * special.ndtr(nc[col] - t[col] * ratio),
+                    minlength=t.size).astype(float)
+    rest = np.flatnonzero(~covered)
+    if rest.size:
+        with np.errstate(all="ignore"):
+            p[rest] = special.nctdtr(df[rest], -nc[rest], -t[rest])
+        bad = rest[~np.isfinite(p[rest])]
+        if bad.size:
+            p[bad] = _nct_sf_by_quadrature(t[bad], df[bad], nc[bad])
+    return np.clip(p, 0.0, 1.0).reshape(shape)
 
 
-def _nct_sf_by_quadrature(t: np.ndarray, df: np.ndarray, nc: np.ndarray) -> np.ndarray:
-    """``E_r[Phi(nc - t r)]`` with the feature-aware rule (a step of width ``1/t`` at
-    ``nc / t``); ``t <= 0`` integrates a smooth function with the bulk panels alone."""
+def _step(t: np.ndarray, nc: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Feature of ``Phi(nc - t r)`` on the ratio scale: centre ``nc / t``, width ``1 / t``
+    (none for ``t <= 0``, where the integrand is smooth)."""
     positive = t > 0
     with np.errstate(divide="ignore", invalid="ignore"):
         centre = np.where(positive, nc / t, np.nan)
         width = np.where(positive, 1.0 / t, np.nan)
-    col, ratio, weight = ratio_rule(df, centre[None, :], width[None, :])
+    return centre[None, :], width[None, :]
+
+
+def _nct_sf_by_quadrature(t: np.ndarray, df: np.ndarray, nc: np.ndarray) -> np.ndarray:
+    """``E_r[Phi(nc - t r)]`` with the full rule (composite where needed)."""
+    centre, width = _step(t, nc)
+    col, ratio, weight = ratio_rule(df, centre, width)
     return np.bincount(col, weight * special.ndtr(nc[col] - t[col] * ratio), minlength=t.size)
 
 
@@ -208,7 +225,10 @@ def _t_test(prior: Prior, rule: Significance, se: np.ndarray, df: np.ndarray,
     for w, part in prior.parts():
         if isinstance(part, PointMass):
             delta = part.value
-            if not kinked:
+            if not kinked and delta == low:
+                # at the null value T is central t and t its upper alpha point: the size
+                p = np.full(se.shape, rule.one_sided_alpha)
+            elif not kinked:
                 p = nct_sf(crit, df, (delta - low) / se)
             else:
                 col, ratio, weight = ratio_rule(

@@ -14,7 +14,7 @@ joint probability, or the minimum observed effect), each with a known width. Two
 * **Gauss-Hermite** on the normal score of the chi-square quantile (nodes ``z_i``, ratio
   ``q(z_i)`` exact through the inverse incomplete gamma function). Accurate when every
   feature is wide on the score scale; the number of nodes is picked from the narrowest
-  feature (4 to 40 nodes), and the nodes of each df are cached.
+  feature (2 to 40 nodes), and the nodes of each df are cached.
 * **Composite Gauss-Legendre** on ``u = log q`` with the exact density of ``u``: panels
   between the scores -9, -8, ..., 9 of the distribution, and more panels placed around each
   feature (at 0, 0.7, 2, 5 and 12 widths either side). Used for small df, narrow features
@@ -33,12 +33,13 @@ from functools import lru_cache
 import numpy as np
 from scipy import special, stats
 
-__all__ = ["sd_ratio_nodes", "ratio_rule", "ratio_log_density"]
+__all__ = ["sd_ratio_nodes", "ratio_rule", "hermite_part", "ratio_log_density"]
 
 _HERMITE_NODES = 32
 _LEGENDRE_NODES = 400
 
 
+@lru_cache(maxsize=64)
 def _hermite_rule(k: int = _HERMITE_NODES) -> tuple[np.ndarray, np.ndarray]:
     x, w = special.roots_hermitenorm(k)
     return x, w / np.sqrt(2 * np.pi)
@@ -67,8 +68,9 @@ _BROAD = 2.0
 #: (narrowest feature on the score scale, fewest degrees of freedom, Gauss-Hermite nodes):
 #: the first row a column satisfies gives its rule; none: the composite rule. A short rule
 #: needs the score map nearly straight (many df) as well as wide features.
-_TIERS = ((20.0, 100.0, 4), (8.0, 60.0, 6), (5.0, 30.0, 8), (3.0, 20.0, 12), (2.0, 15.0, 16),
-          (1.5, 10.0, 20), (1.0, 20.0, 24), (0.8, 30.0, 32), (0.65, 40.0, 40))
+_TIERS = ((1000.0, 10000.0, 2), (100.0, 1000.0, 3), (20.0, 100.0, 4), (8.0, 60.0, 6),
+          (5.0, 30.0, 8), (3.0, 20.0, 12), (2.0, 15.0, 16), (1.5, 10.0, 20), (1.0, 20.0, 24),
+          (0.8, 30.0, 32), (0.65, 40.0, 40))
 _TIER_WIDTH, _TIER_DF = (np.array([row[i] for row in _TIERS])[:, None] for i in (0, 1))
 _TIER_NODES = np.array([row[2] for row in _TIERS], dtype=np.int64)
 
@@ -120,6 +122,28 @@ def ratio_log_density(u: np.ndarray, df: np.ndarray) -> np.ndarray:
     h = np.asarray(df, dtype=float) / 2
     u = np.asarray(u, dtype=float)
     return math.log(2.0) + _log_norm_constant(h) + h * (2 * u - np.expm1(2 * u))
+
+
+#: Gauss-Hermite ratios by (nodes, df): shared by every call whatever its tiers
+_HERMITE_CACHE: dict[tuple[int, float], np.ndarray] = {}
+_HERMITE_CACHE_SIZE = 50_000
+
+
+def _hermite_ratios(df: np.ndarray, k: int) -> np.ndarray:
+    """Ratios ``q(z_i)`` at the ``k`` Gauss-Hermite scores for each df, shape ``(k, m)``."""
+    keys = [(k, float(d)) for d in df]
+    missing = [key[1] for key in keys if key not in _HERMITE_CACHE]
+    if missing:
+        if len(_HERMITE_CACHE) + len(missing) > _HERMITE_CACHE_SIZE:
+            _HERMITE_CACHE.clear()
+        new = np.array(missing)
+        x, _ = _hermite_rule(k)
+        ratio = np.sqrt(_chi_from_score(x[:, None], new[None, :] / 2) / new[None, :])
+        for j, d in enumerate(missing):
+            column = ratio[:, j].copy()
+            column.setflags(write=False)
+            _HERMITE_CACHE[(k, d)] = column
+    return np.stack([_HERMITE_CACHE[key] for key in keys], axis=1)
 
 
 @lru_cache(maxsize=64)
@@ -233,10 +257,7 @@ def ratio_rule(df: np.ndarray, centres: np.ndarray | None = None,
     lo, hi = _bulk_ends(df)
     above = has_floor & (floor > 1.1 * hi)
     has_floor = has_floor & (floor >= lo) & ~above
-    narrowest = _narrowest_score_width(df, centres, widths)
-    narrowest = np.where(above, np.inf, narrowest)
-    fits = (narrowest >= _TIER_WIDTH) & (df >= _TIER_DF)  # (tiers, columns)
-    tier = np.where(fits.any(axis=0) & ~has_floor, _TIER_NODES[fits.argmax(axis=0)], 0)
+    tier = np.where(has_floor, 0, _tiers(df, centres, widths))
 
     parts = []
     if above.any():
@@ -259,6 +280,43 @@ def ratio_rule(df: np.ndarray, centres: np.ndarray | None = None,
     return col, ratio, weight
 
 
+def _tiers(df: np.ndarray, centres: np.ndarray, widths: np.ndarray) -> np.ndarray:
+    """Gauss-Hermite nodes per column (0: the composite rule)."""
+    narrowest = _narrowest_score_width(df, centres, widths)
+    fits = (narrowest >= _TIER_WIDTH) & (df >= _TIER_DF)  # (tiers, columns)
+    return np.where(fits.any(axis=0), _TIER_NODES[fits.argmax(axis=0)], 0)
+
+
+def hermite_part(df: np.ndarray, centres: np.ndarray, widths: np.ndarray
+                 ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """The Gauss-Hermite part of :func:`ratio_rule` alone: nodes for the columns whose
+    features are wide enough, and which columns those are (the others are left to the
+    caller, who may have a closed form for them).
+
+    Returns
+    -------
+    column, ratio, weight, covered
+        Flat nodes as in :func:`ratio_rule`, and a boolean mask of the columns they cover.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> col, r, w, covered = hermite_part(np.array([2.0, 400.0]), np.array([[0.5, 0.5]]),
+    ...                                   np.array([[0.5, 0.5]]))
+    >>> covered.tolist(), round(float(np.bincount(col, w, minlength=2)[1]), 12)
+    ([False, True], 1.0)
+    """
+    df = np.atleast_1d(np.asarray(df, dtype=float))
+    centres = np.asarray(centres, dtype=float).reshape(-1, df.size)
+    widths = np.broadcast_to(np.asarray(widths, dtype=float), centres.shape)
+    tier = _tiers(df, centres, widths)
+    covered = tier > 0
+    if not covered.any():
+        empty = np.empty(0)
+        return empty.astype(np.int64), empty, empty, covered
+    return (*_hermite_flat(df.tobytes(), tier.tobytes()), covered)
+
+
 @lru_cache(maxsize=128)
 def _hermite_flat(df_bytes: bytes, tier_bytes: bytes
                   ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
@@ -270,9 +328,8 @@ def _hermite_flat(df_bytes: bytes, tier_bytes: bytes
     for k in np.unique(tier[tier > 0]):
         cols = np.flatnonzero(tier == k)
         uniq, inverse = np.unique(df[cols], return_inverse=True)
-        x, w = _hermite_rule(int(k))
-        chi = _chi_from_score(x[:, None], uniq[None, :] / 2)
-        ratio = np.sqrt(chi / uniq[None, :])[:, inverse]
+        _, w = _hermite_rule(int(k))
+        ratio = _hermite_ratios(uniq, int(k))[:, inverse]
         cols_out.append(np.tile(cols, int(k)))
         ratio_out.append(ratio.ravel())
         weight_out.append(np.repeat(w, cols.size))

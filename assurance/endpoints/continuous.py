@@ -9,6 +9,7 @@ scale where larger is better.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import lru_cache
 from typing import Any, Literal
 
 import numpy as np
@@ -137,13 +138,13 @@ class _ContinuousCalculator(SuccessCalculator):
         arm sizes asked (a grid is asked once for assurance and once per power effect)."""
         n_t = np.asarray(n_t)
         n_c = np.asarray(n_c)
-        key = n_t.tobytes() + b"|" + n_c.tobytes() + str((n_t.dtype, n_c.dtype)).encode()
+        key = n_t.tobytes() + b"|" + n_c.tobytes() + (n_t.dtype.char + n_c.dtype.char).encode()
         if self._last is not None and self._last[0] == key:
             return self._last[1]
         ep = self.endpoint
         df = ep.degrees_of_freedom(n_t, n_c)
         geo = {"se_factor": ep.se_factor(n_t, n_c), "df": df, "analysis": ep.analysis,
-               "critical": self.rule.critical_t(df) if ep.analysis == "t" else None}
+               "critical": _critical_t(self.rule, df) if ep.analysis == "t" else None}
         self._last = (key, geo)
         return geo
 
@@ -180,3 +181,19 @@ class _ContinuousCalculator(SuccessCalculator):
         if self.quadrature:
             base += "; deterministic quadrature over the SD prior"
         return base
+
+
+def _critical_t(rule: Any, df: np.ndarray) -> Any:
+    """The rule's t critical values, kept for the last few (significance test, df grid)
+    pairs: they depend on nothing else, and a plan asks for the same grid many times."""
+    if not isinstance(rule, Significance):
+        return rule.critical_t(df)
+    df = np.ascontiguousarray(df, dtype=float)
+    return _critical_t_cached(rule, df.tobytes())
+
+
+@lru_cache(maxsize=32)
+def _critical_t_cached(rule: Significance, df_bytes: bytes) -> np.ndarray:
+    crit = np.asarray(rule.critical_t(np.frombuffer(df_bytes, dtype=float)), dtype=float)
+    crit.setflags(write=False)
+    return crit
