@@ -247,3 +247,35 @@ def test_power_with_minimum_estimate_small_df_and_alpha(df, alpha, margin, min_e
                             df=np.array([float(df)]), analysis="t")
         ref = _power_by_quad(df, (delta + margin) / se, t, floor_z=(min_est - delta) / se)
         assert float(res.success[0]) == pytest.approx(ref, abs=TOL)
+
+
+# ------------------------------------------------------------------------------------------
+# other rules keep the general quadrature over the sample SD
+# ------------------------------------------------------------------------------------------
+def test_nested_combined_rule_with_t_analysis_matches_quad():
+    # Regression: critical values of nested combined rules (a tuple inside a tuple) were not
+    # laid out over the quadrature nodes. Reference: quad over r of Phi((m - c(r)) / tau),
+    # c(r) the rule's own threshold at se r (its definition), r^2 ~ chi2_df / df.
+    from assurance import AllOf, AnyOf, MinimumEstimate, PosteriorProbability
+
+    rule = AnyOf((AllOf((PosteriorProbability(0.95), MinimumEstimate(1.0))),
+                  PosteriorProbability(0.99, beyond=0.5)))
+    m, sd, sigma = 2.0, 1.0, 4.0
+    design = TrialDesign(ContinuousEndpoint(sigma), Normal(m, sd), rule=rule)
+    ds = evaluate(design, [8, 30, 120])
+    crit_rule = design.benefit_rule
+    for i in range(ds.sizes["n"]):
+        n_t, n_c = int(ds.n_treatment[i]), int(ds.n_control[i])
+        se, df = sigma * math.sqrt(1 / n_t + 1 / n_c), n_t + n_c - 2
+        crit = crit_rule.critical_t(np.array([float(df)]))
+        tau = math.hypot(sd, se)
+
+        def integrand(r, se=se, crit=crit, df=df, tau=tau):
+            c = float(np.asarray(crit_rule.threshold(np.array([se * r]), crit)).ravel()[0])
+            density = 2 * df * r * stats.chi2.pdf(df * r * r, df)
+            return stats.norm.sf((c - m) / tau) * density
+
+        ref = integrate.quad(integrand, 1e-9, 6.0, epsabs=1e-12, limit=400)[0]
+        # the general rule (32 Gauss-Hermite nodes on the score; 400 Gauss-Legendre nodes on
+        # the probability scale below 5 df) is good to about 1e-7 across kinks
+        assert float(ds.assurance[i]) == pytest.approx(ref, abs=1e-6)

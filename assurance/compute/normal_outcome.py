@@ -188,9 +188,7 @@ def exact_success(
                        list(cuts))
     kink = rule.kink_ratio(se, crit)
     ratio, weight = sd_ratio_nodes(df, kink=kink)
-    crit_nodes = tuple(np.asarray(c)[None, :] for c in crit) if isinstance(crit, tuple) \
-        else np.asarray(crit)[None, :]
-    c = rule.threshold(se[None, :] * ratio, crit_nodes)
+    c = rule.threshold(se[None, :] * ratio, _as_row(crit))
 
     def prob_nodes(cut: Cut | None) -> np.ndarray:
         inner = prob_estimate_above(prior, c, se[None, :], effect_above=None if cut is None
@@ -198,6 +196,13 @@ def exact_success(
         return np.clip(np.sum(weight * inner, axis=0), 0.0, 1.0)
 
     return SuccessProbabilities(success=prob_nodes(None), joint=[prob_nodes(cut) for cut in cuts])
+
+
+def _as_row(crit: Any) -> Any:
+    """Critical values per size as a row over the nodes; combined rules nest tuples."""
+    if isinstance(crit, tuple):
+        return tuple(_as_row(c) for c in crit)
+    return np.asarray(crit)[None, :]
 
 
 def _in_cut(value: float, cut: Cut) -> bool:
