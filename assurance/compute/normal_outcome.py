@@ -246,7 +246,7 @@ def _t_test(prior: Prior, rule: Significance, se: np.ndarray, df: np.ndarray,
                     joint[j] += w * p
         elif isinstance(part, Normal):
             m, sd = part.mu, part.sigma
-            tau = np.sqrt(sd * sd + se * se)
+            tau = np.hypot(sd, se)
             if not kinked:
                 success += w * nct_sf(crit * se / tau, df, (m - low) / tau)
             if not (kinked or cuts):
@@ -257,9 +257,9 @@ def _t_test(prior: Prior, rule: Significance, se: np.ndarray, df: np.ndarray,
             centres = [(m - low) / slope]
             widths = [tau / slope]
             for cut in cuts:
-                bend = m + (cut.value - m) * tau * tau / (sd * sd)
+                bend = m + (cut.value - m) * (tau / sd) ** 2
                 centres.append((bend - low) / slope)
-                widths.append(se * tau / (sd * slope))
+                widths.append((se / slope) * (tau / sd))
             col, ratio, weight = ratio_rule(df, np.array(centres), np.array(widths),
                                             floor=floor)
             h = (threshold(col, ratio) - m) / tau[col]
@@ -566,14 +566,14 @@ def _sd_features(part: Prior, rule: Significance, sigma_prior: ScaledInvChiSquar
         add(part.value, lambda s: s * k)  # width se: Phi((delta - c) / se)
     else:
         m, sd = part.mu, part.sigma
-        add(m, lambda s: np.sqrt(sd * sd + (s * k) ** 2))
+        add(m, lambda s: np.hypot(sd, s * k))
         # where the standard error overtakes the prior SD (se = sd) the success probability
         # turns from following the prior to following the noise: a broad change
         q_cross = s0 * k / sd
         centres.append(q_cross)
         widths.append(q_cross)
         for cut in cuts:
-            add(cut.value, lambda s: s * k * np.sqrt(sd * sd + (s * k) ** 2) / sd)
+            add(cut.value, lambda s: s * k * (np.hypot(sd, s * k) / sd))
     if rule.min_estimate is not None:
         # a kink (z) or a kink smoothed over the sample SD ratio (t)
         spread = 1.0 / np.sqrt(2.0 * df) if analysis == "t" else 0.0
