@@ -306,7 +306,9 @@ def _dataset_direct(data_vars: dict[str, tuple[tuple[str, ...], Any]],
         if value.shape != tuple(sizes.get(d, -1) for d in dims):  # never expected
             raise TypeError(f"{name}: dimensions {dims} do not match shape {value.shape}")
         if dims == (name,):  # a dimension coordinate carries a pandas index
-            index = _index(name, value.tobytes(), value.dtype.str)
+            # small grids (the usual case) share a cached index; large ones are not kept
+            index = (_index(name, value.tobytes(), value.dtype.str) if value.size <= 4096
+                     else _index.__wrapped__(name, value.tobytes(), value.dtype.str))
             indexes[name] = index
             variables.update(index.create_variables())
         else:
