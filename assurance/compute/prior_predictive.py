@@ -18,6 +18,7 @@ Gauss-Legendre panel rule split every 1.5 se and at the prior's quantiles reache
 from __future__ import annotations
 
 import math
+import threading
 import weakref
 from collections import OrderedDict
 
@@ -238,6 +239,7 @@ _BLOCK = 2_000_000
 _EDGES: weakref.WeakKeyDictionary = weakref.WeakKeyDictionary()
 _NODE_CACHE: OrderedDict = OrderedDict()
 _NODE_CACHE_SIZE = 2
+_NODE_LOCK = threading.Lock()
 
 
 def _prior_edges(part: Prior) -> np.ndarray:
@@ -392,15 +394,19 @@ def _blocks(rows: int, width: int):
 
 
 def _nodes_for(part: Prior, c: np.ndarray, s: np.ndarray) -> _Nodes:
+    """The nodes for these thresholds, kept for the next calls (with a cut) on the same
+    thresholds; the entry holds the part itself, so its id cannot be reused meanwhile."""
     key = (id(part), c.tobytes(), s.tobytes())
-    hit = _NODE_CACHE.get(key)
-    if hit is not None and hit[0] is part:
-        _NODE_CACHE.move_to_end(key)
-        return hit[1]
+    with _NODE_LOCK:
+        hit = _NODE_CACHE.get(key)
+        if hit is not None and hit[0] is part:
+            _NODE_CACHE.move_to_end(key)
+            return hit[1]
     nodes = _Nodes(part, c, s)
-    _NODE_CACHE[key] = (part, nodes)
-    while len(_NODE_CACHE) > _NODE_CACHE_SIZE:
-        _NODE_CACHE.popitem(last=False)
+    with _NODE_LOCK:
+        _NODE_CACHE[key] = (part, nodes)
+        while len(_NODE_CACHE) > _NODE_CACHE_SIZE:
+            _NODE_CACHE.popitem(last=False)
     return nodes
 
 
