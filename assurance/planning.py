@@ -367,8 +367,9 @@ def _ceiling_for(calc: _Calculator, quantity: str) -> float:
     return min(limit / calc.prob_relevant, 1.0)
 
 
-#: Control-arm sizes tried (geometrically spaced) when looking for the highest value.
-SCAN_POINTS = 160
+#: Control-arm sizes tried (geometrically spaced) when looking for the highest value: about
+#: ten per tenfold in n over a million patients; false-positive peaks span far more.
+SCAN_POINTS = 64
 
 
 def solve_sample_size(
@@ -392,11 +393,14 @@ def solve_sample_size(
     A target at or above the ceiling is reachable only where the quantity rises above its
     limit at a finite n. That happens through false positives: successes when the true
     effect is at or below the lowest effect at which the rule can be passed (a point mass
-    just below the null, say), which fade as n grows. For such a target the solver
-    evaluates sizes from the smallest to ``max_total`` (160 sizes spaced evenly on a log
-    scale, then the peak refined to the patient), reports the highest value and where it
-    lies (``highest``, ``highest_n_total``), and returns the smallest size reaching the
-    target if the highest value does, saying that the target lies above the ceiling.
+    just below the null, say), which fade as n grows. With a z or t test on a continuous
+    outcome they add at most the test's level (1/2 at a minimum observed effect) times the
+    prior probability of such effects, and a target above that bound is refused at once.
+    Otherwise the solver evaluates sizes from the smallest to
+    ``max_total`` (64 sizes spaced evenly on a log scale, then an interior peak refined to
+    the patient), reports the highest value and where it lies
+    (``highest``, ``highest_n_total``), and returns the smallest size reaching the target
+    if the highest value does, saying that the target lies above the ceiling.
 
     Parameters
     ----------
@@ -512,17 +516,25 @@ def solve_sample_size(
         return answer(True, bisect(low, high), f"Smallest size reaching {label} {target:g}.")
 
     # At or above the limit: only a finite n where false positives still count can reach it.
-    grid = np.unique(np.geomspace(low, limit, SCAN_POINTS).round().astype(np.int64))
-    grid = grid[(grid >= low) & (grid <= limit)]
-    values = values_at(grid)
-    best = int(np.argmax(values))
-    peak = _refine_peak(value_at, grid, values, best)
     edge = calc.rule.lowest_passable_effect()
     no_better = (f"no better than {float(endpoint.from_benefit(edge)) + 0.0:g}"
                  if math.isfinite(edge) else "at or below the lowest passable effect")
     false_positives = (f"false positives (successes when the true effect is {no_better}, "
                        "the least effect the rule can pass), which fade as n grows")
     ceiling_text = f"the ceiling {ceiling:.3f} (the limit as n grows)"
+    bound = _false_positive_bound(calc, quantity)
+    if bound is not None and target > bound:
+        return answer(False, None,
+                      f"Target {label} {target:g} is not reachable: no size can give more than "
+                      f"{bound:.4f}, {ceiling_text} plus the most {false_positives} can add "
+                      "(the test's level, or 1/2 at a minimum observed effect, times the "
+                      "prior probability of such effects). Lower the target or revisit the "
+                      "design.")
+    grid = np.unique(np.geomspace(low, limit, SCAN_POINTS).round().astype(np.int64))
+    grid = grid[(grid >= low) & (grid <= limit)]
+    values = values_at(grid)
+    best = int(np.argmax(values))
+    peak = _refine_peak(value_at, grid, values, best)
     peak_total = int(totals(np.array([peak[1]]))[0])
     if peak[0] < target:
         if peak[0] > ceiling:
@@ -547,10 +559,44 @@ def solve_sample_size(
                   f"{peak[0]:.4f}, at {peak_total} patients.")
 
 
+def _false_positive_bound(calc: _Calculator, quantity: str) -> float | None:
+    """Most the quantity can reach at any n, when a z or t test on a continuous outcome
+    decides: at a true effect no better than the lowest passable effect ``L`` the success
+    probability is at most the one-sided level (``L`` the null) or 1/2 (``L`` a minimum
+    observed effect above it) at every n (common practice), and at most 1 elsewhere. None
+    for other rules and endpoints (an exact binary test's size can exceed its level; a
+    hazard or rate ratio's standard error moves with the true effect)."""
+    from .endpoints.continuous import ContinuousEndpoint
+    from .rules.significance import Significance
+
+    rule, design = calc.rule, calc.design
+    if not isinstance(rule, Significance) or not isinstance(design.endpoint,
+                                                            ContinuousEndpoint):
+        return None
+    edge = rule.lowest_passable_effect()
+    if not math.isfinite(edge):
+        return None
+    share = rule.one_sided_alpha if edge == rule.null_value else 0.5
+    if quantity == "power":
+        effect = float(design.endpoint.to_benefit(design.assumed_effect))
+        return 1.0 if effect > edge else share
+    prior = calc.prior
+    above = prior.prob_above(edge)
+    if quantity == "assurance":
+        return min(above + share * (1.0 - above), 1.0)
+    relevant = prior.prob_above(calc.relevant, inclusive=True)
+    if calc.relevant > edge:
+        return 1.0
+    return min((above + share * (relevant - above)) / calc.prob_relevant, 1.0)
+
+
 def _refine_peak(value_at: Callable[[int], float], grid: np.ndarray, values: np.ndarray,
                  best: int) -> tuple[float, int]:
     """Highest value near grid point ``best``: ternary search on whole sizes between its
-    neighbours (the quantity is assumed to have one peak there)."""
+    neighbours (the quantity is assumed to have one peak there). At the largest size the
+    quantity is still rising towards its limit: that size is the highest."""
+    if best == grid.size - 1:
+        return float(values[best]), int(grid[best])
     lo = int(grid[max(best - 1, 0)])
     hi = int(grid[min(best + 1, grid.size - 1)])
     top = (float(values[best]), int(grid[best]))

@@ -374,9 +374,33 @@ def test_nan_from_an_engine_never_counts_as_reaching_the_target(monkeypatch):
         return values
 
     monkeypatch.setattr(planning._Calculator, "quantity", broken)
-    for target in (0.6, 0.99):  # below and above the ceiling (two search paths)
+    ceiling = design.ceiling()
+    # below the ceiling, and between the ceiling and the false-positive bound (two searches)
+    for target in (0.6, ceiling + 0.01 * (1 - ceiling)):
         with pytest.raises(AssuranceInputError, match=r"cannot be computed.*at n = "):
             solve_sample_size(design, target)
+
+
+def test_target_above_the_false_positive_bound_is_refused_without_searching(monkeypatch):
+    # With a z or t test, P(success | delta <= 0) <= alpha at every n (common practice), so
+    # no size gives more than P(delta > 0) + alpha P(delta <= 0).
+    from assurance import planning
+
+    design = TrialDesign(ContinuousEndpoint(1.0, analysis="z"), POINT_BELOW_NULL)
+    above = 0.7 * stats.norm.sf(0.0, 2.0, 0.5)
+    bound = above + 0.025 * (1 - above)
+    values = _below_null_closed_form(np.arange(1, 200_001))
+    assert values.max() <= bound  # the fact the shortcut relies on, checked here
+
+    def never(*args, **kwargs):
+        raise AssertionError("no size should be evaluated")
+
+    monkeypatch.setattr(planning._Calculator, "quantity", never)
+    ans = solve_sample_size(design, bound + 1e-6)
+    assert not ans.reached and ans.highest is None
+    assert f"{bound:.4f}" in ans.message and f"{above:.3f}" in ans.message
+    with pytest.raises(AssertionError, match="no size"):  # below the bound it searches
+        solve_sample_size(design, bound - 1e-6)
 
 
 @pytest.mark.parametrize("draws", [99, MAX_DRAWS + 1])
