@@ -25,7 +25,7 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
-from ._validation import check_int, check_real, check_real_array
+from ._validation import MAX_DRAWS, check_int, check_real, check_real_array
 from .design import TrialDesign
 from .errors import AssuranceInputError
 from .planning import (
@@ -155,7 +155,7 @@ def check_plan_inputs(
         raise AssuranceInputError(
             f"The 'precision' parameter of {owner} must be a PrecisionPlan or None. "
             f"Got {precision!r} instead.")
-    draws = check_int(draws, "draws", owner, low=100)
+    draws = check_int(draws, "draws", owner, low=100, high=MAX_DRAWS)
     seed = check_int(seed, "seed", owner, low=0)
     if progress is not None and not callable(progress):
         raise AssuranceInputError(

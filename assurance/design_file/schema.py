@@ -33,7 +33,7 @@ from pydantic import (
     model_validator,
 )
 
-from .._validation import MAX_TOTAL
+from .._validation import MAX_DRAWS, MAX_TOTAL
 
 __all__ = [
     "DesignFileModel",
@@ -713,7 +713,8 @@ class PrecisionTable(Table):
 class MonteCarloTable(Table):
     """Monte Carlo settings (used where no exact route exists)."""
 
-    draws: Annotated[int, Field(ge=100)] = key(20_000, "Number of Monte Carlo draws.")
+    draws: Annotated[int, Field(ge=100, le=MAX_DRAWS)] = key(20_000, "Number of Monte Carlo "
+                                                             "draws.")
     seed: Annotated[int, Field(ge=0)] = key(20260101, "Seed: the same seed gives the same "
                                             "numbers.")
 

@@ -189,8 +189,8 @@ def _summary_sentences(design: TrialDesign, ds: Any,
         why = (f"the prior probability {_p(region)} that the true effect lies where the "
                f"success rule can be passed, plus false positives when it is exactly "
                f"{edge:g}.")
-    out.append(f"However many patients are enrolled, assurance cannot pass {_p(ceiling)}: "
-               + why)
+    out.append(f"As the trial grows, assurance approaches {_p(ceiling)} and no more: "
+               + why + " (At some finite sizes false positives can lift it slightly above.)")
     if design.relevant_effect is not None and "conditional_assurance" in ds:
         word = "at most" if design.endpoint.better == "lower" else "at least"
         out.append(
@@ -203,9 +203,18 @@ def _summary_sentences(design: TrialDesign, ds: Any,
     for answer in answers:
         if not answer.reached:
             name = _target_name(answer)
-            out.append(f"{name[0].upper()}{name[1:]} cannot be reached (highest possible "
-                       f"{_p(answer.ceiling)}).")
+            out.append(f"{name[0].upper()}{name[1:]} cannot be reached ({_highest(answer)}).")
     return out
+
+
+def _highest(answer: SampleSizeAnswer) -> str:
+    """What is reachable: the highest value found by the solver, else the ceiling."""
+    highest = getattr(answer, "highest", None)
+    if highest is None:
+        return f"highest possible {_p(answer.ceiling)}"
+    where = getattr(answer, "highest_n_total", None)
+    at = "" if where is None else f" at {where} patients"
+    return f"highest value {_p(highest)}{at}; limit as n grows {_p(answer.ceiling)}"
 
 
 def memo_text_summary(design: TrialDesign, ds: Any,
@@ -254,8 +263,7 @@ def memo_text_summary(design: TrialDesign, ds: Any,
                     f"; reaches {_p(answer.achieved)}{_se(answer.achieved_mcse)}"
                 text = f"{_target_name(answer)}: {answer.n_total} patients{arms}{got}"
             else:
-                text = f"{_target_name(answer)}: not reachable (highest possible " \
-                       f"{_p(answer.ceiling)})"
+                text = f"{_target_name(answer)}: not reachable ({_highest(answer)})"
             lines.extend(textwrap.wrap(text, 86, initial_indent="    ",
                                        subsequent_indent="      "))
     return "\n".join(lines)

@@ -15,7 +15,7 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 
 from ._files import printable
-from .memo import _arms, _check_inputs, _e, _p, _se, _target_name
+from .memo import _arms, _check_inputs, _e, _highest, _p, _se, _target_name
 
 if TYPE_CHECKING:  # pragma: no cover
     from ..design import TrialDesign
@@ -115,7 +115,7 @@ def overview_html(
             else:
                 cells = [(_target_name(answer), False), ("not reachable", True)]
                 cells += [("", True)] if two_arm else []
-                cells += [(f"highest possible {_p(answer.ceiling)}", True), ("", True)]
+                cells += [(_highest(answer), True), ("", True)]
             cells.append((_p(ceiling), True))
             body.append(_row(cells))
         parts.append('<table style="border-collapse:collapse">'
