@@ -572,7 +572,7 @@ BAD = [
     ({"targets": {"power": True}}, ["'targets['power']'", "True", "(0, 1)"]),
     ({"targets": [("power", 0.9)]}, ["'targets' parameter of plan", "mapping"]),
     ({"targets": {"conditional_assurance": 0.8}}, ["relevant_effect"]),
-    ({"draws": 10}, ["'draws' parameter of plan", "10", ">= 100"]),
+    ({"draws": 10}, ["'draws' parameter of plan", "10", "[100, 2e+06]"]),
     ({"draws": 2000.5}, ["'draws' parameter of plan", "2000.5", "whole number"]),
     ({"seed": -1}, ["'seed' parameter of plan", "-1", ">= 0"]),
     ({"sizes": [100, 1]}, ["'sizes' parameter of plan", "Got 1 ", "[2, "]),

@@ -31,7 +31,7 @@ import math
 from functools import lru_cache
 
 import numpy as np
-from scipy import special, stats
+from scipy import special
 
 __all__ = ["sd_ratio_nodes", "ratio_rule", "hermite_part", "ratio_log_density"]
 
@@ -427,12 +427,12 @@ def sd_ratio_nodes(df: np.ndarray, kink: np.ndarray | None = None
             continue
         d = df[cols]
         x_star = d * kink[cols] ** 2
-        below = stats.chi2.cdf(x_star, d)
+        below = special.gammainc(d / 2, x_star / 2)  # chi-square cdf
         out_r[0, cols] = kink[cols]
         out_w[0, cols] = below
         if rule == "score":
             z_star = np.where(below < 0.5, special.ndtri(below),
-                              -special.ndtri(stats.chi2.sf(x_star, d)))
+                              -special.ndtri(special.gammaincc(d / 2, x_star / 2)))
             start = np.clip(z_star, -_Z_END, _Z_END)
             t, w = _SPLIT
             half = (_Z_END - start) / 2
@@ -446,9 +446,14 @@ def sd_ratio_nodes(df: np.ndarray, kink: np.ndarray | None = None
             span = 1.0 - below
             p = below[None, :] + span[None, :] * u[:, None]
             p = np.clip(p, 0.0, 1.0 - 1e-16)
-            out_r[1 : 1 + u.size, cols] = np.sqrt(stats.chi2.ppf(p, d[None, :]) / d[None, :])
+            out_r[1 : 1 + u.size, cols] = np.sqrt(_chi2_ppf(p, d[None, :]) / d[None, :])
             out_w[1 : 1 + u.size, cols] = w[:, None] * span[None, :]
     return out_r, out_w
+
+
+def _chi2_ppf(p: np.ndarray, df: np.ndarray) -> np.ndarray:
+    """Chi-square quantile (as scipy.stats.chi2.ppf computes it, without importing it)."""
+    return 2.0 * special.gammaincinv(np.asarray(df, dtype=float) / 2, p)
 
 
 @lru_cache(maxsize=32)
@@ -466,6 +471,6 @@ def _nodes_for(df_bytes: bytes) -> tuple[np.ndarray, np.ndarray]:
     if (~big).any():
         u, w = _LEGENDRE
         d = df[None, ~big]
-        ratio[: u.size, ~big] = np.sqrt(stats.chi2.ppf(u[:, None], d) / d)
+        ratio[: u.size, ~big] = np.sqrt(_chi2_ppf(u[:, None], d) / d)
         weight[: u.size, ~big] = w[:, None]
     return ratio, weight

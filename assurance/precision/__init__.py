@@ -11,25 +11,52 @@ The public names of both are re-exported here.
 
 from __future__ import annotations
 
-from .for_design import PrecisionPlan, precision_model_for
-from .widths import (
-    CRITERIA,
-    INTERVALS,
-    BetaPrior,
-    HazardRatio,
-    NormalGammaPrior,
-    NormalMean,
-    NormalMeanUnknownSD,
-    OneProportion,
-    PrecisionAnswer,
-    PrecisionModel,
-    RateRatio,
-    TwoProportions,
-    interval_width_curve,
-    solve_precision_n,
-)
+import importlib
+from typing import TYPE_CHECKING, Any
+
+#: public name -> module of this folder (loaded on first use: the widths pull in scipy.stats)
+_PUBLIC = {
+    **{name: "widths" for name in (
+        "CRITERIA", "INTERVALS", "BetaPrior", "HazardRatio", "NormalGammaPrior", "NormalMean",
+        "NormalMeanUnknownSD", "OneProportion", "PrecisionAnswer", "PrecisionModel",
+        "RateRatio", "TwoProportions", "interval_width_curve", "solve_precision_n")},
+    "PrecisionPlan": "for_design",
+    "precision_model_for": "for_design",
+}
 
 __all__ = ["BetaPrior", "NormalGammaPrior", "PrecisionModel", "NormalMean",
            "NormalMeanUnknownSD", "OneProportion", "TwoProportions", "HazardRatio",
            "RateRatio", "PrecisionAnswer", "interval_width_curve", "solve_precision_n",
            "CRITERIA", "INTERVALS", "PrecisionPlan", "precision_model_for"]
+
+if TYPE_CHECKING:  # pragma: no cover - for type checkers and editors only
+    from .for_design import PrecisionPlan, precision_model_for
+    from .widths import (
+        CRITERIA,
+        INTERVALS,
+        BetaPrior,
+        HazardRatio,
+        NormalGammaPrior,
+        NormalMean,
+        NormalMeanUnknownSD,
+        OneProportion,
+        PrecisionAnswer,
+        PrecisionModel,
+        RateRatio,
+        TwoProportions,
+        interval_width_curve,
+        solve_precision_n,
+    )
+
+
+def __getattr__(name: str) -> Any:
+    module = _PUBLIC.get(name)
+    if module is None:
+        raise AttributeError(f"module 'assurance.precision' has no attribute {name!r}")
+    value = getattr(importlib.import_module(f".{module}", __name__), name)
+    globals()[name] = value
+    return value
+
+
+def __dir__() -> list[str]:
+    return sorted(__all__)

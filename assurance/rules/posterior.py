@@ -21,7 +21,7 @@ from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
-from scipy import special, stats
+from scipy import special
 
 from .._validation import check_real
 from ..errors import AssuranceInputError
@@ -41,6 +41,15 @@ def _check_analysis_prior(prior: Prior | None, owner: str) -> Prior | None:
             f"Mixture of Normal and PointMass parts. Got {prior!r} instead."
         )
     return prior
+
+
+_LOG_SQRT_2PI = 0.5 * math.log(2 * math.pi)
+
+
+def _normal_logpdf(x: Any, mean: float, sd: Any) -> np.ndarray:
+    """Log density of N(mean, sd^2) at x (scipy.stats.norm.logpdf without importing it)."""
+    z = (np.asarray(x, dtype=float) - mean) / sd
+    return -0.5 * z * z - np.log(sd) - _LOG_SQRT_2PI
 
 
 def posterior_prob_above(prior: Prior | None, estimate: Any, se: Any, value: float
@@ -75,13 +84,13 @@ def posterior_prob_above(prior: Prior | None, estimate: Any, se: Any, value: flo
     logw, probs = [], []
     for weight, part in parts:
         if isinstance(part, PointMass):
-            logw.append(math.log(weight) + stats.norm.logpdf(d, part.value, s))
+            logw.append(math.log(weight) + _normal_logpdf(d, part.value, s))
             probs.append(np.full(d.shape, 1.0 if part.value > value else 0.0))
         else:
             v0 = part.sigma**2
             v1 = 1.0 / (1.0 / v0 + 1.0 / s**2)
             m1 = v1 * (part.mu / v0 + d / s**2)
-            logw.append(math.log(weight) + stats.norm.logpdf(d, part.mu, np.sqrt(v0 + s**2)))
+            logw.append(math.log(weight) + _normal_logpdf(d, part.mu, np.sqrt(v0 + s**2)))
             probs.append(special.ndtr((m1 - value) / np.sqrt(v1)))
     logw_arr = np.array(logw)
     w = np.exp(logw_arr - logw_arr.max(axis=0))
@@ -149,7 +158,7 @@ class PosteriorProbability:
         return float(special.ndtri(self.level))
 
     def critical_t(self, df: Any) -> np.ndarray:
-        return stats.t.ppf(self.level, df)
+        return special.stdtrit(df, self.level)  # the t quantile
 
     def threshold(self, se: Any, critical: Any) -> np.ndarray:
         """Estimate threshold ``c`` for standard error(s) ``se`` (``critical`` = z or t)."""
