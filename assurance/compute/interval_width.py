@@ -21,6 +21,7 @@ from __future__ import annotations
 import math
 import warnings
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 from scipy import special, stats
@@ -342,10 +343,27 @@ def beta_equal_tailed_coverage(a: np.ndarray, b: np.ndarray, length: float) -> n
     a, b = a.ravel(), b.ravel()
     if length >= 1:
         return np.ones(a.size)
+    # the coverage is the same for Beta(b, a); solved where the mass is nearer 0, since
+    # points next to 1 carry only absolute precision
+    flip = a > b
+    return _equal_tailed_window(np.where(flip, b, a), np.where(flip, a, b), length)[1]
+
+
+def _equal_tailed_window(a: np.ndarray, b: np.ndarray, length: float
+                         ) -> tuple[np.ndarray, np.ndarray]:
+    """Start ``c`` of the equal-tailed window of ``length`` and its probability.
+
+    Newton on ``F(c) - (1 - F(c + length))`` inside a bracket; a step leaving the bracket
+    is replaced by its midpoint, geometric where the bracket spans more than a factor 4 (the
+    start can be many orders of magnitude below the posterior mean, where a density is
+    steep or infinite at 0), and a bracket still at 0 is cut by 256. Ends when the two
+    tails agree to 1e-17 (the probability is then exact to that much) or the bracket is a
+    few rounding units wide.
+    """
     lbeta = special.betaln(a, b)
     lo, hi = np.zeros(a.size), np.full(a.size, 1.0 - length)
     c = np.clip(a / (a + b) - length / 2, 0.0, 1.0 - length)
-    out = np.empty(a.size)
+    out, start = np.empty(a.size), np.empty(a.size)
     act = np.arange(a.size)
     for _ in range(_MAX_ITER):
         aa, bb, cc = a[act], b[act], c
@@ -354,39 +372,1024 @@ def beta_equal_tailed_coverage(a: np.ndarray, b: np.ndarray, length: float) -> n
         phi = low_tail - high_tail
         lo[act] = np.where(phi < 0, cc, lo[act])
         hi[act] = np.where(phi < 0, hi[act], cc)
-        dens = (np.exp(_log_density(cc, aa, bb, lbeta[act]))
-                + np.exp(_log_density(cc + length, aa, bb, lbeta[act])))
-        with np.errstate(divide="ignore", invalid="ignore"):
+        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+            dens = (np.exp(_log_density(cc, aa, bb, lbeta[act]))
+                    + np.exp(_log_density(cc + length, aa, bb, lbeta[act])))
             new = cc - phi / dens
-        bad = ~np.isfinite(new) | (new <= lo[act]) | (new >= hi[act])
-        new = np.where(bad, 0.5 * (lo[act] + hi[act]), new)
-        done = (np.abs(phi) <= 1e-13) | (hi[act] - lo[act] <= 1e-15)
+        la, ha = lo[act], hi[act]
+        bad = ~np.isfinite(new) | (new <= la) | (new >= ha)
+        mid = np.where(la > 0, np.where(ha > 4 * la, np.sqrt(la * ha), 0.5 * (la + ha)),
+                       ha / 256)
+        new = np.where(bad, mid, new)
+        done = (np.abs(phi) <= 1e-17) | (ha - la <= 4 * np.spacing(ha))
         out[act] = 1.0 - low_tail - high_tail
+        start[act] = cc
         act, c = act[~done], new[~done]
         if act.size == 0:
             break
-    return np.clip(out, 0.0, 1.0)
+    return start, np.clip(out, 0.0, 1.0)
+
+
+# ------------------------------------------------------------------------------------------
+# every outcome of many sizes: continuation along x
+# ------------------------------------------------------------------------------------------
+# For one n the posteriors Beta(a + x, b + n - x), x = 0..n, are linked by an exact
+# recurrence: with T_x(t) = t^(a+x) (1 - t)^(b+n-x-1) / ((a + x) B(a + x, b + n - x)),
+#     F_{x+1}(t) = F_x(t) - T_x(t)
+# (F_x the distribution function of outcome x). So once F_x is known at a point, F_{x+1}
+# there costs one power, and the next interval end, a small step away (about 1/n), is
+# reached by integrating the density over that short window. Every size is a chain along
+# x; all chains advance together (vectorised over sizes), from x = 0 up to the middle,
+# and the outcomes beyond the middle are the chains of the mirrored problem
+# Beta(b + y, a + n - y), y = n - x (the same widths and coverages).
+
+#: Gauss-Legendre rules on [0, 1] for the windows
+_SWEEP_K = (4, 5, 6, 8, 10, 12, 16, 20, 24, 32, 48)
+_SWEEP_RULES = {k: ((x + 1) / 2, w / 2)
+                for k, (x, w) in ((k, np.polynomial.legendre.leggauss(k)) for k in _SWEEP_K)}
+#: log10 of the relative error of each rule (rows as _SWEEP_K) for a window whose
+#: roughness R (its length in u = log t times the largest of |d log g| and
+#: sqrt|d2 log g| at its ends, g(u) = f(e^u) e^u the integrand in u, and 2 / distance to
+#: t = 1) is at most the column's value: the worst over 286,000 windows of beta densities
+#: (shapes 1..3000, starts from 1e-12 to 0.999999 in probability, lengths 1e-3 to 3 SDs),
+#: against a 200-point rule in extended precision, plus 0.3 for safety
+_SWEEP_R = np.array([0.05, 0.1, 0.15, 0.2, 0.3, 0.4, 0.5, 0.75, 1, 1.25, 1.5, 2, 2.5, 3, 3.5,
+                     4, 5, 6, 8])
+_SWEEP_LOG_ERR = 0.3 + np.array([
+    [-15.5, -14.4, -12.9, -12.2, -10.9, -9.7, -9.2, -7.9, -7.2, -6.6, -6.0, -5.0, -4.6,
+     -4.2, -3.8, -3.5, -3.1, -2.7, -2.2],
+    [-15.4, -15.2, -15.4, -15.1, -13.7, -12.4, -11.6, -10.3, -9.1, -8.5, -7.8, -6.6, -6.1,
+     -5.6, -5.2, -4.8, -4.2, -3.8, -2.9],
+    [-15.5, -15.5, -15.1, -15.2, -14.9, -15.1, -14.5, -12.4, -11.4, -10.5, -9.6, -8.3, -7.7,
+     -7.1, -6.3, -5.9, -5.2, -4.7, -4.0],
+    [-15.6, -15.0, -15.0, -15.3, -15.0, -15.3, -15.1, -14.7, -14.7, -14.4, -13.2, -11.9,
+     -10.9, -10.0, -8.9, -8.6, -7.4, -6.8, -5.5],
+    [-15.4, -15.2, -15.1, -15.5, -14.8, -15.1, -15.4, -14.5, -14.5, -14.2, -15.0, -14.0,
+     -14.2, -13.0, -11.7, -11.6, -9.8, -9.0, -7.3],
+    [-15.6, -15.4, -15.1, -15.3, -15.0, -15.1, -14.7, -14.9, -14.6, -15.0, -14.8, -14.5,
+     -14.3, -14.4, -14.3, -13.9, -12.2, -11.2, -9.4],
+    [-15.6, -15.4, -15.3, -15.6, -15.0, -15.2, -14.9, -15.2, -14.5, -14.4, -15.0, -14.6,
+     -14.3, -14.3, -14.3, -14.3, -14.1, -13.8, -13.1],
+    [-15.6, -15.4, -15.3, -15.5, -14.9, -15.4, -15.4, -15.0, -15.2, -14.9, -15.2, -14.2,
+     -14.7, -14.3, -14.5, -14.4, -14.3, -14.0, -14.0],
+    [-15.7, -15.5, -15.7, -15.4, -15.3, -15.0, -14.8, -15.3, -14.9, -15.0, -14.8, -13.9,
+     -14.5, -14.4, -14.3, -14.2, -14.0, -13.8, -13.7],
+    [-15.7, -15.4, -15.4, -15.4, -15.1, -15.4, -15.2, -15.1, -14.8, -15.1, -14.9, -14.5,
+     -14.5, -14.4, -14.3, -14.2, -14.0, -13.9, -13.7],
+    [-15.8, -15.4, -15.3, -15.7, -15.5, -15.4, -15.4, -14.9, -14.5, -14.9, -14.8, -14.1,
+     -14.3, -14.2, -14.1, -14.0, -13.8, -13.7, -13.5],
+])
+# a finer rule is never worse (the table's floor is rounding)
+_SWEEP_LOG_ERR = np.minimum.accumulate(np.maximum.accumulate(_SWEEP_LOG_ERR, axis=1), axis=0)
+#: absolute error allowed in one window's probability (the chains add up a few hundred)
+_SWEEP_ATOL = 1e-15
+#: most digits asked of a rule (the table's floor is about 1e-14.5 relative)
+_SWEEP_MAX_DIGITS = 14.0
+
+
+def _sweep_k_table() -> np.ndarray:
+    """Index into _SWEEP_K (or -1: none) by roughness bin and digits wanted (0..15)."""
+    digits = np.arange(16)
+    need = -np.minimum(digits, _SWEEP_MAX_DIGITS)[None, :, None]
+    fits = _SWEEP_LOG_ERR.T[:, None, :] <= need        # (R bin, digits, rule)
+    return np.where(fits.any(axis=2), fits.argmax(axis=2), -1)
+
+
+_SWEEP_K_OF = _sweep_k_table()
+#: a Halley step this small (relative to the local scale of the density) leaves an error of
+#: order its cube, below rounding; the cubic Taylor polynomial of F is then exact too
+_SWEEP_HALLEY_OK = 4e-5
+#: a second Newton step this small (HPD width) leaves an error of order its square
+_SWEEP_NEWTON_OK = 1e-7
+#: moves up to this size take F from its cubic Taylor polynomial (error ~ size^4 / 24)
+_SWEEP_TAYLOR_OK = 1e-3
+#: two tails (equal-tailed window) agreeing this closely are taken as equal: the window's
+#: probability is then exact to that much
+_SWEEP_TAIL_ATOL = 1e-17
+#: lowest start of an equal-tailed window followed along x (the shapes are then >= 1, so
+#: the probability below it is under 1e-150)
+_SWEEP_FLOOR = 1e-150
+#: rule index up to which all chains share one rule (see _sweep_windows)
+_SWEEP_SPLIT = 2
+#: outcomes per chain advanced together from one set of exact ends (fewer, larger steps)
+_SWEEP_BLOCK = 8
+#: outcomes up to which the chains advance one at a time
+_SWEEP_SMALL_X = 24
+#: lean passes (each one window per end) tried before the safeguarded solver
+_SWEEP_LEAN_PASSES = 3
+#: below this tail probability an equal-tailed window's start moves by Newton in logs
+_SWEEP_SMALL_TAIL = 1e-4
+#: sizes per call below which the outcomes are computed one by one (few long chains are
+#: slower to advance than to solve directly)
+_SWEEP_MIN_CHAINS = 24
+
+
+#: coefficients of the Stirling remainder lgamma(x) - ((x - 1/2) log x - x + log(2 pi)/2)
+#: in powers of 1/x^2 (divided by x): B_2k / (2k (2k - 1)), k = 1..7
+_STIRLING = (1 / 12, -1 / 360, 1 / 1260, -1 / 1680, 1 / 1188, -691 / 360360, 1 / 156)
+
+
+def _stirling_rest(x: np.ndarray) -> np.ndarray:
+    """lgamma(x) - ((x - 1/2) log x - x + log(2 pi) / 2) for x >= 10 (error below 1e-16)."""
+    i = 1.0 / x
+    i2 = i * i
+    out = np.full(np.shape(x), _STIRLING[-1])
+    for c in _STIRLING[-2::-1]:
+        out = out * i2 + c
+    return out * i
+
+
+def _log_beta(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """log B(a, b) to about 1e-15 relative to B where both shapes are large.
+
+    ``scipy.special.betaln`` takes differences of log-gamma values of order (a + b) log(a + b)
+    and loses about 1e-12 at shapes near 1000; here the large terms are combined before
+    rounding (Stirling's series for the shapes from 10 up): for a, b >= 10,
+    ``log B = log(2 pi)/2 - log(a + b)/2 + (a - 1/2) log(a/(a+b)) + (b - 1/2) log(b/(a+b))
+    + r(a) + r(b) - r(a + b)`` with r the Stirling remainder; one shape below 10 keeps its
+    log-gamma and the other's difference ``lgamma(q) - lgamma(p + q)`` by Stirling; both below
+    10 the plain sum."""
+    a, b = np.broadcast_arrays(np.asarray(a, dtype=float), np.asarray(b, dtype=float))
+    p, q = np.minimum(a, b), np.maximum(a, b)
+    s = p + q
+    with np.errstate(divide="ignore", invalid="ignore"):
+        both = (0.5 * math.log(2 * math.pi) - 0.5 * np.log(s) + (p - 0.5) * np.log(p / s)
+                + (q - 0.5) * np.log1p(-p / s)
+                + _stirling_rest(np.maximum(p, 10.0)) + _stirling_rest(np.maximum(q, 10.0))
+                - _stirling_rest(np.maximum(s, 10.0)))
+        one = (special.gammaln(p) + (q - 0.5) * np.log1p(-p / s) - p * np.log(s) + p
+               + _stirling_rest(np.maximum(q, 10.0)) - _stirling_rest(np.maximum(s, 10.0)))
+    small = special.gammaln(p) + special.gammaln(q) - special.gammaln(s)
+    return np.where(p >= 10.0, both, np.where(q >= 10.0, one, small))
+
+
+def _sweep_densities(p: np.ndarray, am1: np.ndarray, bm1: np.ndarray, lbeta: np.ndarray):
+    """Density, first and second derivative of its log, logs of p and 1 - p."""
+    lp = np.log(p)
+    lq = np.log1p(-p)
+    f = np.exp(am1 * lp + bm1 * lq - lbeta)
+    ip = 1.0 / p
+    iq = 1.0 / (1.0 - p)
+    g1 = am1 * ip - bm1 * iq
+    g2 = -(am1 * ip * ip + bm1 * iq * iq)
+    return f, g1, g2, lp, lq
+
+
+def _sweep_taylor(V: np.ndarray, sign: np.ndarray | float, f: np.ndarray, g1: np.ndarray,
+                  g2: np.ndarray, d: np.ndarray) -> np.ndarray:
+    """Tail probability at p + d from its value V at p: ``sign`` +1 for F (lower tail), -1
+    for 1 - F (upper tail); f = F', f g1 = F'', f (g2 + g1^2) = F''' at p. V itself where
+    d = 0, whatever the derivatives."""
+    step = f * d * (1.0 + d * (0.5 * g1 + d * (g2 + g1 * g1) / 6.0))
+    return V + np.where(d == 0, 0.0, sign * step)
+
+
+def _sweep_scale(p: np.ndarray, g1: np.ndarray, g2: np.ndarray) -> np.ndarray:
+    """Local scale (inverse length) of the density's variation at p, counting the distance
+    to 0 and 1: a move d with ``|d| * scale`` small keeps the Taylor polynomial exact."""
+    return np.maximum(np.maximum(np.abs(g1), np.sqrt(-g2)), 2.0 / np.minimum(p, 1.0 - p))
+
+
+def _sweep_rule_index(r: np.ndarray, bound: np.ndarray, monotone: np.ndarray) -> np.ndarray:
+    """Index of the Gauss-Legendre rule each window needs (-1: none will do).
+
+    ``r`` is the window's roughness (its length in u = log t times the local scale of the
+    log integrand there), ``bound`` the window's length in u times the larger end value of
+    the integrand f(t) t: the window's probability is at most ``bound`` where the integrand
+    is ``monotone`` over it, ``bound * exp(r)`` elsewhere; the digits wanted are those that
+    keep its error under _SWEEP_ATOL (none for a negligible window)."""
+    di = np.log10(np.maximum(bound, 1e-300) * (1.0 / _SWEEP_ATOL))
+    di += np.where(monotone, 0.0, r * (1.0 / math.log(10.0)))
+    di = np.clip(np.ceil(np.nan_to_num(di, nan=15.0, posinf=15.0)), 0, 15).astype(np.intp)
+    rbin = np.searchsorted(_SWEEP_R, r)
+    k = _SWEEP_K_OF[np.minimum(rbin, _SWEEP_R.size - 1), di]
+    k = np.where(rbin < _SWEEP_R.size, k, -1)
+    return np.where(di == 0, 0, k)
+
+
+def _sweep_window_rules(p0, p1, am1, bm1, lbeta):
+    """Rule index for each window [p0, p1] from the densities at both ends."""
+    f1, g11, _, l1, _ = _sweep_densities(p1, am1, bm1, lbeta)
+    f0, g10, _, l0, _ = _sweep_densities(p0, am1, bm1, lbeta)
+    s0, s1 = p0 * g10 + 1.0, p1 * g11 + 1.0
+    r = np.abs(_sweep_log_ratio(p0, p1)) * _sweep_log_scale(p0, p1, s0, s1, bm1)
+    return _sweep_rule_index(np.where(np.isfinite(r), r, np.inf),
+                             np.abs(l1 - l0) * np.maximum(f0 * p0, f1 * p1), s0 * s1 > 0)
+
+
+def _sweep_log_ratio(p0: np.ndarray, p1: np.ndarray) -> np.ndarray:
+    """log(p1 / p0): from the relative change where it is small (exact for short windows),
+    from the logs where it is not."""
+    rel = (p1 - p0) / p0
+    return np.where(np.abs(rel) < 0.5, np.log1p(rel), np.log(p1) - np.log(p0))
+
+
+def _sweep_log_scale(p0, p1, s0, s1, bm1):
+    """Largest local scale of log g over a window in u = log t (g = f(e^u) e^u): the slopes
+    s0, s1 at the ends, the curvature's root sqrt(bm1 t) / (1 - t) (largest at the upper
+    end), and 2 / distance to t = 1."""
+    hi = np.maximum(p0, p1)
+    scale = np.maximum(np.maximum(np.abs(s0), np.abs(s1)), np.sqrt(bm1 * hi) / (1.0 - hi))
+    return np.maximum(scale, -2.0 / np.log(hi))
+
+
+def _sweep_gl(p0: np.ndarray, p1: np.ndarray, am1: np.ndarray, bm1: np.ndarray,
+              lbeta: np.ndarray, k: int) -> np.ndarray:
+    """Probability of the windows [p0, p1] (signed) by the k-point rule in u = log t,
+    where ``f(t) dt = f(e^u) e^u du`` has no singularity at t = 0; shapes (P, J) for the
+    points and (J,) for the parameters."""
+    x, w = _SWEEP_RULES[k]
+    u0 = np.log(p0)
+    h = _sweep_log_ratio(p0, p1)           # the window's length in u
+    u = u0[..., None] + h[..., None] * x
+    lf = np.exp(u)
+    np.negative(lf, out=lf)
+    np.log1p(lf, out=lf)
+    lf *= bm1[:, None]
+    u *= (am1 + 1.0)[:, None]
+    lf += u
+    lf -= lbeta[:, None]
+    np.exp(lf, out=lf)
+    return (lf @ w) * h
+
+
+def _sweep_windows(p0: np.ndarray, p1: np.ndarray, am1: np.ndarray, bm1: np.ndarray,
+                   lbeta: np.ndarray, kidx: np.ndarray) -> np.ndarray:
+    """Window probabilities, each chain (column) with the rule its finest window needs:
+    the columns sorted by that rule and integrated group by group."""
+    kc = kidx.max(axis=0)
+    top = int(kc.max())
+    if top == int(kc.min()):
+        return _sweep_gl(p0, p1, am1, bm1, lbeta, _SWEEP_K[top])
+    order = np.argsort(kc, kind="stable")
+    ends = np.cumsum(np.bincount(kc, minlength=len(_SWEEP_K)))
+    q0, q1, a_, b_, l_ = p0[:, order], p1[:, order], am1[order], bm1[order], lbeta[order]
+    out = np.empty(p0.shape)
+    res = np.empty(p0.shape)
+    start = 0
+    for level, stop in enumerate(ends):
+        if stop > start:
+            sl = slice(start, stop)
+            res[:, sl] = _sweep_gl(q0[:, sl], q1[:, sl], a_[sl], b_[sl], l_[sl],
+                                   _SWEEP_K[level])
+            start = stop
+    out[:, order] = res
+    return out
+
+
+def _sweep_exact(p: np.ndarray, sign: np.ndarray, am1: np.ndarray, bm1: np.ndarray
+                 ) -> np.ndarray:
+    """Tail probabilities by the incomplete beta function (F where sign > 0, else 1 - F)."""
+    a, b = am1 + 1.0, bm1 + 1.0
+    return np.where(sign > 0, special.betainc(a, b, p), special.betaincc(a, b, p))
+
+
+def _sweep_advance(p: np.ndarray, V: np.ndarray, sign: np.ndarray, target: np.ndarray,
+                   am1: np.ndarray, bm1: np.ndarray, lbeta: np.ndarray) -> np.ndarray:
+    """Tail probability at ``target`` from its value at ``p`` (flat arrays): a window rule
+    where one is accurate enough, the incomplete beta function elsewhere."""
+    k = _sweep_window_rules(p[None, :], target[None, :], am1, bm1, lbeta)[0]
+    out = np.empty(p.size)
+    for level in np.unique(k):
+        j = np.flatnonzero(k == level)
+        if level < 0:
+            out[j] = _sweep_exact(target[j], sign[j], am1[j], bm1[j])
+        else:
+            out[j] = V[j] + sign[j] * _sweep_gl(p[j][None, :], target[j][None, :], am1[j],
+                                                bm1[j], lbeta[j], _SWEEP_K[int(level)])[0]
+    return out
+
+
+def _sweep_log_tail_step(c: np.ndarray, lower: np.ndarray, upper: np.ndarray,
+                         f_lo: np.ndarray, f_hi: np.ndarray) -> np.ndarray:
+    """Step of the start c of an equal-tailed window where its tails are small: Newton for
+    log F(c) - log(1 - F(c + length)) in log c, which is nearly linear there (each tail
+    close to a power of c), where Halley's step on the tails' difference is poorly scaled."""
+    rate = c * (f_lo / lower + f_hi / upper)
+    return c * np.expm1(-(np.log(lower) - np.log(upper)) / rate)
+
+
+def _sweep_equal_density_step(am1: np.ndarray, bm1: np.ndarray, length: Any,
+                              c: np.ndarray) -> np.ndarray:
+    """Halley step, in log c, for the start c of the window [c, c + length] with equal
+    density at both ends: h = (a-1) log(1 + L/c) + (b-1) log(1 - L/(1-c)) falls in log c,
+    nearly linearly where c is far below L (the start can move by orders of magnitude
+    between outcomes there)."""
+    up = 1.0 - c
+    rest = up - length
+    h = am1 * np.log1p(length / c) + bm1 * np.log1p(-length / up)
+    w = c + length
+    h1 = -am1 * length / w - bm1 * c * length / (up * rest)           # dh / dlog c
+    h2 = c * (am1 * length / (w * w)
+              - bm1 * length * (up * rest + c * (up + rest)) / (up * rest) ** 2)
+    nw = -h / h1
+    return c * np.expm1(nw / (1.0 + 0.5 * nw * h2 / h1))
+
+
+def _sweep_equal_density(am1: np.ndarray, bm1: np.ndarray, length: Any, c: np.ndarray
+                         ) -> np.ndarray:
+    """Start of the window [c, c + length] with equal density at both ends, by three
+    Halley steps in log c from a guess (steps leaving (0, 1 - length) are not taken)."""
+    for _ in range(3):
+        new = c + _sweep_equal_density_step(am1, bm1, length, c)
+        c = np.where(np.isfinite(new) & (new > 0) & (new + length < 1.0), new, c)
+    return c
+
+
+def _sweep_window_start(am1: np.ndarray, bm1: np.ndarray, length: np.ndarray,
+                        guess: np.ndarray) -> np.ndarray:
+    """Start of the window of ``length`` with equal density at both ends: Newton from a
+    close guess, the bracketed search of :func:`_window_start` if it strays."""
+    c = guess
+    for _ in range(3):
+        up = 1.0 - c
+        h = am1 * np.log1p(length / c) + bm1 * np.log1p(-length / up)
+        dh = -am1 * length / (c * (c + length)) - bm1 * length / (up * (up - length))
+        new = c - h / dh
+        if not np.all(np.isfinite(new) & (new > 0) & (new + length < 1)):
+            break
+        if np.all(np.abs(h) <= 1e-5):
+            return new
+        c = new
+    a, b = am1 + 1.0, bm1 + 1.0
+    return _window_start(a, b, np.broadcast_to(length, a.shape).astype(float),
+                         am1 / (am1 + bm1), guess)
+
+
+def _sweep_root(u: np.ndarray, V: np.ndarray, offsets: tuple[float, ...], sign: np.ndarray,
+                target: np.ndarray, lo: np.ndarray, hi: np.ndarray,
+                guess: np.ndarray | None, am1: np.ndarray, bm1: np.ndarray,
+                lbeta: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Root in u of ``sum_k sign_k V_k(u + offsets[k]) = target``, safeguarded.
+
+    ``V`` (len(offsets), U) holds the tail probabilities at ``u + offsets`` (F where
+    ``sign`` (len(offsets), U) is +1, 1 - F where -1), so the left side increases with u;
+    ``[lo, hi]`` brackets the root. Halley steps from exact points; a step leaving the
+    bracket, or one after which the residual did not halve, is replaced by the bracket's
+    midpoint (geometric where it spans more than a factor 4); V at each new point from the
+    window rule or the incomplete beta function; a small enough step is taken with V from
+    the Taylor polynomial. Returns the root and V there (exact pairs)."""
+    off = np.asarray(offsets, dtype=float)[:, None]
+    m = off.shape[0]
+    u, V, lo, hi = u.copy(), V.copy(), lo.copy(), hi.copy()
+    act = np.arange(u.size)
+    last = np.full(u.size, np.inf)      # |residual| one Halley step earlier
+    cand = None if guess is None else np.clip(guess, lo, hi)
+    for _ in range(_MAX_ITER):
+        uu = u[act]
+        pts = uu[None, :] + off
+        a_, b_, l_, sg = am1[act], bm1[act], lbeta[act], sign[:, act]
+        VV = V[:, act]
+        if cand is not None:
+            step_to = cand
+            accept = np.zeros(act.size, dtype=bool)
+            cand = None
+        else:
+            f, g1, g2, _, _ = _sweep_densities(pts, a_, b_, l_)
+            phi = (sg * VV).sum(axis=0) - target[act]
+            lo[act] = np.where(phi < 0, uu, lo[act])
+            hi[act] = np.where(phi < 0, hi[act], uu)
+            d1 = f.sum(axis=0)
+            d2 = (f * g1).sum(axis=0)
+            nw = -phi / d1
+            d = nw / (1.0 + 0.5 * nw * d2 / d1)
+            if m == 2:
+                # a window's tails: Newton in logs where they are small
+                d = np.where(_Sweep._small_tails(VV[0], VV[1]),
+                             _sweep_log_tail_step(uu, VV[0], VV[1], f[0], f[1]), d)
+            la, ha = lo[act], hi[act]
+            new = uu + d
+            # a Halley step small enough is taken as it is (from an exact pair it is right
+            # even where the bracket, set from tails rounded elsewhere, disagrees by a hair)
+            tiny = np.isfinite(d) & (np.abs(d) * np.max(_sweep_scale(pts, g1, g2), axis=0)
+                                     <= _SWEEP_HALLEY_OK)
+            bad = (~np.isfinite(new) | (new <= la) | (new >= ha)
+                   | (np.abs(phi) > 0.5 * last[act])) & ~tiny
+            last[act] = np.where(bad, np.inf, np.abs(phi))
+            mid = np.where(la > 0, np.where(ha > 4 * la, np.sqrt(la * ha), 0.5 * (la + ha)),
+                           ha / 256)
+            new = np.where(bad, mid, new)
+            d = new - uu
+            flat = (np.abs(phi) <= _SWEEP_TAIL_ATOL) | (ha - la <= 4 * np.spacing(ha))
+            accept = tiny | flat
+            d = np.where(flat & ~tiny, 0.0, d)
+            if accept.any():
+                k = np.flatnonzero(accept)
+                V[:, act[k]] = _sweep_taylor(VV[:, k], sg[:, k], f[:, k], g1[:, k], g2[:, k],
+                                             d[k])
+                u[act[k]] = uu[k] + d[k]
+            step_to = new
+        move = np.flatnonzero(~accept)
+        if move.size == 0:
+            break
+        tgt = step_to[move][None, :] + off
+        newV = _sweep_advance(pts[:, move].ravel(), VV[:, move].ravel(),
+                              sg[:, move].ravel(), tgt.ravel(), np.tile(a_[move], m),
+                              np.tile(b_[move], m), np.tile(l_[move], m))
+        V[:, act[move]] = newV.reshape(m, -1)
+        u[act[move]] = step_to[move]
+        act = act[move]
+    else:  # pragma: no cover - the bracket guarantees convergence
+        raise RuntimeError("beta continuation: root did not converge")
+    return u, V
+
+
+def _sweep_shortest(lo_p: np.ndarray, hi_p: np.ndarray, F_lo: np.ndarray, S_hi: np.ndarray,
+                    coverage: float, guess_len: np.ndarray, guess_lo: np.ndarray,
+                    am1: np.ndarray, bm1: np.ndarray, lbeta: np.ndarray
+                    ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """Shortest interval holding ``coverage`` from exact pairs (F at the lower end, 1 - F at
+    the upper), safeguarded: as :func:`_interior_shortest`, Halley on the length with the
+    window of equal density at both ends inside, its probability from the tails at the
+    previous ends."""
+    U = lo_p.size
+    lo_p, hi_p, F_lo, S_hi = lo_p.copy(), hi_p.copy(), F_lo.copy(), S_hi.copy()
+    signs = np.concatenate([np.ones(U), -np.ones(U)])
+
+    def move_to(idx, length, start):
+        two = np.concatenate
+        k = idx.size
+        newV = _sweep_advance(two([lo_p[idx], hi_p[idx]]), two([F_lo[idx], S_hi[idx]]),
+                              two([signs[:k], signs[U:U + k]]), two([start, start + length]),
+                              two([am1[idx], am1[idx]]), two([bm1[idx], bm1[idx]]),
+                              two([lbeta[idx], lbeta[idx]]))
+        lo_p[idx], hi_p[idx] = start, start + length
+        F_lo[idx], S_hi[idx] = newV[:k], newV[k:]
+
+    length = np.clip(guess_len, 1e-300, coverage)
+    start = _sweep_window_start(am1, bm1, length, np.clip(guess_lo, 1e-300, 1 - length))
+    move_to(np.arange(U), length, start)
+    lo_b, hi_b = np.zeros(U), np.full(U, float(coverage))
+    act = np.arange(U)
+    for _ in range(_MAX_ITER):
+        ll, uu = lo_p[act], hi_p[act]
+        a_, b_, l_ = am1[act], bm1[act], lbeta[act]
+        cur = uu - ll
+        f2, g1, g2, _, _ = _sweep_densities(np.stack([ll, uu]), a_, b_, l_)
+        r = (1.0 - coverage) - F_lo[act] - S_hi[act]          # mass - coverage
+        lo_b[act] = np.where(r < 0, cur, lo_b[act])
+        hi_b[act] = np.where(r < 0, hi_b[act], cur)
+        at = np.where(np.abs(g1[0]) <= np.abs(g1[1]), f2[0], f2[1])
+        curv = np.nan_to_num(g1[0] * g1[1] / (g1[0] - g1[1]))
+        dc = np.nan_to_num(g1[1] / (g1[0] - g1[1]))
+        nw = -r / at
+        new = cur + nw / np.clip(1.0 + 0.5 * nw * curv, 0.5, 2.0)
+        bad = ~np.isfinite(new) | (new <= lo_b[act]) | (new >= hi_b[act])
+        new = np.where(bad, 0.5 * (lo_b[act] + hi_b[act]), new)
+        d = new - cur
+        dl = dc * d
+        du = dl + d
+        sc = _sweep_scale(np.stack([ll, uu]), g1, g2)
+        s = np.maximum(np.abs(dl) * sc[0], np.abs(du) * sc[1])
+        flat = (hi_b[act] - lo_b[act] <= 4 * np.spacing(hi_b[act])) | (r == 0)
+        dl, du = np.where(flat, 0.0, dl), np.where(flat, 0.0, du)
+        accept = (~bad & (s <= _SWEEP_HALLEY_OK)) | flat
+        if accept.any():
+            k = np.flatnonzero(accept)
+            i = act[k]
+            F_lo[i] = _sweep_taylor(F_lo[i], 1.0, f2[0, k], g1[0, k], g2[0, k], dl[k])
+            S_hi[i] = _sweep_taylor(S_hi[i], -1.0, f2[1, k], g1[1, k], g2[1, k], du[k])
+            lo_p[i], hi_p[i] = ll[k] + dl[k], uu[k] + du[k]
+        k = np.flatnonzero(~accept)
+        if k.size == 0:
+            break
+        act = act[k]
+        length = new[k]
+        start = _sweep_window_start(a_[k], b_[k], length,
+                                    np.clip(ll[k] + dl[k], 1e-300, 1 - length))
+        move_to(act, length, start)
+    else:  # pragma: no cover - the bracket guarantees convergence
+        raise RuntimeError("beta continuation: shortest interval did not converge")
+    return lo_p, hi_p, F_lo, S_hi
+
+
+class _Sweep:
+    """Interval ends of every outcome, chain by chain (see the section's comment).
+
+    Rows of the point arrays: the interval's two ends (widths), then the start and end of
+    the window of the target length (coverages). Each lower end carries F there, each upper
+    end 1 - F (both tails keep their relative precision when they are tiny)."""
+
+    def __init__(self, hd: bool, coverage: float, length: float | None, widths: bool):
+        self.hd, self.coverage, self.length = hd, coverage, length
+        self.iw = 0 if widths else None
+        self.ic = None if length is None else (2 if widths else 0)
+        rows = (2 if widths else 0) + (0 if length is None else 2)
+        self.sign = np.where(np.arange(rows) % 2 == 0, 1.0, -1.0)[:, None]
+        self.tail = (1.0 - coverage) / 2
+        # the interval's ends and the window's ends are finished separately when their
+        # first pass fails
+        self.groups = []
+        if widths and length is not None:
+            self.groups = [(slice(0, 2), _Sweep(hd, coverage, None, True)),
+                           (slice(2, 4), _Sweep(hd, coverage, length, False))]
+
+    # ---- seeds: the first outcome of each chain that continues, solved directly --------
+    def seed(self, al: np.ndarray, be: np.ndarray) -> np.ndarray:
+        rows = []
+        if self.iw is not None:
+            if self.hd:
+                rows += list(beta_shortest_interval(al, be, self.coverage))
+            else:
+                rows += list(beta_equal_tailed_interval(al, be, self.coverage))
+        if self.ic is not None:
+            length = self.length
+            if self.hd:
+                mode = (al - 1) / (al + be - 2)
+                inv_curv = 1.0 / ((al - 1) / mode**2 + (be - 1) / (1 - mode) ** 2)
+                third = (2 * (al - 1) / mode**3 - 2 * (be - 1) / (1 - mode) ** 3) / 6
+                ll = np.full(al.size, float(length))
+                c = _window_start(al, be, ll, mode,
+                                  mode - ll / 2 + third * inv_curv * ll**2 / 4)
+            else:
+                c = _equal_tailed_window(al, be, length)[0]
+                c = np.clip(c, _SWEEP_FLOOR, (1.0 - length) * (1.0 - 2.0**-52))
+            rows += [c, c + length]
+        return np.array(rows)
+
+    # ---- one step for every chain, from predicted points --------------------------------
+    def block(self, a, la, lqa, Va, T0, ph, am1, bm1, lb, lbeta):
+        """First pass for outcomes x + 1 .. x + B of every chain, from the exact ends ``a``
+        at x (logs ``la``, ``lqa``; tails ``Va``; ``T0`` = T_x(a)) and predictions ``ph``
+        (P, B, J); ``am1``, ``bm1``, ``lb`` (B, J) are the shapes minus 1 and log B of
+        x + k, ``lbeta`` log B of x.
+
+        The windows are chained: outcome x + k integrates from the prediction for x + k - 1
+        (the anchor for k = 1), whose tail for x + k is that of x + k - 1 minus T there; so
+        every window is one step long and all are integrated at once, the tails following
+        by a cumulative sum along k. Returns columns (k, chain), k outer, as :meth:`lean`."""
+        P, B, J = ph.shape
+        iw, ic, sign = self.iw, self.ic, self.sign[:, :, None]
+        if ic is not None:
+            c, top = ph[ic], 1.0 - self.length
+            c = np.where(c <= 0, 0.5 * a[ic], np.where(c >= top, 0.5 * (a[ic] + top), c))
+            ph[ic] = np.maximum(c, _SWEEP_FLOOR)
+            ph[ic + 1] = ph[ic] + self.length
+        valid = ((ph > 0) & (ph < 1)).all(axis=(0, 1))
+        if iw is not None:
+            valid &= (ph[iw] < ph[iw + 1]).all(axis=0)
+        if not valid.all():
+            # a chain with an unusable prediction stays at its anchor (exact tails there)
+            ph = np.where(valid, ph, a[:, None, :])
+        A, Bm, L = am1[None], bm1[None], lb[None]
+        f, g1, g2, lp, lq = _sweep_densities(ph, A, Bm, L)
+        o = np.concatenate([a[:, None], ph[:, :-1]], axis=1)
+        lo = np.concatenate([la[:, None], lp[:, :-1]], axis=1)
+        Tprev = np.empty(ph.shape)
+        Tprev[:, 0] = T0
+        if B > 1:
+            # T_{x+k-1} at the prediction for x + k - 1: shapes al + k - 1, be - k + 1
+            Tprev[:, 1:] = np.exp(am1[1:] * lp[:, :-1] + (bm1[1:] + 1.0) * lq[:, :-1]
+                                  - np.log(am1[1:]) - lb[:-1])
+        fold = Tprev * (Bm + 1.0) / (1.0 - o)          # density of x + k at the old end
+        su = ph * g1
+        su += 1.0
+        s_old = A - Bm * o / (1.0 - o) + 1.0
+        move = np.abs(lp - lo)
+        r = np.abs(_sweep_log_ratio(o, ph)) * _sweep_log_scale(o, ph, s_old, su, Bm)
+        kidx = _sweep_rule_index(r, move * np.maximum(f * ph, fold * o), s_old * su > 0)
+        rough = kidx < 0
+        C = B * J
+        W = _sweep_windows(o.reshape(P, C), ph.reshape(P, C), am1.ravel(), bm1.ravel(),
+                           lb.ravel(), np.maximum(kidx, 0).reshape(P, C)).reshape(P, B, J)
+        W -= Tprev
+        W *= sign
+        rough_any = rough.any()
+        if rough_any:
+            W[rough] = 0.0          # replaced below by the exact tails
+        Vh = Va[:, None] + np.cumsum(W, axis=1)
+        if rough_any:
+            # exact tails where no rule would do; later outcomes of the chain carry the
+            # correction on
+            i, k, j = np.nonzero(rough)
+            fix = np.zeros(ph.shape)
+            fix[i, k, j] = _sweep_exact(ph[i, k, j], sign[i, 0, 0], am1[k, j], bm1[k, j]) \
+                - Vh[i, k, j]
+            last = np.maximum.accumulate(np.where(rough, np.arange(B)[:, None], -1), axis=1)
+            Vh += np.where(last >= 0, np.take_along_axis(fix, np.maximum(last, 0), axis=1),
+                           0.0)
+        def flat(v: np.ndarray) -> np.ndarray:
+            return v.reshape(P, C)
+
+        ph, Vh = flat(ph), flat(Vh)
+        am1c, bm1c, lbc = am1.ravel(), bm1.ravel(), lb.ravel()
+        new, Vn, ok = self._correct(ph, Vh, flat(f), flat(g1), flat(g2), flat(lp), flat(lq),
+                                    am1c, bm1c, lbc)
+        valid = np.tile(valid, B)
+        return ph, Vh, new, Vn, ok & valid, valid
+
+    def lean(self, old, lold, fold, Vold, ph, am1, bm1, lbeta):
+        """Exact tails at the predictions ``ph`` (one window each, or the incomplete beta
+        function where no window rule is accurate enough), then the corrections of
+        :meth:`_correct`. ``lold`` is log(old), ``fold`` the density at ``old``. Returns the
+        exact pairs at ``ph``, the corrected points with their tails, and which columns are
+        done (``ok``) or could not be tried (``valid`` false: a prediction outside [0, 1] or
+        out of order)."""
+        iw, ic, sign = self.iw, self.ic, self.sign
+        if ic is not None:
+            # a window start predicted past an end of [0, 1 - length] goes halfway there
+            c, top = ph[ic], 1.0 - self.length
+            c = np.where(c <= 0, 0.5 * old[ic], np.where(c >= top, 0.5 * (old[ic] + top), c))
+            ph[ic] = np.maximum(c, _SWEEP_FLOOR)
+            ph[ic + 1] = ph[ic] + self.length
+        valid = ((ph > 0) & (ph < 1)).all(axis=0)
+        if iw is not None:
+            valid &= ph[iw] < ph[iw + 1]
+        if not valid.all():
+            ph = np.where(valid, ph, old)
+        if self.hd:
+            # the windows of equal density at both ends, at the candidates' lengths
+            if iw is not None:
+                width = ph[iw + 1] - ph[iw]
+                ph[iw] = _sweep_equal_density(am1, bm1, width, ph[iw])
+                ph[iw + 1] = ph[iw] + width
+            if ic is not None:
+                ph[ic] = _sweep_equal_density(am1, bm1, self.length, ph[ic])
+                ph[ic + 1] = ph[ic] + self.length
+        f, g1, g2, lp, lq = _sweep_densities(ph, am1, bm1, lbeta)
+        # window rule from the roughness in u = log t
+        su = ph * g1
+        su += 1.0
+        s_old = am1 - bm1 * old / (1.0 - old) + 1.0
+        move = np.abs(lp - lold)
+        r = np.abs(_sweep_log_ratio(old, ph)) * _sweep_log_scale(old, ph, s_old, su, bm1)
+        kidx = _sweep_rule_index(r, move * np.maximum(f * ph, fold * old), s_old * su > 0)
+        rough = kidx < 0
+        Vh = Vold + sign * _sweep_windows(old, ph, am1, bm1, lbeta, np.maximum(kidx, 0))
+        if rough.any():
+            i, j = np.nonzero(rough)
+            Vh[i, j] = _sweep_exact(ph[i, j], sign[i, 0], am1[j], bm1[j])
+        new, Vn, ok = self._correct(ph, Vh, f, g1, g2, lp, lq, am1, bm1, lbeta)
+        return ph, Vh, new, Vn, ok & valid, valid
+
+    def _correct(self, ph, Vh, f, g1, g2, lp, lq, am1, bm1, lbeta):
+        """Two Halley steps from exact pairs (ph, Vh), the second with the tails from their
+        Taylor polynomials (skipped for a group of rows whose first steps are all small
+        enough); the corrected points, their tails and which columns are done."""
+        sign = self.sign
+        sc = np.maximum(np.maximum(np.abs(g1), np.sqrt(-g2)), 2.0 / np.minimum(ph, 1.0 - ph))
+        d = np.empty(ph.shape)
+        self._step(d, ph, Vh, f, g1, g2, lp, lq, am1, bm1)
+        s1 = np.abs(d) * sc
+        rows_ok = s1 <= _SWEEP_TAYLOR_OK
+        self._first = d.copy()
+        # a second step (tails from the Taylor polynomials) for the groups of rows where the
+        # first was not already small enough to leave an error below rounding
+        for rows, sweep in (self.groups or [(slice(0, ph.shape[0]), self)]):
+            if (s1[rows] <= _SWEEP_HALLEY_OK).all():
+                continue
+            p2 = ph[rows] + d[rows]
+            f2, h1, h2, lp2, lq2 = _sweep_densities(p2, am1, bm1, lbeta)
+            d2 = np.empty(p2.shape)
+            sweep._step(d2, p2, _sweep_taylor(Vh[rows], sweep.sign, f[rows], g1[rows],
+                                              g2[rows], d[rows]),
+                        f2, h1, h2, lp2, lq2, am1, bm1)
+            rows_ok[rows] &= np.abs(d2) * sc[rows] <= _SWEEP_HALLEY_OK
+            d[rows] += d2
+        self._rows_ok = rows_ok
+        return ph + d, _sweep_taylor(Vh, sign, f, g1, g2, d), rows_ok.all(axis=0)
+
+    def _step(self, out, p, V, f, g1, g2, lp, lq, am1, bm1):
+        """One correction of every row (into ``out``) from tails V and densities at p."""
+        iw, ic = self.iw, self.ic
+        if iw is not None:
+            sl = slice(iw, iw + 2)
+            if self.hd:
+                # shortest interval: the best coverage C(L) of a window of length L has
+                # C' = f (the common density at the ends of the equal-density window) and
+                # C'' / C' = g_lo g_hi / (g_lo - g_hi); Halley on L, the start following at
+                # rate g_hi / (g_lo - g_hi)
+                r = (1.0 - self.coverage) - V[iw] - V[iw + 1]       # mass - coverage
+                gl, gu = g1[iw], g1[iw + 1]
+                at = np.where(np.abs(gl) <= np.abs(gu), f[iw], f[iw + 1])
+                nw = -r / at
+                dL = nw / np.clip(1.0 + 0.5 * nw * (gl * gu / (gl - gu)), 0.5, 2.0)
+                out[iw] = dL * (gu / (gl - gu))
+                out[iw + 1] = out[iw] + dL
+            else:
+                # each tail equal to (1 - coverage) / 2: Halley (upper end: 1 - F falls)
+                nw = self._PAIR * (self.tail - V[sl]) / f[sl]
+                out[sl] = nw / (1.0 + 0.5 * nw * g1[sl])
+        if ic is not None:
+            # window [c, c + length]: equal density (HPD) or equal tails; Halley
+            lo, hi = ic, ic + 1
+            if self.hd:
+                out[lo] = out[hi] = _sweep_equal_density_step(am1, bm1, self.length, p[lo])
+                return
+            h = V[lo] - V[hi]          # F(c) - (1 - F(c + length))
+            e1 = f[lo] + f[hi]
+            e2 = f[lo] * g1[lo] + f[hi] * g1[hi]
+            nw = -h / e1
+            step = nw / (1.0 + 0.5 * nw * e2 / e1)
+            if not self.hd:
+                step = np.where(np.abs(h) <= _SWEEP_TAIL_ATOL, 0.0, step)
+                step = np.where(self._small_tails(V[lo], V[hi]),
+                                _sweep_log_tail_step(p[lo], V[lo], V[hi], f[lo], f[hi]), step)
+            out[lo] = step
+            out[hi] = step
+
+    @staticmethod
+    def _small_tails(lower: np.ndarray, upper: np.ndarray) -> np.ndarray:
+        """Both tails positive, one under _SWEEP_SMALL_TAIL and above the tolerance."""
+        return ((lower > 0) & (upper > 0) & (np.minimum(lower, upper) < _SWEEP_SMALL_TAIL)
+                & (lower + upper > _SWEEP_TAIL_ATOL))
+
+    _PAIR = np.array([[1.0], [-1.0]])
+
+    # ---- safeguarded step for the chains the lean step could not finish ----------------
+    def robust(self, old, Vold, guess, am1, bm1, lbeta):
+        """Solve from exact pairs (old, Vold); guess: predicted points."""
+        P, m = old.shape
+        new, Vn = np.empty((P, m)), np.empty((P, m))
+        ones = np.ones(m)
+        if self.iw is not None:
+            sl = slice(self.iw, self.iw + 2)
+            p, V, g = old[sl], Vold[sl], guess[sl]
+            if self.hd:
+                lo, hi, Flo, Shi = _sweep_shortest(p[0], p[1], V[0], V[1], self.coverage,
+                                                   g[1] - g[0], g[0], am1, bm1, lbeta)
+                new[sl], Vn[sl] = np.stack([lo, hi]), np.stack([Flo, Shi])
+            else:
+                sign = np.concatenate([ones, -ones])[None, :]
+                target = np.concatenate([np.full(m, self.tail), np.full(m, -self.tail)])
+                flat = p.ravel()
+                uu, VV = _sweep_root(flat, V.ravel()[None, :], (0.0,), sign, target,
+                                     np.zeros(2 * m), np.ones(2 * m),
+                                     np.clip(g.ravel(), 0.0, 1.0), np.tile(am1, 2),
+                                     np.tile(bm1, 2), np.tile(lbeta, 2))
+                new[sl], Vn[sl] = uu.reshape(2, m), VV.reshape(2, m)
+        if self.ic is not None:
+            sl = slice(self.ic, self.ic + 2)
+            length = float(self.length)
+            c, V, g = old[self.ic], Vold[sl], guess[self.ic]
+            if self.hd:
+                cn = _sweep_window_start(am1, bm1, np.full(m, length),
+                                         np.clip(g, 1e-300, 1 - length))
+                Vs = _sweep_advance(np.concatenate([c, c + length]), V.ravel(),
+                                    np.concatenate([ones, -ones]),
+                                    np.concatenate([cn, cn + length]), np.tile(am1, 2),
+                                    np.tile(bm1, 2), np.tile(lbeta, 2))
+                new[sl], Vn[sl] = np.stack([cn, cn + length]), Vs.reshape(2, m)
+            else:
+                top = np.full(m, 1.0 - length)
+                cn, Vs = _sweep_root(c, V, (0.0, length), np.stack([ones, -ones]),
+                                     np.zeros(m), np.full(m, _SWEEP_FLOOR), top,
+                                     np.clip(g, _SWEEP_FLOOR, top), am1, bm1, lbeta)
+                new[sl], Vn[sl] = np.stack([cn, cn + length]), Vs
+        return new, Vn
+
+    def finish(self, start, Vstart, cand, live, cols, am1, bm1, lb, pred, rows):
+        """Columns ``cols`` (of the block) that the first pass left: more lean passes from
+        the exact pairs reached towards the corrected points, then the safeguarded solver.
+        ``start``, ``Vstart``, ``cand`` hold this sweep's rows only; ``pred`` (all rows) are
+        the block's predictions (the solver's guesses)."""
+        a_, b_, l_ = am1[cols], bm1[cols], lb[cols]
+        new, Vn = cand.copy(), Vstart.copy()
+        done = np.zeros(cols.size, dtype=bool)
+        live = live.copy()
+        for _ in range(_SWEEP_LEAN_PASSES):
+            k = np.flatnonzero(live & ~done)
+            if k.size == 0:
+                break
+            s0 = start[:, k]
+            f0, _, _, l0, _ = _sweep_densities(s0, a_[k], b_[k], l_[k])
+            sub = self.lean(s0, l0, f0, Vstart[:, k], cand[:, k], a_[k], b_[k], l_[k])
+            start[:, k], Vstart[:, k] = sub[0], sub[1]
+            ok = sub[4]
+            new[:, k[ok]], Vn[:, k[ok]] = sub[2][:, ok], sub[3][:, ok]
+            done[k[ok]] = True
+            cand[:, k] = sub[2]
+            live[k] = sub[5]
+        left = np.flatnonzero(~done)
+        if left.size:
+            guess = pred[rows, cols[left]]
+            fine = ((guess > 0) & (guess < 1)).all(axis=0)
+            s0 = start[:, left]
+            new[:, left], Vn[:, left] = self.robust(s0, Vstart[:, left],
+                                                    np.where(fine, guess, s0), a_[left],
+                                                    b_[left], l_[left])
+        return new, Vn
+
+    # ---- all steps -----------------------------------------------------------------------
+    def run(self, a0, b0, nn, xend, x0):
+        """Outcomes x0 + 1 .. xend of each chain (xend decreasing); returns (X, J) arrays of
+        widths and coverages by x."""
+        with np.errstate(divide="ignore", invalid="ignore", over="ignore", under="ignore"):
+            return self._run(a0, b0, nn, xend, x0)
+
+    def _run(self, a0, b0, nn, xend, x0):
+        J = a0.size
+        X = int(xend[0])
+        iw, ic, sign = self.iw, self.ic, self.sign
+        P = sign.shape[0]
+        out_w = np.full((X + _SWEEP_BLOCK + 1, J), np.nan) if iw is not None else None
+        out_c = np.full((X + _SWEEP_BLOCK + 1, J), np.nan) if ic is not None else None
+        x = x0
+        al, be = a0 + x, b0 + nn - x
+        lbeta = _log_beta(al, be)
+        pts = self.seed(al, be)
+        V = np.where(sign > 0, special.betainc(al, be, pts), special.betaincc(al, be, pts))
+        # mean and variance of logit(p) under Beta(al, be): psi(al) - psi(be) and
+        # psi'(al) + psi'(be), carried along x by the recurrences of psi and psi'
+        mlog = special.psi(al) - special.psi(be)
+        vlog = special.polygamma(1, al) + special.polygamma(1, be)
+        lpt, lqt = np.log(pts), np.log1p(-pts)
+        z_hist = [(lpt - lqt - mlog) / np.sqrt(vlog)]
+        neg_end = -xend
+        cov_age = np.zeros(J, dtype=np.int64)   # anchors since a window was last parked
+        while True:
+            # one outcome at a time while the shapes are small (the predictions are poorer
+            # there), then blocks
+            B = 1 if x < _SWEEP_SMALL_X else _SWEEP_BLOCK
+            ks = np.arange(B, dtype=float)[:, None]       # k - 1 for outcomes x + k
+            k1 = ks + 1.0
+            Jn = int(np.searchsorted(neg_end, -(x + 1), side="right"))
+            if Jn < J:
+                J = Jn
+                if J == 0:
+                    break
+                xend = xend[:J]
+                al, be, lbeta, mlog, vlog = al[:J], be[:J], lbeta[:J], mlog[:J], vlog[:J]
+                cov_age = cov_age[:J]
+                pts, V, lpt, lqt = pts[:, :J], V[:, :J], lpt[:, :J], lqt[:, :J]
+                z_hist = [z[:, :J] for z in z_hist]
+            # outcomes x + k, k = 1..B: shapes al + k, be - k
+            ai, bi = al + ks, be - ks
+            am1, bm1 = ai, bi - 2.0
+            lt = lpt * al
+            lt += lqt * (be - 1.0)
+            lt -= np.log(al) + lbeta
+            T0 = np.exp(lt)                                 # T_x at the current ends
+            lb = lbeta + np.cumsum(np.log(ai / (bi - 1.0)), axis=0)   # log B of x + k
+            ia, ib = 1.0 / ai, 1.0 / (bi - 1.0)
+            mk = mlog + np.cumsum(ia + ib, axis=0)
+            vk = vlog + np.cumsum(ib * ib - ia * ia, axis=0)
+            # predicted ends: each end's standard score on the logit scale (nearly normal,
+            # so the score changes slowly along x) extrapolated k steps
+            if len(z_hist) >= 3:
+                zk = (z_hist[0][:, None] * (0.5 * (k1 + 1.0) * (k1 + 2.0))
+                      - z_hist[1][:, None] * (k1 * (k1 + 2.0))
+                      + z_hist[2][:, None] * (0.5 * k1 * (k1 + 1.0)))
+            elif len(z_hist) == 2:
+                zk = z_hist[0][:, None] + (z_hist[0] - z_hist[1])[:, None] * k1
+            else:
+                zk = np.broadcast_to(z_hist[0][:, None], (P, B, J))
+            sd = np.sqrt(vk)
+            ph = special.expit(mk + sd * zk)                  # (P, B, J)
+            if self.hd:
+                # windows of equal density at both ends (the interval at its predicted
+                # length, the window of the target length) solve an equation in the
+                # density alone: Halley from the predicted starts
+                if iw is not None:
+                    width = ph[iw + 1] - ph[iw]
+                    ph[iw] = _sweep_equal_density(am1, bm1, width, ph[iw])
+                    ph[iw + 1] = ph[iw] + width
+            if ic is not None:
+                if self.hd:
+                    ph[ic] = _sweep_equal_density(am1, bm1, self.length, ph[ic])
+                else:
+                    # tails of x + k at the current window (T_{x+i} at its ends by the ratio
+                    # T_{x+i+1} / T_{x+i} = t / (1 - t) * (be - 1 - i) / (al + 1 + i))
+                    c = pts[ic]
+                    Tw = np.empty((2, B, J))
+                    Tw[:, 0] = T0[ic:ic + 2]
+                    for i in range(1, B):
+                        Tw[:, i] = (Tw[:, i - 1] * np.exp(lpt[ic:ic + 2] - lqt[ic:ic + 2])
+                                    * ((bi[i - 1] - 1.0) / (ai[i - 1] + 1.0)))
+                    lower = V[ic] - np.cumsum(Tw[0], axis=0)
+                    upper = V[ic + 1] + np.cumsum(Tw[1], axis=0)
+                    # a window whose two tails are both negligible stays where it is
+                    stuck = lower + upper <= _SWEEP_TAIL_ATOL
+                    # one whose scores are not yet a smooth history (just left that state,
+                    # or new) moves by a Newton step for log F(c) - log(1 - F(c + length))
+                    # in log c from where it is (F ~ c^a / (a B) from a start parked at
+                    # the floor)
+                    young = (cov_age < 3) & ~stuck
+                    if young.any():
+                        dens = Tw * ((bi - 1.0) / (1.0 - pts[ic:ic + 2])[:, None, :])
+                        with np.errstate(all="ignore"):
+                            jump = c * np.exp(-(np.log(lower) - np.log(upper))
+                                              / (c * (dens[0] / lower + dens[1] / upper)))
+                            first = np.exp((np.log(upper) + np.log(am1 + 1.0) + lb)
+                                           / (am1 + 1.0))
+                        jump = np.where((lower > 0) & (c > 2 * _SWEEP_FLOOR), jump, first)
+                        jump = np.clip(np.nan_to_num(jump, nan=c), _SWEEP_FLOOR,
+                                       0.5 * (c + 1.0 - self.length))
+                        ph[ic] = np.where(young, jump, ph[ic])
+                    ph[ic] = np.where(stuck, c, ph[ic])
+                    cov_age = np.where(stuck[B - 1], 0, cov_age + B)
+                ph[ic + 1] = ph[ic] + self.length
+            pred = ph.reshape(P, B * J).copy()
+            ph, Vh, new, Vn, ok, valid = self.block(pts, lpt, lqt, V, T0, ph, am1, bm1, lb,
+                                                    lbeta)
+            # outcomes past a chain's end are not needed
+            ok |= ((x + k1) > xend).ravel()
+            if not ok.all():
+                beyond = ((x + k1) > xend).ravel()
+                rows_ok = self._rows_ok
+                first = ph + self._first          # one Halley step from the exact pairs
+                args = (am1.ravel(), bm1.ravel(), lb.ravel(), pred)
+                for rows, sweep in (self.groups or [(slice(0, P), self)]):
+                    fail = np.flatnonzero(~(rows_ok[rows].all(axis=0) & valid) & ~beyond)
+                    if fail.size:
+                        new[rows, fail], Vn[rows, fail] = sweep.finish(
+                            ph[rows, fail], Vh[rows, fail], first[rows, fail],
+                            valid[fail], fail, *args, rows)
+            new = new.reshape(P, B, J)
+            Vn = Vn.reshape(P, B, J)
+            if out_w is not None:
+                out_w[x + 1:x + B + 1, :J] = (new[iw + 1] - new[iw])
+            if out_c is not None:
+                out_c[x + 1:x + B + 1, :J] = (1.0 - Vn[ic]) - Vn[ic + 1]
+            # the last outcome of the block is the next anchor
+            pts, V = new[:, B - 1], Vn[:, B - 1]
+            lpt, lqt = np.log(pts), np.log1p(-pts)
+            zs = (np.log(new) - np.log1p(-new) - mk) / sd     # (P, B, J)
+            z_hist = ([zs[:, B - 1 - i] for i in range(min(B, 3))] + z_hist)[:3]
+            al, be = al + B, be - B
+            lbeta = _log_beta(al, be)        # afresh at each anchor: no drift
+            mlog, vlog = mk[B - 1], vk[B - 1]
+            x += B
+        return (None if out_w is None else out_w[:X + 1],
+                None if out_c is None else out_c[:X + 1])
+
+
+def _beta_outcomes(n: np.ndarray, prior: tuple[float, float], coverage: float,
+                   length: float | None, interval: str, widths: bool
+                   ) -> tuple[np.ndarray | None, np.ndarray | None]:
+    """Interval width and fixed-length coverage of every posterior Beta(a + x, b + n - x),
+    x = 0..n, for each n (flat, n by n): by continuation along x when there are enough sizes,
+    outcome by outcome otherwise."""
+    n = np.asarray(n, dtype=np.int64)
+    a, b = float(prior[0]), float(prior[1])
+    sizes = n + 1
+    starts = np.concatenate([[0], np.cumsum(sizes)[:-1]])
+    total = int(sizes.sum())
+    hd = interval == "highest_density"
+    width = np.empty(total) if widths else None
+    cover = np.empty(total) if length is not None else None
+    if length is not None and length >= 1:
+        cover[:] = 1.0
+        length = None
+        if not widths:
+            return None, cover
+    symmetric = a == b
+    G = n.size
+    if symmetric:      # x and n - x have mirror-image posteriors: chains up to the middle
+        a0, b0, nn, xend, base, sgn = (np.full(G, a), np.full(G, b), n.astype(float), n // 2,
+                                       starts, np.ones(G, dtype=np.int64))
+    else:
+        a0 = np.concatenate([np.full(G, a), np.full(G, b)])
+        b0 = np.concatenate([np.full(G, b), np.full(G, a)])
+        nn = np.concatenate([n, n]).astype(float)
+        xend = np.concatenate([n // 2, (n - 1) // 2])
+        base = np.concatenate([starts, starts + n])
+        sgn = np.concatenate([np.ones(G, dtype=np.int64), -np.ones(G, dtype=np.int64)])
+    order = np.argsort(-xend, kind="stable")
+    a0, b0, nn, xend, base, sgn = (v[order] for v in (a0, b0, nn, xend, base, sgn))
+    # the chains start where the posterior is unimodal enough for short windows: shapes of
+    # at least 2 (HPD) or 1 (equal-tailed); outcomes before that are solved directly
+    x0 = max(0, math.ceil((2.0 if hd else 1.0) - min(a, b)))
+    if G < _SWEEP_MIN_CHAINS:
+        x0 = int(xend.max())
+    first = np.minimum(xend, x0)
+    x_dir = np.arange(int(first.sum() + first.size)) - np.repeat(
+        np.cumsum(first + 1) - (first + 1), first + 1)
+    chain = np.repeat(np.arange(xend.size), first + 1)
+    al, be = a0[chain] + x_dir, b0[chain] + nn[chain] - x_dir
+    pos = base[chain] + sgn[chain] * x_dir
+    if widths:
+        lo, hi = (beta_shortest_interval if hd else beta_equal_tailed_interval)(
+            al, be, coverage)
+        width[pos] = hi - lo
+    if length is not None:
+        cover[pos] = (beta_best_coverage if hd else beta_equal_tailed_coverage)(al, be, length)
+    J = int(np.count_nonzero(xend > x0))
+    if J:
+        out_w, out_c = _Sweep(hd, coverage, length, widths).run(a0[:J], b0[:J], nn[:J],
+                                                                xend[:J], x0)
+        xx = np.arange(out_w.shape[0] if widths else out_c.shape[0])[:, None]
+        mask = (xx > x0) & (xx <= xend[None, :J])
+        pos = (base[None, :J] + sgn[None, :J] * xx)[mask]
+        if widths:
+            width[pos] = out_w[mask]
+        if length is not None:
+            cover[pos] = out_c[mask]
+    if symmetric:
+        group = np.repeat(np.arange(G), sizes)
+        x = np.arange(total) - starts[group]
+        upper = np.flatnonzero(x > n[group] // 2)
+        mirror = starts[group[upper]] + n[group[upper]] - x[upper]
+        if widths:
+            width[upper] = width[mirror]
+        if length is not None:
+            cover[upper] = cover[mirror]
+    return width, cover
 
 
 # ------------------------------------------------------------------------------------------
 # binomial enumeration
 # ------------------------------------------------------------------------------------------
-def _group_quantile(values: np.ndarray, weights: np.ndarray, group: np.ndarray,
-                    starts: np.ndarray, q: float) -> np.ndarray:
-    """Lower ``q`` quantile of each group's discrete distribution (smallest v with F >= q)."""
-    order = np.lexsort((values, group))
-    cum = np.cumsum(weights[order])
-    base = np.concatenate([[0.0], cum[starts[1:] - 1]])
-    within = cum - base[group[order]]
-    ok = within >= q - 1e-12
-    # last element of each group is always ok (its cumulative weight is 1)
-    ok[np.r_[starts[1:] - 1, values.size - 1]] = True
-    first = np.flatnonzero(ok)
-    grp = group[order][first]
-    keep = np.r_[True, grp[1:] != grp[:-1]]
-    return values[order][first[keep]]
-
-
 def binomial_enumeration(
     n: np.ndarray,
     *,
@@ -451,41 +1454,108 @@ def binomial_enumeration(
         logp = log_choose + special.xlogy(x, design) + special.xlog1py(nn - x, -design)
     weight = np.exp(logp)
     weight /= np.add.reduceat(weight, starts)[group]
-    a_post = prior[0] + x
-    b_post = prior[1] + nn - x
+    width, cov = _beta_outcomes(n, prior, coverage, length, interval, widths)
     out: dict[str, np.ndarray] = {}
-    # data sets ranked most likely first; ties broken longest interval first
-    key = np.round(logp, 9)
-    width = None
     if widths:
-        if interval == "highest_density":
-            lo, hi = beta_shortest_interval(a_post, b_post, coverage)
-        else:
-            lo, hi = beta_equal_tailed_interval(a_post, b_post, coverage)
-        width = hi - lo
         out["width_mean"] = np.add.reduceat(weight * width, starts)
-        out["width_median"] = _group_quantile(width, weight, group, starts, 0.5)
-        out["width_q90"] = _group_quantile(width, weight, group, starts, 0.9)
         out["width_worst"] = np.maximum.reduceat(width, starts)
-    tie = -width if width is not None else np.zeros(group.size)
-    order = np.lexsort((tie, -key, group))
-    cum = np.cumsum(weight[order])
-    base = np.concatenate([[0.0], cum[starts[1:] - 1]])
-    before = cum - weight[order] - base[group[order]]
-    kept = before < likely_share - 1e-12
-    if width is not None:
-        w_sorted = np.where(kept, width[order], -np.inf)
-        out["width_worst_likely"] = np.maximum.reduceat(w_sorted, starts)
     if length is not None:
-        if interval == "highest_density":
-            cov = beta_best_coverage(a_post, b_post, length)
-        else:
-            cov = beta_equal_tailed_coverage(a_post, b_post, length)
-        out["coverage_mean"] = np.add.reduceat(weight * cov, starts)
+        out["coverage_mean"] = np.minimum(np.add.reduceat(weight * cov, starts), 1.0)
         out["coverage_worst"] = np.minimum.reduceat(cov, starts)
-        c_sorted = np.where(kept, cov[order], np.inf)
-        out["coverage_worst_likely"] = np.minimum.reduceat(c_sorted, starts)
+    names = (["width_median", "width_q90"] if widths else []) + (
+        ["width_worst_likely"] if widths else []) + (
+        ["coverage_worst_likely"] if length is not None else [])
+    for name in names:
+        out[name] = np.empty(n.size)
+    for rows in _size_chunks(sizes):
+        _ranked_summaries(out, rows, sizes, starts, weight, logp, width, cov, likely_share)
     return out
+
+
+#: a chunk of sizes is laid out as a table padded to its largest size when that at most
+#: doubles its cells, and of at most this many cells (it stays in the processor's cache)
+_PAD_RATIO = 2.0
+_CHUNK_CELLS = 1 << 16
+
+
+def _size_chunks(sizes: np.ndarray) -> list[np.ndarray]:
+    """Consecutive groups of sizes (outcomes per n) whose padded table stays small."""
+    chunks, first, cells, top = [], 0, 0, 1
+    for i, m in enumerate(sizes):
+        top_i = max(top, int(m))
+        rows = i + 1 - first
+        if i > first and (top_i * rows > _PAD_RATIO * (cells + m)
+                          or top_i * rows > _CHUNK_CELLS):
+            chunks.append(np.arange(first, i))
+            first, cells, top_i = i, 0, max(int(m), 1)
+        cells += int(m)
+        top = top_i
+    chunks.append(np.arange(first, len(sizes)))
+    return chunks
+
+
+def _ranked_summaries(out: dict, rows: np.ndarray, sizes: np.ndarray, starts: np.ndarray,
+                      weight: np.ndarray, logp: np.ndarray, width: np.ndarray | None,
+                      cov: np.ndarray | None, likely_share: float) -> None:
+    """Weighted width quantiles and the worst outcome over the most likely data sets, for
+    the groups ``rows``, on a table padded to the chunk's largest size.
+
+    Quantiles: the smallest width whose cumulative probability reaches q (widths sorted
+    within each n). Most likely data sets: ranked by prior predictive probability (log
+    probabilities equal to 1e-9 count as equal), equally likely ones longest interval
+    first; an outcome counts while the probability of those before it is below
+    ``likely_share``. Both are single sorts of one key per cell along the table's rows:
+    the ranking key packs the rounded log probability (40 bits, down to log 1e-304:
+    anything less likely is never among the most likely) above the width's rank (21 bits);
+    where every outcome of an n is equally likely the ranking is the widths' order
+    reversed. Outcomes of exactly equal probability and width are taken in any order."""
+    m = int(sizes[rows].max())
+    k = rows.size
+    cnt = sizes[rows]
+    col = np.arange(m)
+    real = col[None, :] < cnt[:, None]
+    idx = np.where(real, starts[rows][:, None] + col[None, :], 0)
+    shift = (np.arange(k) * m)[:, None]
+
+    def gather(table: np.ndarray, order: np.ndarray) -> np.ndarray:
+        return table.ravel()[order + shift]
+
+    w2 = np.where(real, weight[idx], 0.0)
+    key = np.rint(np.maximum(np.where(real, logp[idx], 0.0), -700.0) * 1e9).astype(np.int64)
+    same = (np.where(real, key, key[:, :1]) == key[:, :1]).all()
+    tie = np.where(real, col[None, :], 0)                # outcome index (no widths)
+    if width is not None:
+        v2 = np.where(real, width[idx], np.inf)
+        order = np.argsort(v2, axis=1)
+        sw = gather(v2, order)
+        cum = np.cumsum(gather(w2, order), axis=1)
+        last = cnt - 1
+        for name, q in (("width_median", 0.5), ("width_q90", 0.9)):
+            reached = cum >= q - 1e-12
+            at = np.where(reached.any(axis=1), np.argmax(reached, axis=1), last)
+            out[name][rows] = sw[np.arange(k), np.minimum(at, last)]
+        if same:
+            # equally likely outcomes: longest interval first, i.e. the widths' order
+            # reversed within each row's real cells
+            rev = (cnt[:, None] - 1 - col[None, :]) % m
+            ranked = np.take_along_axis(order, rev, axis=1)
+        else:
+            rank = np.empty((k, m), dtype=np.int64)
+            np.put_along_axis(rank, order, np.broadcast_to(col, (k, m)), axis=1)
+            tie = (cnt[:, None] - 1) - rank               # longest interval first
+    if width is None or not same:
+        packed = np.where(real, (-key << 21) + tie, np.iinfo(np.int64).max)
+        ranked = np.argsort(packed, axis=1)
+    ws = gather(w2, ranked)
+    before = np.cumsum(ws, axis=1) - ws
+    kept = (before < likely_share - 1e-12) & gather(real, ranked)
+    if width is not None:
+        out["width_worst_likely"][rows] = np.max(np.where(kept, gather(v2, ranked), -np.inf),
+                                                 axis=1)
+    if cov is not None:
+        c2 = np.where(real, cov[idx], np.inf)
+        out["coverage_worst_likely"][rows] = np.min(
+            np.where(kept, gather(c2, ranked), np.inf), axis=1)
 
 
 # ------------------------------------------------------------------------------------------
