@@ -448,11 +448,15 @@ _SWEEP_MAX_DIGITS = 14.0
 
 
 def _sweep_k_table() -> np.ndarray:
-    """Index into _SWEEP_K (or -1: none) by roughness bin and digits wanted (0..15)."""
+    """Index into _SWEEP_K (or -1: none) by roughness bin and digits wanted (0..15); a last
+    row for roughness beyond the table; no digits wanted: the coarsest rule."""
     digits = np.arange(16)
     need = -np.minimum(digits, _SWEEP_MAX_DIGITS)[None, :, None]
     fits = _SWEEP_LOG_ERR.T[:, None, :] <= need        # (R bin, digits, rule)
-    return np.where(fits.any(axis=2), fits.argmax(axis=2), -1)
+    table = np.where(fits.any(axis=2), fits.argmax(axis=2), -1)
+    table = np.vstack([table, np.full((1, digits.size), -1)])
+    table[:, 0] = 0
+    return table
 
 
 _SWEEP_K_OF = _sweep_k_table()
@@ -512,15 +516,22 @@ def _log_beta(a: np.ndarray, b: np.ndarray) -> np.ndarray:
     a, b = np.broadcast_arrays(np.asarray(a, dtype=float), np.asarray(b, dtype=float))
     p, q = np.minimum(a, b), np.maximum(a, b)
     s = p + q
+    big_q = q >= 10.0
+    big_p = p >= 10.0
     with np.errstate(divide="ignore", invalid="ignore"):
+        # both branches share the Stirling terms of q and p + q
+        shared = (q - 0.5) * np.log1p(-p / s) + _stirling_rest(np.maximum(q, 10.0)) \
+            - _stirling_rest(np.maximum(s, 10.0))
+        if big_p.all():
+            return (0.5 * math.log(2 * math.pi) - 0.5 * np.log(s) + (p - 0.5) * np.log(p / s)
+                    + _stirling_rest(p) + shared)
         both = (0.5 * math.log(2 * math.pi) - 0.5 * np.log(s) + (p - 0.5) * np.log(p / s)
-                + (q - 0.5) * np.log1p(-p / s)
-                + _stirling_rest(np.maximum(p, 10.0)) + _stirling_rest(np.maximum(q, 10.0))
-                - _stirling_rest(np.maximum(s, 10.0)))
-        one = (special.gammaln(p) + (q - 0.5) * np.log1p(-p / s) - p * np.log(s) + p
-               + _stirling_rest(np.maximum(q, 10.0)) - _stirling_rest(np.maximum(s, 10.0)))
-    small = special.gammaln(p) + special.gammaln(q) - special.gammaln(s)
-    return np.where(p >= 10.0, both, np.where(q >= 10.0, one, small))
+                + _stirling_rest(np.maximum(p, 10.0)) + shared)
+        one = special.gammaln(p) - p * np.log(s) + p + shared
+    out = np.where(big_p, both, one)
+    if not big_q.all():
+        out = np.where(big_q, out, special.gammaln(p) + special.gammaln(q) - special.gammaln(s))
+    return out
 
 
 def _sweep_densities(p: np.ndarray, am1: np.ndarray, bm1: np.ndarray, lbeta: np.ndarray):
@@ -558,13 +569,14 @@ def _sweep_rule_index(r: np.ndarray, bound: np.ndarray, monotone: np.ndarray) ->
     the integrand f(t) t: the window's probability is at most ``bound`` where the integrand
     is ``monotone`` over it, ``bound * exp(r)`` elsewhere; the digits wanted are those that
     keep its error under _SWEEP_ATOL (none for a negligible window)."""
-    di = np.log10(np.maximum(bound, 1e-300) * (1.0 / _SWEEP_ATOL))
-    di += np.where(monotone, 0.0, r * (1.0 / math.log(10.0)))
-    di = np.clip(np.ceil(np.nan_to_num(di, nan=15.0, posinf=15.0)), 0, 15).astype(np.intp)
-    rbin = np.searchsorted(_SWEEP_R, r)
-    k = _SWEEP_K_OF[np.minimum(rbin, _SWEEP_R.size - 1), di]
-    k = np.where(rbin < _SWEEP_R.size, k, -1)
-    return np.where(di == 0, 0, k)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        di = np.log10(bound)
+        di += np.where(monotone, -math.log10(_SWEEP_ATOL),
+                       r * (1.0 / math.log(10.0)) - math.log10(_SWEEP_ATOL))
+    # fmax: a nan bound (an unusable window) asks for every digit
+    di = np.minimum(np.fmax(np.ceil(di), 0.0), 15.0, where=np.isfinite(di) | (di < 0),
+                    out=np.full(di.shape, 15.0)).astype(np.intp)
+    return _SWEEP_K_OF[np.searchsorted(_SWEEP_R, r), di]
 
 
 def _sweep_window_rules(p0, p1, am1, bm1, lbeta):
@@ -593,6 +605,13 @@ def _sweep_log_scale(p0, p1, s0, s1, bm1):
     return np.maximum(scale, -2.0 / np.log(hi))
 
 
+def _sweep_fast_scale(p0, p1, s0, s1, bm1):
+    """:func:`_sweep_log_scale` without the distance to t = 1, which the curvature term
+    bounds for the chains' shapes (b - 1 >= 4 at every outcome followed)."""
+    hi = np.maximum(p0, p1)
+    return np.maximum(np.maximum(np.abs(s0), np.abs(s1)), np.sqrt(bm1 * hi) / (1.0 - hi))
+
+
 def _sweep_gl(p0: np.ndarray, p1: np.ndarray, am1: np.ndarray, bm1: np.ndarray,
               lbeta: np.ndarray, k: int) -> np.ndarray:
     """Probability of the windows [p0, p1] (signed) by the k-point rule in u = log t,
@@ -601,16 +620,18 @@ def _sweep_gl(p0: np.ndarray, p1: np.ndarray, am1: np.ndarray, bm1: np.ndarray,
     x, w = _SWEEP_RULES[k]
     u0 = np.log(p0)
     h = _sweep_log_ratio(p0, p1)           # the window's length in u
-    u = u0[..., None] + h[..., None] * x
+    # nodes along the first axis, so that every operation runs over the long last axis
+    u = np.multiply.outer(x, h)
+    u += u0
     lf = np.exp(u)
     np.negative(lf, out=lf)
     np.log1p(lf, out=lf)
-    lf *= bm1[:, None]
-    u *= (am1 + 1.0)[:, None]
+    lf *= bm1
+    u *= am1 + 1.0
     lf += u
-    lf -= lbeta[:, None]
+    lf -= lbeta
     np.exp(lf, out=lf)
-    return (lf @ w) * h
+    return (w @ lf.reshape(k, -1)).reshape(h.shape) * h
 
 
 def _sweep_windows(p0: np.ndarray, p1: np.ndarray, am1: np.ndarray, bm1: np.ndarray,
@@ -686,11 +707,12 @@ def _sweep_equal_density_step(am1: np.ndarray, bm1: np.ndarray, length: Any,
     return c * np.expm1(nw / (1.0 + 0.5 * nw * h2 / h1))
 
 
-def _sweep_equal_density(am1: np.ndarray, bm1: np.ndarray, length: Any, c: np.ndarray
-                         ) -> np.ndarray:
-    """Start of the window [c, c + length] with equal density at both ends, by three
-    Halley steps in log c from a guess (steps leaving (0, 1 - length) are not taken)."""
-    for _ in range(3):
+def _sweep_equal_density(am1: np.ndarray, bm1: np.ndarray, length: Any, c: np.ndarray,
+                         steps: int = 3) -> np.ndarray:
+    """Start of the window [c, c + length] with equal density at both ends, by Halley
+    steps in log c from a guess (steps leaving (0, 1 - length) are not taken; the
+    corrections that follow check the result)."""
+    for _ in range(steps):
         new = c + _sweep_equal_density_step(am1, bm1, length, c)
         c = np.where(np.isfinite(new) & (new > 0) & (new + length < 1.0), new, c)
     return c
@@ -946,7 +968,7 @@ class _Sweep:
         su += 1.0
         s_old = A - Bm * o / (1.0 - o) + 1.0
         move = np.abs(lp - lo)
-        r = np.abs(_sweep_log_ratio(o, ph)) * _sweep_log_scale(o, ph, s_old, su, Bm)
+        r = move * _sweep_fast_scale(o, ph, s_old, su, Bm)
         kidx = _sweep_rule_index(r, move * np.maximum(f * ph, fold * o), s_old * su > 0)
         rough = kidx < 0
         C = B * J
@@ -1012,7 +1034,7 @@ class _Sweep:
         su += 1.0
         s_old = am1 - bm1 * old / (1.0 - old) + 1.0
         move = np.abs(lp - lold)
-        r = np.abs(_sweep_log_ratio(old, ph)) * _sweep_log_scale(old, ph, s_old, su, bm1)
+        r = move * _sweep_fast_scale(old, ph, s_old, su, bm1)
         kidx = _sweep_rule_index(r, move * np.maximum(f * ph, fold * old), s_old * su > 0)
         rough = kidx < 0
         Vh = Vold + sign * _sweep_windows(old, ph, am1, bm1, lbeta, np.maximum(kidx, 0))
@@ -1059,12 +1081,15 @@ class _Sweep:
                 # C' = f (the common density at the ends of the equal-density window) and
                 # C'' / C' = g_lo g_hi / (g_lo - g_hi); Halley on L, the start following at
                 # rate g_hi / (g_lo - g_hi)
+                # (plus a shift of the window at its length towards equal densities, Newton
+                # on the log densities' gap, which leaves the mass unchanged to first order)
                 r = (1.0 - self.coverage) - V[iw] - V[iw + 1]       # mass - coverage
                 gl, gu = g1[iw], g1[iw + 1]
                 at = np.where(np.abs(gl) <= np.abs(gu), f[iw], f[iw + 1])
                 nw = -r / at
                 dL = nw / np.clip(1.0 + 0.5 * nw * (gl * gu / (gl - gu)), 0.5, 2.0)
-                out[iw] = dL * (gu / (gl - gu))
+                gap = am1 * (lp[iw] - lp[iw + 1]) + bm1 * (lq[iw] - lq[iw + 1])
+                out[iw] = dL * (gu / (gl - gu)) - gap / (gl - gu)
                 out[iw + 1] = out[iw] + dL
             else:
                 # each tail equal to (1 - coverage) / 2: Halley (upper end: 1 - F falls)
@@ -1240,13 +1265,14 @@ class _Sweep:
                 # windows of equal density at both ends (the interval at its predicted
                 # length, the window of the target length) solve an equation in the
                 # density alone: Halley from the predicted starts
+                # (one step from the close predictions: the corrections check and finish)
                 if iw is not None:
                     width = ph[iw + 1] - ph[iw]
-                    ph[iw] = _sweep_equal_density(am1, bm1, width, ph[iw])
+                    ph[iw] = _sweep_equal_density(am1, bm1, width, ph[iw], 1)
                     ph[iw + 1] = ph[iw] + width
             if ic is not None:
                 if self.hd:
-                    ph[ic] = _sweep_equal_density(am1, bm1, self.length, ph[ic])
+                    ph[ic] = _sweep_equal_density(am1, bm1, self.length, ph[ic], 1)
                 else:
                     # tails of x + k at the current window (T_{x+i} at its ends by the ratio
                     # T_{x+i+1} / T_{x+i} = t / (1 - t) * (be - 1 - i) / (al + 1 + i))
@@ -1357,33 +1383,33 @@ def _beta_outcomes(n: np.ndarray, prior: tuple[float, float], coverage: float,
         np.cumsum(first + 1) - (first + 1), first + 1)
     chain = np.repeat(np.arange(xend.size), first + 1)
     al, be = a0[chain] + x_dir, b0[chain] + nn[chain] - x_dir
-    pos = base[chain] + sgn[chain] * x_dir
+
+    def store(pos, mirror, w, c):
+        # at x, and (symmetric prior) at n - x, whose posterior is the mirror image
+        for at in (pos, mirror) if symmetric else (pos,):
+            if widths:
+                width[at] = w
+            if length is not None:
+                cover[at] = c
+
+    w = c = None
     if widths:
         lo, hi = (beta_shortest_interval if hd else beta_equal_tailed_interval)(
             al, be, coverage)
-        width[pos] = hi - lo
+        w = hi - lo
     if length is not None:
-        cover[pos] = (beta_best_coverage if hd else beta_equal_tailed_coverage)(al, be, length)
+        c = (beta_best_coverage if hd else beta_equal_tailed_coverage)(al, be, length)
+    pos = base[chain] + sgn[chain] * x_dir
+    store(pos, pos + (nn[chain].astype(np.int64) - 2 * x_dir), w, c)
     J = int(np.count_nonzero(xend > x0))
     if J:
         out_w, out_c = _Sweep(hd, coverage, length, widths).run(a0[:J], b0[:J], nn[:J],
                                                                 xend[:J], x0)
         xx = np.arange(out_w.shape[0] if widths else out_c.shape[0])[:, None]
         mask = (xx > x0) & (xx <= xend[None, :J])
-        pos = (base[None, :J] + sgn[None, :J] * xx)[mask]
-        if widths:
-            width[pos] = out_w[mask]
-        if length is not None:
-            cover[pos] = out_c[mask]
-    if symmetric:
-        group = np.repeat(np.arange(G), sizes)
-        x = np.arange(total) - starts[group]
-        upper = np.flatnonzero(x > n[group] // 2)
-        mirror = starts[group[upper]] + n[group[upper]] - x[upper]
-        if widths:
-            width[upper] = width[mirror]
-        if length is not None:
-            cover[upper] = cover[mirror]
+        pos = (base[None, :J] + sgn[None, :J] * xx)
+        store(pos[mask], (pos + (nn[None, :J].astype(np.int64) - 2 * xx))[mask],
+              out_w[mask] if widths else None, out_c[mask] if length is not None else None)
     return width, cover
 
 
@@ -1445,11 +1471,16 @@ def binomial_enumeration(
     starts = np.concatenate([[0], np.cumsum(sizes)[:-1]])
     x = np.arange(group.size) - starts[group]
     nn = n[group]
-    # prior predictive probability of each outcome
-    log_choose = special.gammaln(nn + 1) - special.gammaln(x + 1) - special.gammaln(nn - x + 1)
+    # prior predictive probability of each outcome, from tables of log-gamma values at
+    # whole steps (every term is a log-gamma of a shape plus a whole number)
+    k = np.arange(int(n.max()) + 1)
+    log_fact = special.gammaln(k + 1.0)
+    log_choose = log_fact[nn] - log_fact[x] - log_fact[nn - x]
     if isinstance(design, tuple):
         da, db = design
-        logp = log_choose + special.betaln(x + da, nn - x + db) - special.betaln(da, db)
+        lg_a, lg_b = special.gammaln(k + da), special.gammaln(k + db)
+        logp = (log_choose + lg_a[x] + lg_b[nn - x]
+                - (special.gammaln(n + da + db) + special.betaln(da, db))[group])
     else:
         logp = log_choose + special.xlogy(x, design) + special.xlog1py(nn - x, -design)
     weight = np.exp(logp)
