@@ -18,6 +18,7 @@ Everything here works on plain numbers and numpy arrays; the public layer
 
 from __future__ import annotations
 
+import functools
 import math
 import warnings
 from dataclasses import dataclass
@@ -483,6 +484,7 @@ _SWEEP_SMALL_X = 24
 _SWEEP_LEAN_PASSES = 3
 #: below this tail probability an equal-tailed window's start moves by Newton in logs
 _SWEEP_SMALL_TAIL = 1e-4
+_SWEEP_JUMP_TAIL = 1e-8
 #: sizes per call below which the outcomes are computed one by one (few long chains are
 #: slower to advance than to solve directly)
 _SWEEP_MIN_CHAINS = 24
@@ -785,6 +787,8 @@ def _sweep_root(u: np.ndarray, V: np.ndarray, offsets: tuple[float, ...], sign: 
             # even where the bracket, set from tails rounded elsewhere, disagrees by a hair)
             tiny = np.isfinite(d) & (np.abs(d) * np.max(_sweep_scale(pts, g1, g2), axis=0)
                                      <= _SWEEP_HALLEY_OK)
+            if m == 2:
+                tiny &= ~_Sweep._far_apart(_Sweep._small_tails(VV[0], VV[1]), VV[0], VV[1])
             bad = (~np.isfinite(new) | (new <= la) | (new >= ha)
                    | (np.abs(phi) > 0.5 * last[act])) & ~tiny
             last[act] = np.where(bad, np.inf, np.abs(phi))
@@ -883,6 +887,23 @@ def _sweep_shortest(lo_p: np.ndarray, hi_p: np.ndarray, F_lo: np.ndarray, S_hi: 
     else:  # pragma: no cover - the bracket guarantees convergence
         raise RuntimeError("beta continuation: shortest interval did not converge")
     return lo_p, hi_p, F_lo, S_hi
+
+
+_SWEEP_HISTORY = 4
+
+
+@functools.lru_cache(maxsize=None)
+def _sweep_extrapolation(m: int, B: int) -> np.ndarray:
+    """Weights (m, B) taking values at x, x - 1, .., x - m + 1 to the polynomial through
+    them at x + 1 .. x + B."""
+    t = -np.arange(m, dtype=float)
+    k = np.arange(1, B + 1, dtype=float)
+    w = np.ones((m, B))
+    for j in range(m):
+        for i in range(m):
+            if i != j:
+                w[j] *= (k - t[i]) / (t[j] - t[i])
+    return w
 
 
 class _Sweep:
@@ -1051,9 +1072,12 @@ class _Sweep:
         sign = self.sign
         sc = np.maximum(np.maximum(np.abs(g1), np.sqrt(-g2)), 2.0 / np.minimum(ph, 1.0 - ph))
         d = np.empty(ph.shape)
+        self._wild = None
         self._step(d, ph, Vh, f, g1, g2, lp, lq, am1, bm1)
         s1 = np.abs(d) * sc
         rows_ok = s1 <= _SWEEP_TAYLOR_OK
+        if self._wild is not None:
+            rows_ok[self.ic:self.ic + 2] &= ~self._wild
         self._first = d.copy()
         # a second step (tails from the Taylor polynomials) for the groups of rows where the
         # first was not already small enough to leave an error below rounding
@@ -1108,10 +1132,20 @@ class _Sweep:
             step = nw / (1.0 + 0.5 * nw * e2 / e1)
             if not self.hd:
                 step = np.where(np.abs(h) <= _SWEEP_TAIL_ATOL, 0.0, step)
-                step = np.where(self._small_tails(V[lo], V[hi]),
-                                _sweep_log_tail_step(p[lo], V[lo], V[hi], f[lo], f[hi]), step)
+                small = self._small_tails(V[lo], V[hi])
+                step = np.where(small, _sweep_log_tail_step(p[lo], V[lo], V[hi], f[lo], f[hi]),
+                                step)
+                self._wild = self._far_apart(small, V[lo], V[hi])
             out[lo] = step
             out[hi] = step
+
+    @staticmethod
+    def _far_apart(small: np.ndarray, lower: np.ndarray, upper: np.ndarray) -> np.ndarray:
+        """Small tails more than a factor e apart: too far from the root for a step there
+        to be trusted as the last (a tail far below the others' rounding has no relative
+        precision, and a step from it can be tiny while the window is wrong)."""
+        with np.errstate(divide="ignore", invalid="ignore"):
+            return small & ~(np.abs(np.log(lower) - np.log(upper)) <= 1.0)
 
     @staticmethod
     def _small_tails(lower: np.ndarray, upper: np.ndarray) -> np.ndarray:
@@ -1214,6 +1248,10 @@ class _Sweep:
         lbeta = _log_beta(al, be)
         pts = self.seed(al, be)
         V = np.where(sign > 0, special.betainc(al, be, pts), special.betaincc(al, be, pts))
+        if out_w is not None:
+            out_w[x] = pts[iw + 1] - pts[iw]
+        if out_c is not None:
+            out_c[x] = (1.0 - V[ic]) - V[ic + 1]
         # mean and variance of logit(p) under Beta(al, be): psi(al) - psi(be) and
         # psi'(al) + psi'(be), carried along x by the recurrences of psi and psi'
         mlog = special.psi(al) - special.psi(be)
@@ -1251,14 +1289,8 @@ class _Sweep:
             vk = vlog + np.cumsum(ib * ib - ia * ia, axis=0)
             # predicted ends: each end's standard score on the logit scale (nearly normal,
             # so the score changes slowly along x) extrapolated k steps
-            if len(z_hist) >= 3:
-                zk = (z_hist[0][:, None] * (0.5 * (k1 + 1.0) * (k1 + 2.0))
-                      - z_hist[1][:, None] * (k1 * (k1 + 2.0))
-                      + z_hist[2][:, None] * (0.5 * k1 * (k1 + 1.0)))
-            elif len(z_hist) == 2:
-                zk = z_hist[0][:, None] + (z_hist[0] - z_hist[1])[:, None] * k1
-            else:
-                zk = np.broadcast_to(z_hist[0][:, None], (P, B, J))
+            zk = sum(w[:, None] * z[:, None, :]
+                     for w, z in zip(_sweep_extrapolation(len(z_hist), B), z_hist))
             sd = np.sqrt(vk)
             ph = special.expit(mk + sd * zk)                  # (P, B, J)
             if self.hd:
@@ -1286,22 +1318,37 @@ class _Sweep:
                     upper = V[ic + 1] + np.cumsum(Tw[1], axis=0)
                     # a window whose two tails are both negligible stays where it is
                     stuck = lower + upper <= _SWEEP_TAIL_ATOL
-                    # one whose scores are not yet a smooth history (just left that state,
-                    # or new) moves by a Newton step for log F(c) - log(1 - F(c + length))
-                    # in log c from where it is (F ~ c^a / (a B) from a start parked at
-                    # the floor)
+                    # where the tails are small the start's standard score extrapolates
+                    # poorly: a Halley step for psi = log F(c) - log(1 - F(c + length)) in
+                    # log c from the current start, with the tails of x + k there; also
+                    # where the scores are not yet a smooth history (a window just leaving
+                    # the parked state, from the floor: F ~ c^a / (a B))
                     young = (cov_age < 3) & ~stuck
-                    if young.any():
-                        dens = Tw * ((bi - 1.0) / (1.0 - pts[ic:ic + 2])[:, None, :])
+                    small = ~stuck & (np.minimum(lower, upper) < _SWEEP_JUMP_TAIL)
+                    move = young | small
+                    if move.any():
                         with np.errstate(all="ignore"):
-                            jump = c * np.exp(-(np.log(lower) - np.log(upper))
-                                              / (c * (dens[0] / lower + dens[1] / upper)))
+                            u = pts[ic:ic + 2]
+                            dens = Tw * ((bi - 1.0) / (1.0 - u)[:, None, :])
+                            cl = c * dens[0] / lower                    # d log F / d log c
+                            cu = c * dens[1] / upper                    # -d log S / d log c
+                            slope_lo = am1 / c - bm1 / (1.0 - c)        # log-density slopes
+                            slope_hi = am1 / u[1] - bm1 / (1.0 - u[1])
+                            psi = np.log(lower) - np.log(upper)
+                            p1 = cl + cu
+                            p2 = (cl * (1.0 + c * slope_lo) - cl * cl
+                                  + cu * (1.0 + c * slope_hi) + cu * cu)
+                            nw = -psi / p1
+                            jump = c * np.exp(nw / (1.0 + 0.5 * nw * p2 / p1))
                             first = np.exp((np.log(upper) + np.log(am1 + 1.0) + lb)
                                            / (am1 + 1.0))
-                        jump = np.where((lower > 0) & (c > 2 * _SWEEP_FLOOR), jump, first)
+                        # (a tail that cancelled to nothing or less keeps the prediction)
+                        parked = c <= 2 * _SWEEP_FLOOR
+                        jump = np.where(parked, first, jump)
+                        move &= parked | ((lower > 0) & (upper > 0))
                         jump = np.clip(np.nan_to_num(jump, nan=c), _SWEEP_FLOOR,
                                        0.5 * (c + 1.0 - self.length))
-                        ph[ic] = np.where(young, jump, ph[ic])
+                        ph[ic] = np.where(move, jump, ph[ic])
                     ph[ic] = np.where(stuck, c, ph[ic])
                     cov_age = np.where(stuck[B - 1], 0, cov_age + B)
                 ph[ic + 1] = ph[ic] + self.length
@@ -1331,7 +1378,8 @@ class _Sweep:
             pts, V = new[:, B - 1], Vn[:, B - 1]
             lpt, lqt = np.log(pts), np.log1p(-pts)
             zs = (np.log(new) - np.log1p(-new) - mk) / sd     # (P, B, J)
-            z_hist = ([zs[:, B - 1 - i] for i in range(min(B, 3))] + z_hist)[:3]
+            z_hist = ([zs[:, B - 1 - i] for i in range(min(B, _SWEEP_HISTORY))]
+                      + z_hist)[:_SWEEP_HISTORY]
             al, be = al + B, be - B
             lbeta = _log_beta(al, be)        # afresh at each anchor: no drift
             mlog, vlog = mk[B - 1], vk[B - 1]
@@ -1378,7 +1426,8 @@ def _beta_outcomes(n: np.ndarray, prior: tuple[float, float], coverage: float,
     x0 = max(0, math.ceil((2.0 if hd else 1.0) - min(a, b)))
     if G < _SWEEP_MIN_CHAINS:
         x0 = int(xend.max())
-    first = np.minimum(xend, x0)
+    # (a continuing chain's outcome x0 is its anchor, solved by the sweep's seed)
+    first = np.where(xend > x0, x0 - 1, xend)
     x_dir = np.arange(int(first.sum() + first.size)) - np.repeat(
         np.cumsum(first + 1) - (first + 1), first + 1)
     chain = np.repeat(np.arange(xend.size), first + 1)
@@ -1406,7 +1455,7 @@ def _beta_outcomes(n: np.ndarray, prior: tuple[float, float], coverage: float,
         out_w, out_c = _Sweep(hd, coverage, length, widths).run(a0[:J], b0[:J], nn[:J],
                                                                 xend[:J], x0)
         xx = np.arange(out_w.shape[0] if widths else out_c.shape[0])[:, None]
-        mask = (xx > x0) & (xx <= xend[None, :J])
+        mask = (xx >= x0) & (xx <= xend[None, :J])
         pos = (base[None, :J] + sgn[None, :J] * xx)
         store(pos[mask], (pos + (nn[None, :J].astype(np.int64) - 2 * xx))[mask],
               out_w[mask] if widths else None, out_c[mask] if length is not None else None)
