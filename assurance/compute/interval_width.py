@@ -570,11 +570,14 @@ def _sweep_rule_index(r: np.ndarray, bound: np.ndarray, monotone: np.ndarray) ->
     log integrand there), ``bound`` the window's length in u times the larger end value of
     the integrand f(t) t: the window's probability is at most ``bound`` where the integrand
     is ``monotone`` over it, ``bound * exp(r)`` elsewhere; the digits wanted are those that
-    keep its error under _SWEEP_ATOL (none for a negligible window)."""
+    keep its error under _SWEEP_ATOL (none for a negligible window). A window over which the
+    integrand turns and whose end values underflowed to 0 (it may hold all the mass) asks
+    for every digit."""
     with np.errstate(divide="ignore", invalid="ignore"):
         di = np.log10(bound)
         di += np.where(monotone, -math.log10(_SWEEP_ATOL),
                        r * (1.0 / math.log(10.0)) - math.log10(_SWEEP_ATOL))
+        di[~(monotone | (bound > 0))] = np.nan
     # fmax: a nan bound (an unusable window) asks for every digit
     di = np.minimum(np.fmax(np.ceil(di), 0.0), 15.0, where=np.isfinite(di) | (di < 0),
                     out=np.full(di.shape, 15.0)).astype(np.intp)
@@ -892,7 +895,7 @@ def _sweep_shortest(lo_p: np.ndarray, hi_p: np.ndarray, F_lo: np.ndarray, S_hi: 
 _SWEEP_HISTORY = 4
 
 
-@functools.lru_cache(maxsize=None)
+@functools.cache
 def _sweep_extrapolation(m: int, B: int) -> np.ndarray:
     """Weights (m, B) taking values at x, x - 1, .., x - m + 1 to the polynomial through
     them at x + 1 .. x + B."""
@@ -1288,9 +1291,10 @@ class _Sweep:
             mk = mlog + np.cumsum(ia + ib, axis=0)
             vk = vlog + np.cumsum(ib * ib - ia * ia, axis=0)
             # predicted ends: each end's standard score on the logit scale (nearly normal,
-            # so the score changes slowly along x) extrapolated k steps
-            zk = sum(w[:, None] * z[:, None, :]
-                     for w, z in zip(_sweep_extrapolation(len(z_hist), B), z_hist))
+            # so the score changes slowly along x) extrapolated k steps by the polynomial
+            # through its last values
+            zk = sum(w[:, None] * z[:, None, :] for w, z in
+                     zip(_sweep_extrapolation(len(z_hist), B), z_hist, strict=True))
             sd = np.sqrt(vk)
             ph = special.expit(mk + sd * zk)                  # (P, B, J)
             if self.hd:
