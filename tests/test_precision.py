@@ -35,6 +35,7 @@ from hypothesis import strategies as st
 from scipy import integrate, optimize, stats
 
 from assurance import AssuranceInputError, Normal, PointMass
+from assurance.compute.interval_width import _beta_outcomes, beta_equal_tailed_coverage
 from assurance.precision import (
     BetaPrior,
     HazardRatio,
@@ -80,17 +81,63 @@ def ref_best_coverage(a: float, b: float, length: float) -> float:
 
 
 def ref_equal_tailed_coverage(a: float, b: float, length: float) -> float:
+    """Window [c, c + length] with equal tails: Brent's method on log c (the start of a
+    J-shaped posterior's window can be far below any absolute tolerance, e.g. 9e-19 for
+    beta(0.3, 80) and length 0.1)."""
     d = stats.beta(a, b)
-    c = optimize.brentq(lambda t: d.cdf(t) - d.sf(t + length), 0.0, 1.0 - length, xtol=1e-15)
+
+    def gap(u: float) -> float:
+        return d.cdf(math.exp(u)) - d.sf(math.exp(u) + length)
+
+    if gap(-740.0) >= 0:
+        c = 0.0
+    else:
+        c = math.exp(optimize.brentq(gap, -740.0, math.log1p(-length), xtol=1e-14,
+                                     rtol=1e-15))
     return float(1.0 - d.cdf(c) - d.sf(c + length))
+
+
+def _bisect(step, lo: np.ndarray, hi: np.ndarray, geometric: bool = False,
+            iters: int = 200) -> np.ndarray:
+    """Elementwise bisection: ``step(mid)`` is True where the root lies above mid."""
+    lo, hi = lo.astype(float).copy(), hi.astype(float).copy()
+    for _ in range(iters):
+        mid = np.exp(0.5 * (np.log(lo) + np.log(hi))) if geometric else 0.5 * (lo + hi)
+        up = step(mid)
+        lo, hi = np.where(up, mid, lo), np.where(up, hi, mid)
+    return 0.5 * (lo + hi)
+
+
+def ref_beta_outcomes(n: int, prior, cov: float, length: float, interval: str):
+    """Width and fixed-length coverage of every posterior beta(a + x, b + n - x), straight
+    from scipy.stats.beta, one n at a time: shortest interval and best window by bisection
+    for equal log densities at the ends (the log density is concave for shapes > 1, an end
+    interval otherwise, as in ref_shortest_width); equal-tailed quantiles by ppf, the
+    equal-tailed window by bisection in log c."""
+    x = np.arange(n + 1)
+    a, b = prior[0] + x, prior[1] + n - x
+    d = stats.beta(a, b)
+    inner = (a > 1) & (b > 1)
+    if interval == "highest_density":
+        p = _bisect(lambda t: d.logpdf(d.ppf(t)) < d.logpdf(d.ppf(t + cov)),
+                    np.zeros(n + 1), np.full(n + 1, 1.0 - cov))
+        width = np.where(inner, d.ppf(p + cov) - d.ppf(p),
+                         np.minimum(d.ppf(cov), 1.0 - d.ppf(1.0 - cov)))
+        mode = np.where(inner, (a - 1) / np.maximum(a + b - 2, 1e-300), 0.5)
+        c = _bisect(lambda t: d.logpdf(t + length) > d.logpdf(t),
+                    np.maximum(mode - length, 0.0), np.minimum(mode, 1.0 - length))
+        cover = np.where(inner, d.cdf(c + length) - d.cdf(c),
+                         np.maximum(d.cdf(length), d.sf(1.0 - length)))
+    else:
+        width = d.ppf(0.5 + cov / 2) - d.ppf(0.5 - cov / 2)
+        c = _bisect(lambda t: d.cdf(t) < d.sf(t + length), np.full(n + 1, 1e-320),
+                    np.full(n + 1, 1.0 - length), geometric=True)
+        cover = 1.0 - d.cdf(c) - d.sf(c + length)
+    return width, cover
 
 
 def ref_binomial_summary(n, prior, design, cov, length, share, interval="highest_density"):
     x = np.arange(n + 1)
-    if isinstance(design, tuple):
-        pmf = stats.betabinom.pmf(x, n, *design)
-    else:
-        pmf = stats.binom.pmf(x, n, design)
     a, b = prior[0] + x, prior[1] + n - x
     if interval == "highest_density":
         width = np.array([ref_shortest_width(ai, bi, cov) for ai, bi in zip(a, b, strict=True)])
@@ -99,6 +146,16 @@ def ref_binomial_summary(n, prior, design, cov, length, share, interval="highest
         width = stats.beta.ppf(0.5 + cov / 2, a, b) - stats.beta.ppf(0.5 - cov / 2, a, b)
         cover = np.array([ref_equal_tailed_coverage(ai, bi, length)
                           for ai, bi in zip(a, b, strict=True)])
+    return summarise_outcomes(n, design, width, cover, share)
+
+
+def summarise_outcomes(n, design, width, cover, share):
+    """The criteria's summaries over x = 0..n from each outcome's width and coverage."""
+    x = np.arange(n + 1)
+    if isinstance(design, tuple):
+        pmf = stats.betabinom.pmf(x, n, *design)
+    else:
+        pmf = stats.binom.pmf(x, n, design)
 
     def lower_quantile(q):
         order = np.argsort(width, kind="stable")
@@ -261,6 +318,81 @@ def test_one_proportion_solved_n_against_enumeration():
         assert ok(at_n) and not ok(before), (crit, n, at_n, before)
         assert ans.achieved == pytest.approx(at_n, abs=ENUM_TOL)
         assert ans.previous == pytest.approx(before, abs=ENUM_TOL)
+
+
+# Many sizes in one call take the continuation path (each outcome's interval from the
+# previous outcome's; at least 24 sizes), one or a few sizes the outcome-by-outcome one;
+# both are checked against ref_beta_outcomes (scipy.stats.beta, one n at a time). Both
+# sides solve to ~1e-13 (the references bisect to adjacent floats; scipy's incomplete beta
+# function is off by up to ~1e-12 at shapes in the hundreds, checked here against an
+# extended-precision quadrature), so 1e-9 is a wide margin that any misplaced interval of a
+# single outcome still exceeds.
+MANY_TOL = 1e-9
+MANY_SIZES_CASES = [
+    # (analysis prior, design, sizes, coverage, length, interval, sizes checked)
+    ((1.0, 1.0), (1.0, 1.0), np.arange(10, 1001), 0.95, 0.1, "highest_density",
+     (10, 23, 24, 517, 1000)),
+    ((1.0, 1.0), (1.0, 1.0), np.arange(10, 1001), 0.95, 0.1, "equal_tailed",
+     (10, 23, 24, 517, 1000)),
+    ((2.0, 8.0), 0.3, np.arange(5, 400, 3), 0.9, 0.2, "highest_density", (5, 101, 398)),
+    ((2.0, 8.0), (3.0, 9.0), np.arange(5, 400, 3), 0.9, 0.2, "equal_tailed", (5, 101, 398)),
+    # J-shaped posteriors (shape 0.3 at x = 0): outcomes solved directly below the chains
+    ((0.3, 3.0), (2.0, 2.0), np.arange(1, 200), 0.99, 0.3, "equal_tailed", (1, 2, 150)),
+    ((0.5, 0.5), 0.2, np.arange(1, 200), 0.8, 0.05, "highest_density", (1, 2, 3, 199)),
+    # long windows: coverages within 1e-15 of 1, the start far below 1e-50 for the
+    # highest-density window near 0 (both were once wrong along a whole chain)
+    ((2.0, 8.0), (2.0, 8.0), np.arange(20, 401), 0.95, 0.45, "equal_tailed", (234, 321)),
+    ((1.002, 4.453), (1.002, 4.453), np.arange(500, 1419, 17), 0.999, 0.5,
+     "highest_density", (1384,)),
+]
+
+
+@pytest.mark.parametrize("prior, design, sizes, cov, length, interval, checked",
+                         MANY_SIZES_CASES)
+def test_one_proportion_many_sizes_against_per_n_reference(prior, design, sizes, cov, length,
+                                                           interval, checked):
+    # reference: scipy.stats.beta per outcome and scipy.stats.betabinom / binom per n (this
+    # file), one n at a time
+    assert sizes.size >= 24  # the continuation path
+    widths, covers = _beta_outcomes(sizes, prior, cov, length, interval, True)
+    start = np.concatenate([[0], np.cumsum(sizes + 1)])
+    model = OneProportion(BetaPrior(*prior),
+                          design_prior=BetaPrior(*design) if isinstance(design, tuple)
+                          else design)
+    ds = interval_width_curve(model, sizes, coverage=cov, length=length, interval=interval,
+                              likely_share=0.9)
+    for n in checked:
+        i = int(np.flatnonzero(sizes == n)[0])
+        width, cover = ref_beta_outcomes(n, prior, cov, length, interval)
+        got = slice(start[i], start[i + 1])
+        np.testing.assert_allclose(widths[got], width, rtol=0, atol=MANY_TOL, err_msg=str(n))
+        np.testing.assert_allclose(covers[got], cover, rtol=0, atol=MANY_TOL, err_msg=str(n))
+        ref = summarise_outcomes(n, design, width, cover, 0.9)
+        for name, value in ref.items():
+            assert float(ds[name][i]) == pytest.approx(value, abs=MANY_TOL), (n, name)
+
+
+def test_one_proportion_one_size_equals_many_sizes():
+    # the outcome-by-outcome path (few sizes) and the continuation (many) agree to rounding
+    model = OneProportion(BetaPrior(2.0, 3.0), design_prior=BetaPrior(4.0, 6.0))
+    sizes = np.arange(40, 100)
+    for interval in ("highest_density", "equal_tailed"):
+        many = interval_width_curve(model, sizes, length=0.15, interval=interval)
+        few = interval_width_curve(model, [57, 99], length=0.15, interval=interval)
+        for name in few.data_vars:
+            np.testing.assert_allclose(many[name].sel(n=[57, 99]), few[name], rtol=0,
+                                       atol=1e-11, err_msg=name)
+
+
+def test_equal_tailed_coverage_of_j_shaped_posteriors():
+    # the window's start is 9e-19 here (5e-16, 7e-12 below): an absolute tolerance on it
+    # once left the coverage off by up to 1.2e-4; reference: Brent's method on log c with
+    # scipy.stats.beta (this file). Tails of 1.6e-5 .. 1.8e-3 carry scipy's ~1e-13 relative
+    # rounding, hence 1e-11.
+    for a, b, length in ((0.3, 80.0, 0.1), (0.3, 20.0, 0.3), (0.3, 80.0, 0.05),
+                         (0.8, 80.0, 0.3)):
+        got = beta_equal_tailed_coverage(np.array([a]), np.array([b]), length)[0]
+        assert got == pytest.approx(ref_equal_tailed_coverage(a, b, length), abs=1e-11)
 
 
 # ------------------------------------------------------------------------------------------
