@@ -461,6 +461,10 @@ def _sweep_k_table() -> np.ndarray:
 
 
 _SWEEP_K_OF = _sweep_k_table()
+#: the roughness bins are multiples of 1/20: the table's row offset for ceil(20 r)
+#: (0..161; the last, any r beyond the table or nan, is the overflow row)
+_SWEEP_ROW_OF = np.searchsorted(_SWEEP_R, np.arange(162) / 20.0) * _SWEEP_K_OF.shape[1]
+_SWEEP_K_FLAT = _SWEEP_K_OF.ravel()
 #: a Halley step this small (relative to the local scale of the density) leaves an error of
 #: order its cube, below rounding; the cubic Taylor polynomial of F is then exact too
 _SWEEP_HALLEY_OK = 4e-5
@@ -578,10 +582,14 @@ def _sweep_rule_index(r: np.ndarray, bound: np.ndarray, monotone: np.ndarray) ->
         di += np.where(monotone, -math.log10(_SWEEP_ATOL),
                        r * (1.0 / math.log(10.0)) - math.log10(_SWEEP_ATOL))
         di[~(monotone | (bound > 0))] = np.nan
-    # fmax: a nan bound (an unusable window) asks for every digit
-    di = np.minimum(np.fmax(np.ceil(di), 0.0), 15.0, where=np.isfinite(di) | (di < 0),
-                    out=np.full(di.shape, 15.0)).astype(np.intp)
-    return _SWEEP_K_OF[np.searchsorted(_SWEEP_R, r), di]
+        # digits 0..15; fmin: a nan (an unusable window) asks for every digit
+        np.ceil(di, out=di)
+        np.fmin(di, 15.0, out=di)
+        np.maximum(di, 0.0, out=di)
+        row = np.fmin(r * 20.0, 161.0)          # fmin: a nan roughness is beyond the table
+        np.ceil(row, out=row)
+    return np.take(_SWEEP_K_FLAT, np.take(_SWEEP_ROW_OF, row.astype(np.intp))
+                   + di.astype(np.intp))
 
 
 def _sweep_window_rules(p0, p1, am1, bm1, lbeta):
@@ -1528,14 +1536,19 @@ def binomial_enumeration(
     # whole steps (every term is a log-gamma of a shape plus a whole number)
     k = np.arange(int(n.max()) + 1)
     log_fact = special.gammaln(k + 1.0)
-    log_choose = log_fact[nn] - log_fact[x] - log_fact[nn - x]
+    rest = nn - x
     if isinstance(design, tuple):
+        # C(n, x) B(da + x, db + n - x) / B(da, db): per-outcome tables of
+        # lgamma(d + k) - lgamma(k + 1) and one constant per n
         da, db = design
-        lg_a, lg_b = special.gammaln(k + da), special.gammaln(k + db)
-        logp = (log_choose + lg_a[x] + lg_b[nn - x]
-                - (special.gammaln(n + da + db) + special.betaln(da, db))[group])
+        lg_a = special.gammaln(k + da) - log_fact
+        lg_b = special.gammaln(k + db) - log_fact
+        logp = lg_a[x]
+        logp += lg_b[rest]
+        logp += (log_fact[n] - special.gammaln(n + da + db) - special.betaln(da, db))[group]
     else:
-        logp = log_choose + special.xlogy(x, design) + special.xlog1py(nn - x, -design)
+        logp = log_fact[nn] - log_fact[x] - log_fact[rest]
+        logp += special.xlogy(x, design) + special.xlog1py(rest, -design)
     weight = np.exp(logp)
     weight /= np.add.reduceat(weight, starts)[group]
     width, cov = _beta_outcomes(n, prior, coverage, length, interval, widths)
