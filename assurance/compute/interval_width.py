@@ -472,6 +472,11 @@ _SWEEP_HALLEY_OK = 4e-5
 _SWEEP_NEWTON_OK = 1e-7
 #: moves up to this size take F from its cubic Taylor polynomial (error ~ size^4 / 24)
 _SWEEP_TAYLOR_OK = 1e-3
+#: error allowed in an equal-tailed window's coverage where its tails are small, and the
+#: largest step (relative to the local scale) whose tails come from the Taylor polynomials
+#: there
+_SWEEP_COVER_ATOL = 1e-16
+_SWEEP_TAYLOR_FAR = 0.3
 #: two tails (equal-tailed window) agreeing this closely are taken as equal: the window's
 #: probability is then exact to that much
 _SWEEP_TAIL_ATOL = 1e-17
@@ -1087,9 +1092,9 @@ class _Sweep:
         self._step(d, ph, Vh, f, g1, g2, lp, lq, am1, bm1)
         s1 = np.abs(d) * sc
         rows_ok = s1 <= _SWEEP_TAYLOR_OK
-        if self._wild is not None:
-            rows_ok[self.ic:self.ic + 2] &= ~self._wild
+        wild = self._wild
         self._first = d.copy()
+        d2 = np.zeros(ph.shape)
         # a second step (tails from the Taylor polynomials) for the groups of rows where the
         # first was not already small enough to leave an error below rounding
         for rows, sweep in (self.groups or [(slice(0, ph.shape[0]), self)]):
@@ -1097,12 +1102,26 @@ class _Sweep:
                 continue
             p2 = ph[rows] + d[rows]
             f2, h1, h2, lp2, lq2 = _sweep_densities(p2, am1, bm1, lbeta)
-            d2 = np.empty(p2.shape)
-            sweep._step(d2, p2, _sweep_taylor(Vh[rows], sweep.sign, f[rows], g1[rows],
-                                              g2[rows], d[rows]),
+            sweep._step(d2[rows], p2, _sweep_taylor(Vh[rows], sweep.sign, f[rows], g1[rows],
+                                                    g2[rows], d[rows]),
                         f2, h1, h2, lp2, lq2, am1, bm1)
-            rows_ok[rows] &= np.abs(d2) * sc[rows] <= _SWEEP_HALLEY_OK
-            d[rows] += d2
+        s2 = np.abs(d2) * sc
+        rows_ok &= s2 <= _SWEEP_HALLEY_OK
+        if wild is not None:
+            # an equal-tailed window: its coverage is the exact probability of the window
+            # reached, off only by the density difference at its ends times the distance
+            # left to the root (about |d2| s2^2 after Halley's second step); with small tails
+            # that allows far larger steps than the relative test, as long as the tails'
+            # Taylor polynomials stay exact (error f |d|^4 scale^3 / 24)
+            sl = slice(self.ic, self.ic + 2)
+            ad = np.abs(d[sl])
+            taylor = (s1[sl] <= _SWEEP_TAYLOR_FAR) & (f[sl] * ad * s1[sl] ** 3
+                                                      <= 24 * _SWEEP_COVER_ATOL)
+            gap = np.abs(f[self.ic] - f[self.ic + 1])
+            close = gap * np.abs(d2[self.ic]) * s2[self.ic] ** 2 <= _SWEEP_COVER_ATOL
+            rows_ok[sl] |= taylor.all(axis=0) & close
+            rows_ok[sl] &= ~wild
+        d += d2
         self._rows_ok = rows_ok
         return ph + d, _sweep_taylor(Vh, sign, f, g1, g2, d), rows_ok.all(axis=0)
 
@@ -1323,9 +1342,12 @@ class _Sweep:
                     c = pts[ic]
                     Tw = np.empty((2, B, J))
                     Tw[:, 0] = T0[ic:ic + 2]
-                    for i in range(1, B):
-                        Tw[:, i] = (Tw[:, i - 1] * np.exp(lpt[ic:ic + 2] - lqt[ic:ic + 2])
-                                    * ((bi[i - 1] - 1.0) / (ai[i - 1] + 1.0)))
+                    if B > 1:
+                        u = pts[ic:ic + 2]
+                        np.cumprod((u / (1.0 - u))[:, None, :]
+                                   * ((bi[:-1] - 1.0) / (ai[:-1] + 1.0)), axis=1,
+                                   out=Tw[:, 1:])
+                        Tw[:, 1:] *= T0[ic:ic + 2, None, :]
                     lower = V[ic] - np.cumsum(Tw[0], axis=0)
                     upper = V[ic + 1] + np.cumsum(Tw[1], axis=0)
                     # a window whose two tails are both negligible stays where it is
@@ -1338,29 +1360,32 @@ class _Sweep:
                     young = (cov_age < 3) & ~stuck
                     small = ~stuck & (np.minimum(lower, upper) < _SWEEP_JUMP_TAIL)
                     move = young | small
-                    if move.any():
+                    kk, jj = np.nonzero(move)
+                    if kk.size:
+                        cc, u1 = c[jj], pts[ic + 1, jj]
+                        lo_, up_ = lower[kk, jj], upper[kk, jj]
+                        A_, Bm_ = am1[kk, jj], bm1[kk, jj]
                         with np.errstate(all="ignore"):
-                            u = pts[ic:ic + 2]
-                            dens = Tw * ((bi - 1.0) / (1.0 - u)[:, None, :])
-                            cl = c * dens[0] / lower                    # d log F / d log c
-                            cu = c * dens[1] / upper                    # -d log S / d log c
-                            slope_lo = am1 / c - bm1 / (1.0 - c)        # log-density slopes
-                            slope_hi = am1 / u[1] - bm1 / (1.0 - u[1])
-                            psi = np.log(lower) - np.log(upper)
+                            b1 = Bm_ + 1.0
+                            cl = cc * (Tw[0, kk, jj] * b1 / (1.0 - cc)) / lo_  # dlogF/dlogc
+                            cu = cc * (Tw[1, kk, jj] * b1 / (1.0 - u1)) / up_  # -dlogS/dlogc
+                            slope_lo = A_ / cc - Bm_ / (1.0 - cc)   # log-density slopes
+                            slope_hi = A_ / u1 - Bm_ / (1.0 - u1)
+                            psi = np.log(lo_) - np.log(up_)
                             p1 = cl + cu
-                            p2 = (cl * (1.0 + c * slope_lo) - cl * cl
-                                  + cu * (1.0 + c * slope_hi) + cu * cu)
+                            p2 = (cl * (1.0 + cc * slope_lo) - cl * cl
+                                  + cu * (1.0 + cc * slope_hi) + cu * cu)
                             nw = -psi / p1
-                            jump = c * np.exp(nw / (1.0 + 0.5 * nw * p2 / p1))
-                            first = np.exp((np.log(upper) + np.log(am1 + 1.0) + lb)
-                                           / (am1 + 1.0))
+                            jump = cc * np.exp(nw / (1.0 + 0.5 * nw * p2 / p1))
+                            first = np.exp((np.log(up_) + np.log(A_ + 1.0) + lb[kk, jj])
+                                           / (A_ + 1.0))
                         # (a tail that cancelled to nothing or less keeps the prediction)
-                        parked = c <= 2 * _SWEEP_FLOOR
+                        parked = cc <= 2 * _SWEEP_FLOOR
                         jump = np.where(parked, first, jump)
-                        move &= parked | ((lower > 0) & (upper > 0))
-                        jump = np.clip(np.nan_to_num(jump, nan=c), _SWEEP_FLOOR,
-                                       0.5 * (c + 1.0 - self.length))
-                        ph[ic] = np.where(move, jump, ph[ic])
+                        go = parked | ((lo_ > 0) & (up_ > 0))
+                        jump = np.clip(np.nan_to_num(jump, nan=cc), _SWEEP_FLOOR,
+                                       0.5 * (cc + 1.0 - self.length))
+                        ph[ic, kk[go], jj[go]] = jump[go]
                     ph[ic] = np.where(stuck, c, ph[ic])
                     cov_age = np.where(stuck[B - 1], 0, cov_age + B)
                 ph[ic + 1] = ph[ic] + self.length
@@ -1396,19 +1421,23 @@ class _Sweep:
             lbeta = _log_beta(al, be)        # afresh at each anchor: no drift
             mlog, vlog = mk[B - 1], vk[B - 1]
             x += B
+        if out_c is not None:
+            np.clip(out_c, 0.0, 1.0, out=out_c)   # a probability (tails rounded below 0)
         return (None if out_w is None else out_w[:X + 1],
                 None if out_c is None else out_c[:X + 1])
 
 
 def _beta_outcomes(n: np.ndarray, prior: tuple[float, float], coverage: float,
-                   length: float | None, interval: str, widths: bool
+                   length: float | None, interval: str, widths: bool, half: bool = False
                    ) -> tuple[np.ndarray | None, np.ndarray | None]:
     """Interval width and fixed-length coverage of every posterior Beta(a + x, b + n - x),
-    x = 0..n, for each n (flat, n by n): by continuation along x when there are enough sizes,
-    outcome by outcome otherwise."""
+    x = 0..n (with ``half`` and a symmetric prior x = 0..n // 2, the others being mirror
+    images), for each n (flat, n by n): by continuation along x when there are enough
+    sizes, outcome by outcome otherwise."""
     n = np.asarray(n, dtype=np.int64)
     a, b = float(prior[0]), float(prior[1])
-    sizes = n + 1
+    half = half and a == b
+    sizes = n // 2 + 1 if half else n + 1
     starts = np.concatenate([[0], np.cumsum(sizes)[:-1]])
     total = int(sizes.sum())
     hd = interval == "highest_density"
@@ -1447,7 +1476,7 @@ def _beta_outcomes(n: np.ndarray, prior: tuple[float, float], coverage: float,
 
     def store(pos, mirror, w, c):
         # at x, and (symmetric prior) at n - x, whose posterior is the mirror image
-        for at in (pos, mirror) if symmetric else (pos,):
+        for at in (pos, mirror) if symmetric and not half else (pos,):
             if widths:
                 width[at] = w
             if length is not None:
@@ -1527,7 +1556,12 @@ def binomial_enumeration(
     (0.366025, 0.366025)
     """
     n = np.asarray(n, dtype=np.int64)
-    sizes = n + 1
+    # with a symmetric analysis prior and a symmetric design, x and n - x have mirror-image
+    # posteriors and the same probability: the outcomes up to n // 2 stand for both (with
+    # the widths, which rank equally likely outcomes, so that the two are ranked together)
+    half = widths and prior[0] == prior[1] and (
+        design[0] == design[1] if isinstance(design, tuple) else design == 0.5)
+    sizes = n // 2 + 1 if half else n + 1
     group = np.repeat(np.arange(n.size), sizes)
     starts = np.concatenate([[0], np.cumsum(sizes)[:-1]])
     x = np.arange(group.size) - starts[group]
@@ -1550,8 +1584,10 @@ def binomial_enumeration(
         logp = log_fact[nn] - log_fact[x] - log_fact[rest]
         logp += special.xlogy(x, design) + special.xlog1py(rest, -design)
     weight = np.exp(logp)
+    if half:
+        weight[2 * x < nn] *= 2.0          # x and n - x
     weight /= np.add.reduceat(weight, starts)[group]
-    width, cov = _beta_outcomes(n, prior, coverage, length, interval, widths)
+    width, cov = _beta_outcomes(n, prior, coverage, length, interval, widths, half)
     out: dict[str, np.ndarray] = {}
     if widths:
         out["width_mean"] = np.add.reduceat(weight * width, starts)
@@ -1628,8 +1664,8 @@ def _ranked_summaries(out: dict, rows: np.ndarray, sizes: np.ndarray, starts: np
         cum = np.cumsum(gather(w2, order), axis=1)
         last = cnt - 1
         for name, q in (("width_median", 0.5), ("width_q90", 0.9)):
-            reached = cum >= q - 1e-12
-            at = np.where(reached.any(axis=1), np.argmax(reached, axis=1), last)
+            # the first cell whose cumulative probability reaches q (cum rises along a row)
+            at = np.count_nonzero(cum < q - 1e-12, axis=1)
             out[name][rows] = sw[np.arange(k), np.minimum(at, last)]
         if same:
             # equally likely outcomes: longest interval first, i.e. the widths' order
