@@ -62,12 +62,15 @@ def _outcome_by_outcome():
     """The peer: every call takes the outcome-by-outcome path."""
     from assurance.compute import interval_width
 
-    saved = interval_width._SWEEP_MIN_CHAINS
-    interval_width._SWEEP_MIN_CHAINS = 1 << 40
+    names = ("_SWEEP_MIN_CHAINS", "_SWEEP_MIN_CHAINS_HD")
+    saved = [getattr(interval_width, name) for name in names]
+    for name in names:
+        setattr(interval_width, name, 1 << 40)
     try:
         yield
     finally:
-        interval_width._SWEEP_MIN_CHAINS = saved
+        for name, value in zip(names, saved, strict=True):
+            setattr(interval_width, name, value)
 
 
 def _widths() -> None:

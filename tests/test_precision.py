@@ -35,6 +35,7 @@ from hypothesis import strategies as st
 from scipy import integrate, optimize, stats
 
 from assurance import AssuranceInputError, Normal, PointMass
+from assurance.compute import interval_width
 from assurance.compute.interval_width import _beta_outcomes, beta_equal_tailed_coverage
 from assurance.precision import (
     BetaPrior,
@@ -321,8 +322,10 @@ def test_one_proportion_solved_n_against_enumeration():
 
 
 # Many sizes in one call take the continuation path (each outcome's interval from the
-# previous outcome's; at least 24 sizes), one or a few sizes the outcome-by-outcome one;
-# both are checked against ref_beta_outcomes (scipy.stats.beta, one n at a time). Both
+# previous outcome's), few sizes the outcome-by-outcome one (the number of sizes where one
+# becomes faster than the other is a tuning constant, set aside here so that each path is
+# checked whatever it is); both are checked against ref_beta_outcomes (scipy.stats.beta,
+# one n at a time). Both
 # sides solve to ~1e-13 (the references bisect to adjacent floats; scipy's incomplete beta
 # function is off by up to ~1e-12 at shapes in the hundreds, checked here against an
 # extended-precision quadrature), so 1e-9 is a wide margin that any misplaced interval of a
@@ -350,10 +353,10 @@ MANY_SIZES_CASES = [
 @pytest.mark.parametrize("prior, design, sizes, cov, length, interval, checked",
                          MANY_SIZES_CASES)
 def test_one_proportion_many_sizes_against_per_n_reference(prior, design, sizes, cov, length,
-                                                           interval, checked):
+                                                           interval, checked, monkeypatch):
     # reference: scipy.stats.beta per outcome and scipy.stats.betabinom / binom per n (this
     # file), one n at a time
-    assert sizes.size >= 24  # the continuation path
+    _continuation(monkeypatch, True)
     widths, covers = _beta_outcomes(sizes, prior, cov, length, interval, True)
     start = np.concatenate([[0], np.cumsum(sizes + 1)])
     model = OneProportion(BetaPrior(*prior),
@@ -372,12 +375,20 @@ def test_one_proportion_many_sizes_against_per_n_reference(prior, design, sizes,
             assert float(ds[name][i]) == pytest.approx(value, abs=MANY_TOL), (n, name)
 
 
-def test_one_proportion_one_size_equals_many_sizes():
-    # the outcome-by-outcome path (few sizes) and the continuation (many) agree to rounding
+def _continuation(monkeypatch, on: bool) -> None:
+    """Every call by continuation (on) or outcome by outcome (off)."""
+    for name in ("_SWEEP_MIN_CHAINS", "_SWEEP_MIN_CHAINS_HD"):
+        monkeypatch.setattr(interval_width, name, 1 if on else 1 << 40)
+
+
+def test_one_proportion_continuation_equals_outcome_by_outcome(monkeypatch):
+    # the two paths agree to rounding (each is also checked against scipy above)
     model = OneProportion(BetaPrior(2.0, 3.0), design_prior=BetaPrior(4.0, 6.0))
     sizes = np.arange(40, 100)
     for interval in ("highest_density", "equal_tailed"):
+        _continuation(monkeypatch, True)
         many = interval_width_curve(model, sizes, length=0.15, interval=interval)
+        _continuation(monkeypatch, False)
         few = interval_width_curve(model, [57, 99], length=0.15, interval=interval)
         for name in few.data_vars:
             np.testing.assert_allclose(many[name].sel(n=[57, 99]), few[name], rtol=0,
