@@ -8,7 +8,9 @@ Sources of the reference values (each check names its own):
 * One proportion: an independent enumeration written here with ``scipy.stats.betabinom``
   (prior predictive) and a shortest-interval search on ``scipy.stats.beta``
   (``scipy.optimize.minimize_scalar`` over the lower tail probability), for the criteria of
-  Joseph, Wolfson & du Berger (1995, The Statistician 44:143-154).
+  Joseph, Wolfson & du Berger (1995, The Statistician 44:143-154); for many sizes in one
+  call (the continuation along x), every outcome of a few sizes against bisections on
+  ``scipy.stats.beta`` (equal log densities at the ends, equal tails) written here.
 * Normal-gamma: ``scipy.integrate`` over the prior predictive density of (sample mean,
   sum of squares), derived here by integrating the precision out in closed form (common
   practice: normal-gamma conjugacy); quantiles against direct simulation of the data.
