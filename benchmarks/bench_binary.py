@@ -26,10 +26,13 @@ Times are the best of several runs (the machine is shared). Run alone with::
 
 from __future__ import annotations
 
-import time
 from contextlib import contextmanager
+from functools import partial
 
 import numpy as np
+from _timing import best_of, verdict
+
+best_once = partial(best_of, number=1)
 
 SIZES = np.linspace(20, 1000, 50).round().astype(int) // 2 * 2
 PATHS = (("z", 0.1), ("unpooled_z", 0.1), ("chi_square", 0.1), ("fisher_exact", 0.2))
@@ -69,19 +72,6 @@ def _dense_peer():
         binary.success_runs = saved
 
 
-def _best(func, repeat: int) -> float:
-    times = []
-    for _ in range(repeat):
-        start = time.perf_counter()
-        func()
-        times.append(time.perf_counter() - start)
-    return min(times)
-
-
-def _verdict(ok: bool) -> str:
-    return "met" if ok else "NOT MET"
-
-
 def main() -> None:
     from threadpoolctl import threadpool_limits
 
@@ -95,10 +85,10 @@ def main() -> None:
         for threads in (1, 2):
             with threadpool_limits(limits=threads, user_api="blas"):
                 ours = asr.evaluate(design, SIZES)  # warm-up, and the numbers compared
-                times["ours", threads] = _best(lambda d=design: asr.evaluate(d, SIZES), 7)
+                times["ours", threads] = best_once(lambda d=design: asr.evaluate(d, SIZES), 7)
                 with _dense_peer():
                     peer = asr.evaluate(design, SIZES)
-                    times["peer", threads] = _best(lambda d=design: asr.evaluate(d, SIZES), 3)
+                    times["peer", threads] = best_once(lambda d=design: asr.evaluate(d, SIZES), 3)
             rows.append((test, threads, times["ours", threads], times["peer", threads], target))
         diffs[test] = max(float(np.max(np.abs(ours[v].values - peer[v].values)))
                           for v in VARIABLES)
@@ -110,14 +100,14 @@ def main() -> None:
           "   target")
     for test, threads, ours_t, peer_t, target in rows:
         print(f"  {test:<13} {threads:>7} {ours_t:>8.3f}s {peer_t:>10.3f}s "
-              f"{peer_t / ours_t:>9.1f}x   < {target:g} s: {_verdict(ours_t < target)}")
+              f"{peer_t / ours_t:>9.1f}x   < {target:g} s: {verdict(ours_t < target)}")
     print("  thread independence: time with 2 threads / time with 1")
     for test, ours_r, peer_r in thread_rows:
         print(f"  {test:<13} ours {ours_r:5.2f} | dense peer {peer_r:5.2f}   "
-              f"<= {THREAD_TARGET:g}: {_verdict(ours_r <= THREAD_TARGET)}")
+              f"<= {THREAD_TARGET:g}: {verdict(ours_r <= THREAD_TARGET)}")
     print("  same numbers: largest |ours - peer| over " + ", ".join(VARIABLES))
     for test, diff in diffs.items():
-        print(f"  {test:<13} {diff:.1e}   <= {SAME_NUMBERS:g}: {_verdict(diff <= SAME_NUMBERS)}")
+        print(f"  {test:<13} {diff:.1e}   <= {SAME_NUMBERS:g}: {verdict(diff <= SAME_NUMBERS)}")
 
 
 if __name__ == "__main__":

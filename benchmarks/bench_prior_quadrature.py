@@ -23,24 +23,16 @@ Paths and targets (from the hardening issue):
 from __future__ import annotations
 
 import time
+from functools import partial
 
 import numpy as np
+from _timing import best_of
 from scipy import integrate, special, stats
+
+best_warm = partial(best_of, warm_up=True)
 
 N_TOTAL = np.arange(20, 2020, 20)  # 100 sizes
 SIGMA, MEAN, SD, RELEVANT, ALPHA = 10.0, 4.0, 3.0, 3.0, 0.025
-
-
-def best_time(func, repeat: int = 7, number: int = 20) -> float:
-    """Smallest mean time per call (seconds) over ``repeat`` batches of ``number`` calls."""
-    func()
-    times = []
-    for _ in range(repeat):
-        start = time.perf_counter()
-        for _ in range(number):
-            func()
-        times.append((time.perf_counter() - start) / number)
-    return min(times)
 
 
 def interleaved(funcs: dict, rounds: int = 15, number: int = 30) -> dict:
@@ -148,7 +140,7 @@ def main() -> None:
     for name, prior in priors.items():
         design = asr.TrialDesign(asr.ContinuousEndpoint(SIGMA, analysis="z"), prior,
                                  relevant_effect=RELEVANT)
-        ours = best_time(lambda d=design: asr.evaluate(d, N_TOTAL), repeat=5, number=5)
+        ours = best_warm(lambda d=design: asr.evaluate(d, N_TOTAL), repeat=5, number=5)
         n_t, n_c = design.endpoint.arm_sizes(N_TOTAL)
         se = SIGMA * np.sqrt(1.0 / n_t + 1.0 / n_c)
         c = stats.norm.isf(ALPHA) * se
@@ -160,7 +152,7 @@ def main() -> None:
                 for cut in (None, 0.0, RELEVANT):
                     former_adaptive(part, c, se, cut)
 
-        theirs = best_time(peer, repeat=1, number=1)
+        theirs = best_warm(peer, repeat=1, number=1)
         _row(f"3. evaluate, {name}", ours, theirs, "former adaptive", "< 10 ms", ours < 0.010)
 
     # 4. the fixed rule over the thresholds of a t analysis
@@ -176,8 +168,8 @@ def main() -> None:
             prob_estimate_above(part, c, se[None, :],
                                 effect_above=None if cut is None else cut.value)
 
-    ours = best_time(fixed, repeat=5, number=3)
-    theirs = best_time(lambda: [former_adaptive(part, c, se[None, :], cut)
+    ours = best_warm(fixed, repeat=5, number=3)
+    theirs = best_warm(lambda: [former_adaptive(part, c, se[None, :], cut)
                                 for cut in (None, 0.0, RELEVANT)], repeat=1, number=1)
     _row(f"4. fixed rule, {c.shape[0]} x {c.shape[1]} thresholds (t nodes)", ours, theirs,
          "former adaptive", "< 10 ms", ours < 0.010)

@@ -23,20 +23,8 @@ Rows
 
 from __future__ import annotations
 
-import time
-
 import numpy as np
-
-
-def best_of(func, repeat: int = 7, number: int = 20) -> float:
-    """Best mean time per call in seconds over ``repeat`` batches of ``number`` calls."""
-    times = []
-    for _ in range(repeat):
-        start = time.perf_counter()
-        for _ in range(number):
-            func()
-        times.append((time.perf_counter() - start) / number)
-    return min(times)
+from _timing import best_of
 
 
 def _clear_caches() -> None:

@@ -31,10 +31,13 @@ Times are the best of several runs (the machine is shared). Run alone with::
 from __future__ import annotations
 
 import math
-import time
 from contextlib import contextmanager
+from functools import partial
 
 import numpy as np
+from _timing import best_of, verdict
+
+best_once = partial(best_of, number=1)
 
 SIZES = np.arange(10, 1001)
 WIDTH_TARGET = 0.3          # seconds, each interval
@@ -42,19 +45,6 @@ SAME_NUMBERS = 1e-9
 LOGRANK_BEFORE = 71_000.0   # trials/s at n = 200 before (issue)
 LOGRANK_FACTOR = 2.0
 MINIMAL_OVER_BEFORE = 2.9   # the minimal numpy version's rate over the rate before (issue)
-
-
-def _best(func, repeat: int) -> float:
-    times = []
-    for _ in range(repeat):
-        start = time.perf_counter()
-        func()
-        times.append(time.perf_counter() - start)
-    return min(times)
-
-
-def _verdict(ok: bool) -> str:
-    return "met" if ok else "NOT MET"
 
 
 @contextmanager
@@ -88,21 +78,21 @@ def _widths() -> None:
                 return pr.interval_width_curve(model, SIZES, length=0.1, interval=interval)
 
             ours = run()
-            ours_t = _best(run, 5)
+            ours_t = best_once(run, 5)
             with _outcome_by_outcome():
                 peer = run()
-                peer_t = _best(run, 1)
+                peer_t = best_once(run, 1)
             diff = max(float(np.max(np.abs(ours[v].values - peer[v].values)))
                        for v in ours.data_vars)
             diffs.append((f"beta{prior}".replace(" ", ""), interval, diff))
-            verdict = ("(no target)" if target is None
-                       else f"< {target:g} s: {_verdict(ours_t < target)}")
+            judged = ("(no target)" if target is None
+                       else f"< {target:g} s: {verdict(ours_t < target)}")
             print(f"  {diffs[-1][0]:<11} {interval:<16} {ours_t:>7.3f}s {peer_t:>11.3f}s "
-                  f"{peer_t / ours_t:>9.1f}x   {verdict}")
+                  f"{peer_t / ours_t:>9.1f}x   {judged}")
     print("  same numbers: largest |ours - per outcome| over every summary")
     for prior, interval, diff in diffs:
         print(f"  {prior:<11} {interval:<16} {diff:.1e}   <= {SAME_NUMBERS:g}: "
-              f"{_verdict(diff <= SAME_NUMBERS)}")
+              f"{verdict(diff <= SAME_NUMBERS)}")
 
 
 def _minimal_logrank(n: int, trials: int, hazard_ratio: float, seed: int) -> np.ndarray:
@@ -144,19 +134,19 @@ def _logrank() -> None:
     print("log-rank simulation, hazard ratio 0.75, 1:1 (trials per second)")
     print(f"  {'n':>5} {'ours':>10} {'minimal numpy':>14} {'ours/minimal':>13}   target")
     for n, trials in ((200, 40_000), (1000, 8_000)):
-        ours_t = _best(lambda n=n, trials=trials: asr.simulate_trials(
+        ours_t = best_once(lambda n=n, trials=trials: asr.simulate_trials(
             endpoint, 0.75, n // 2, n // 2, trials=trials, seed=1), 3)
-        mini_t = _best(lambda n=n, trials=trials: _minimal_logrank(n, trials, 0.75, 1), 3)
+        mini_t = best_once(lambda n=n, trials=trials: _minimal_logrank(n, trials, 0.75, 1), 3)
         ours_r, mini_r = trials / ours_t, trials / mini_t
         if n == 200:
             need = LOGRANK_FACTOR * LOGRANK_BEFORE
             rel = LOGRANK_FACTOR / MINIMAL_OVER_BEFORE
-            verdict = (f">= {need / 1e3:.0f}k/s: {_verdict(ours_r >= need)}; "
-                       f">= {rel:.2f} x minimal: {_verdict(ours_r >= rel * mini_r)}")
+            judged = (f">= {need / 1e3:.0f}k/s: {verdict(ours_r >= need)}; "
+                       f">= {rel:.2f} x minimal: {verdict(ours_r >= rel * mini_r)}")
         else:
-            verdict = "(no target)"
+            judged = "(no target)"
         print(f"  {n:>5} {ours_r:>10,.0f} {mini_r:>14,.0f} {ours_r / mini_r:>12.2f}x   "
-              f"{verdict}")
+              f"{judged}")
     # the two agree on the rejection rate within Monte Carlo error (a check of the minimal
     # version, not of the package)
     ours = asr.simulate_trials(endpoint, 0.75, 100, 100, trials=20_000, seed=2)

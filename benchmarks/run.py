@@ -31,20 +31,10 @@ import time
 from pathlib import Path
 
 import numpy as np
+from _timing import best_of
 
 ROOT = Path(__file__).resolve().parents[1]
 BIN = Path(sys.executable).parent
-
-
-def best_of(func, repeat: int = 7, number: int = 20) -> float:
-    """Best mean time per call in seconds over ``repeat`` batches of ``number`` calls."""
-    times = []
-    for _ in range(repeat):
-        start = time.perf_counter()
-        for _ in range(number):
-            func()
-        times.append((time.perf_counter() - start) / number)
-    return min(times)
 
 
 def wall(cmd: list[str], repeat: int = 5) -> float:
