@@ -71,6 +71,7 @@ _PUBLIC = {
     "estimate_from_events": "priors.evidence",
     "estimate_from_means": "priors.evidence",
     "prior_from_estimate": "priors.evidence",
+    "DiscountedEstimate": "priors.evidence",
     "robust_mixture": "priors.evidence",
     "arm_estimates": "priors.evidence",
     "meta_analytic_prior": "priors.evidence",
@@ -135,6 +136,7 @@ __all__ = [
     "estimate_from_events",
     "estimate_from_means",
     "prior_from_estimate",
+    "DiscountedEstimate",
     "robust_mixture",
     "arm_estimates",
     "meta_analytic_prior",
@@ -179,6 +181,7 @@ if TYPE_CHECKING:  # pragma: no cover - for type checkers and editors only
         meta_analytic_prior,
         meta_analytic_prior_mcmc,
         prior_from_estimate,
+        DiscountedEstimate,
         prior_predictive_summary,
         robust_mixture,
     )

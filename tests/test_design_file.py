@@ -142,7 +142,7 @@ def test_elicited_prior_table_matches_the_exact_normal():
 def test_earlier_trial_prior_table_applies_the_discounts():
     # shrink the estimate, divide its information by the power weight, add a vague part
     # (Kirby et al. 2012; Ibrahim & Chen 2000; Schmidli et al. 2014): computed directly here
-    prior, text = design_file.prior_with_origin(
+    prior, origin = design_file.prior_with_origin(
         {"family": "earlier_trial", "estimate": 22.0, "se": 9.0, "shrinkage": 0.8,
          "power_weight": 0.5, "robust_weight": 0.8, "vague_sd": 40.0}, "design_prior")
     assert isinstance(prior, priors.Mixture)
@@ -150,7 +150,8 @@ def test_earlier_trial_prior_table_applies_the_discounts():
     assert informative.mu == pytest.approx(17.6, abs=1e-12)
     assert informative.sigma == pytest.approx(9.0 / math.sqrt(0.5), rel=1e-12)
     assert prior.weights == pytest.approx([0.8, 0.2])
-    assert "earlier trial" in text
+    assert "earlier trial" in origin.report() and "shrunk by 0.8" in origin.report()
+    assert origin.shrinkage == 0.8 and origin.prior().mean() == pytest.approx(prior.mean())
 
 
 def test_earlier_trial_ratio_form_is_on_the_log_scale():

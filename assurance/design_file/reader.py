@@ -805,7 +805,7 @@ def _elicited(table: Any, where: str, ratio: bool) -> tuple[Any, Any]:
 
 
 def _earlier_trial(table: Any, where: str, ratio: bool) -> tuple[Any, Any]:
-    from ..priors.evidence import Estimate, prior_from_estimate
+    from ..priors.evidence import DiscountedEstimate, Estimate
 
     if table.ratio is not None:
         if not ratio:
@@ -817,13 +817,9 @@ def _earlier_trial(table: Any, where: str, ratio: bool) -> tuple[Any, Any]:
     options = {k: getattr(table, k) for k in ("power_weight", "shrinkage", "robust_weight",
                                                "vague_sd", "vague_mean")
                if getattr(table, k) is not None}
-    estimate = Estimate(value, se, "log ratio" if ratio else "effect")
-    prior = prior_from_estimate(estimate, **options)
-    shown = {"estimate": value, "se": se, **options}
-    text = ("Design prior from an earlier trial: "
-            + ", ".join(f"{k} {v:g}" for k, v in shown.items())
-            + f" (on the {'log ratio' if ratio else 'effect'} scale); result {prior.describe()}.")
-    return prior, text
+    recipe = DiscountedEstimate(Estimate(value, se, "log ratio" if ratio else "estimate"),
+                                **options)
+    return recipe.prior(), recipe
 
 
 # ------------------------------------------------------------------------------------------

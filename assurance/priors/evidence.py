@@ -50,6 +50,7 @@ __all__ = [
     "estimate_from_events",
     "estimate_from_means",
     "prior_from_estimate",
+    "DiscountedEstimate",
     "robust_mixture",
     "arm_estimates",
     "MetaAnalyticPrior",
@@ -371,6 +372,69 @@ def prior_from_estimate(
             f"< 1 (got robust_weight={w:g}); e.g. a unit-information SD. Got None instead."
         )
     return robust_mixture(informative, w, vague_sd=vague_sd, vague_mean=vague_mean)
+
+
+@dataclass(frozen=True)
+class DiscountedEstimate:
+    """An earlier trial's estimate with the discounts that turn it into a design prior.
+
+    The recipe behind :func:`prior_from_estimate`, kept so that a plan can say where its
+    prior came from in plain words and vary the discounts (prior sensitivity).
+
+    Attributes
+    ----------
+    estimate
+        The earlier :class:`Estimate` (difference, or log ratio for ratio endpoints).
+    power_weight, shrinkage, robust_weight, vague_sd, vague_mean
+        As in :func:`prior_from_estimate`.
+
+    Examples
+    --------
+    >>> recipe = DiscountedEstimate(Estimate(22.0, 9.0), shrinkage=0.8, power_weight=0.5)
+    >>> recipe.prior()
+    normal(mean=17.6, sd=12.7279)
+    >>> recipe.replace(shrinkage=1.0).prior().mean()
+    22.0
+    """
+
+    estimate: Estimate
+    power_weight: float = 1.0
+    shrinkage: float = 1.0
+    robust_weight: float = 1.0
+    vague_sd: float | None = None
+    vague_mean: float | None = None
+
+    def prior(self) -> Normal | Mixture:
+        """The design prior this recipe gives."""
+        return prior_from_estimate(self.estimate, power_weight=self.power_weight,
+                                   shrinkage=self.shrinkage, robust_weight=self.robust_weight,
+                                   vague_sd=self.vague_sd, vague_mean=self.vague_mean)
+
+    def replace(self, **changes: Any) -> DiscountedEstimate:
+        """The same recipe with some discounts changed (checked when :meth:`prior` is called)."""
+        from dataclasses import replace as _replace
+
+        return _replace(self, **changes)
+
+    def report(self) -> str:
+        """One plain sentence: the earlier result and each discount."""
+        parts = [f"earlier trial: {self.estimate.measure} {self.estimate.value:.3g} "
+                 f"(SE {self.estimate.se:.3g})"]
+        if self.shrinkage != 1.0:
+            parts.append(f"shrunk by {self.shrinkage:g}")
+        if self.power_weight != 1.0:
+            parts.append(f"counted as {self.power_weight:.0%} of its information")
+        if self.robust_weight != 1.0:
+            centre = "no effect" if not self.vague_mean else f"{self.vague_mean:g}"
+            parts.append(f"{1 - self.robust_weight:.0%} of the prior on a vague part (centre "
+                         f"{centre}, SD {self.vague_sd:g})")
+        return "Design prior from an " + ", ".join(parts) + "."
+
+    def to_dict(self) -> dict[str, Any]:
+        """Plain values."""
+        return {"estimate": self.estimate.to_dict(), "power_weight": self.power_weight,
+                "shrinkage": self.shrinkage, "robust_weight": self.robust_weight,
+                "vague_sd": self.vague_sd, "vague_mean": self.vague_mean}
 
 
 # ------------------------------------------------------------------------------------------
