@@ -2,26 +2,31 @@
 
 The memo holds everything in one file: styles inline, figures embedded as PNG data, no
 scripts and no links to anything outside the file, so it can be mailed, archived or
-printed as it is. All text that comes from the user (title, prior descriptions, messages)
-is escaped, and control characters in it are shown as escapes (``\\x1b``), never written
-raw.
+printed (A4) as it is. The page comes from one jinja2 template (``templates/memo.html``)
+with autoescaping on: all text that comes from the user (title, prior descriptions,
+messages) is escaped, and control characters in it are shown as escapes (``\\x1b``), never
+written raw. Numbers and priors reach the page through :mod:`.wording` (plain words,
+rounded for reading); the results files keep full precision.
 """
 
 from __future__ import annotations
 
 import base64
 import datetime as _dt
-import html
+import functools
+import hashlib
 import json
 import os
 import textwrap
 from collections.abc import Mapping, Sequence
+from dataclasses import dataclass
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
 from ..errors import AssuranceInputError
+from . import wording as wd
 from ._files import check_target, printable, write_atomic
 from .figures import passable_probability
 
@@ -29,7 +34,8 @@ if TYPE_CHECKING:  # pragma: no cover
     from ..design import TrialDesign
     from ..planning import SampleSizeAnswer
 
-__all__ = ["write_memo", "memo_html", "memo_text_summary", "DEFAULT_CAUTIONS"]
+__all__ = ["write_memo", "memo_html", "memo_text_summary", "plan_memo_html", "write_plan_memo",
+           "DEFAULT_CAUTIONS"]
 
 DEFAULT_CAUTIONS: tuple[str, ...] = (
     "These numbers support a decision; they do not make it.",
@@ -269,281 +275,579 @@ def memo_text_summary(design: TrialDesign, ds: Any,
     return "\n".join(lines)
 
 
-# ------------------------------------------------------------------------------------------
-# HTML
-# ------------------------------------------------------------------------------------------
-_CSS = """
-:root { --ink: #1d2327; --soft: #5b6670; --rule: #d5dadf; --band: #f3f5f7; --mark: #fff4d6; }
-* { box-sizing: border-box; }
-body { margin: 0; color: var(--ink); background: #ffffff;
-  font: 15px/1.5 "Segoe UI", "Helvetica Neue", Arial, "DejaVu Sans", sans-serif; }
-main { max-width: 960px; margin: 0 auto; padding: 28px 32px 48px; }
-h1 { font-size: 1.55em; margin: 0 0 4px; }
-h2 { font-size: 1.12em; margin: 30px 0 10px; padding-bottom: 4px;
-  border-bottom: 1px solid var(--rule); }
-p.meta { color: var(--soft); margin: 0; font-size: 0.92em; }
-.summary p { background: var(--band); border-left: 4px solid #0072b2; padding: 12px 16px;
-  margin: 0; }
-table { border-collapse: collapse; width: 100%; font-size: 0.93em; }
-th, td { padding: 5px 9px; border-bottom: 1px solid var(--rule); text-align: left;
-  vertical-align: top; }
-th { background: var(--band); font-weight: 600; }
-table.grid td.num, table.grid th.num { text-align: right; font-variant-numeric: tabular-nums; }
-table.grid td.num, td.name { white-space: nowrap; }
-td.note { font-size: 0.92em; color: var(--soft); }
-table.facts th { width: 30%; background: none; color: var(--soft); font-weight: 500; }
-tr.marked td { background: var(--mark); }
-td.no { color: #a33a00; font-weight: 600; }
-p.note { color: var(--soft); font-size: 0.88em; margin: 6px 0 0; }
-figure { margin: 16px 0 22px; }
-figure img { width: 100%; height: auto; border: 1px solid var(--rule); }
-figcaption { color: var(--soft); font-size: 0.88em; margin-top: 4px; }
-.cautions ul { margin: 0; padding-left: 20px; }
-.cautions li { margin: 3px 0; }
-pre { background: var(--band); padding: 10px 12px; font-size: 0.84em; overflow-x: auto;
-  white-space: pre-wrap; }
-details summary { cursor: pointer; color: var(--soft); font-size: 0.9em; }
-@media print { main { max-width: none; padding: 0; } h2 { break-after: avoid; }
-  figure, table { break-inside: avoid; } }
-"""
-
-
 def _e(text: Any) -> str:
-    """HTML-escaped text with control characters shown as escapes (line breaks kept)."""
+    """HTML-escaped text with control characters shown as escapes (line breaks kept).
+
+    Kept for the notebook overview (``notebook.py``), which writes its small HTML by hand.
+    """
+    import html
+
     return html.escape(printable(str(text), line_breaks=True), quote=True)
 
 
-def _facts(design: TrialDesign, ds: Any) -> str:
-    ep = design.endpoint
-    scale = " (on the log ratio scale)" if getattr(ep, "ratio_scale", False) else ""
-    rows: list[tuple[str, str]] = [
-        ("Outcome and layout", ep.describe()),
-        ("Success rule", design.rule.describe()),
-        (f"Design prior for the effect{scale}",
-         f"{design.design_prior.describe()}; probability that the treatment is better: "
-         f"{_p(float(ds['prob_benefit']))}"),
-    ]
-    if hasattr(ep, "sigma"):
-        rows.append(("Outcome SD",
-                     f"uncertain, prior {design.sigma_prior.describe()}; classical power uses "
-                     f"the planning value {ep.sigma:g}" if design.sigma_prior is not None
-                     else f"fixed at {ep.sigma:g}"))
-    if getattr(design, "analysis_prior", None) is not None:
-        rows.append(("Analysis prior (used by the final analysis)",
-                     design.analysis_prior.describe()))
-    if "type_one_error" in ds:
-        t1 = ds["type_one_error"].values
-        rows.append(("Type I error (success probability at the null value)",
-                     f"{_p(float(t1.min()))} to {_p(float(t1.max()))} across the sizes shown"
-                     if float(t1.max()) - float(t1.min()) > 5e-4 else _p(float(t1.mean()))))
-    rows += [
-        ("Assumed effect (classical power)", f"{design.assumed_effect:g}"),
-        ("Clinically relevant effect",
-         "not set" if design.relevant_effect is None else
-         f"{design.relevant_effect:g}; prior probability of an effect at least this good: "
-         f"{_p(float(ds['prob_relevant']))}"),
-        ("Ceiling of assurance",
-         f"{_p(float(ds['ceiling']))}; prior probability of the effects the rule can pass "
-         f"with enough patients: {_p(passable_probability(design))}"),
-        ("Method", str(ds.attrs.get("method", ""))),
-    ]
-    draws = int(ds.attrs.get("draws", 0) or 0)
-    if draws > 0:
-        seed = ds.attrs.get("seed", -1)
-        rows.append(("Monte Carlo", f"{draws} draws, seed "
-                     + ("not fixed" if seed is None or int(seed) < 0 else str(seed))))
-    body = "".join(f"<tr><th scope=\"row\">{_e(k)}</th><td>{_e(v)}</td></tr>" for k, v in rows)
-    return f'<table class="facts">{body}</table>'
-
-
-def _candidates(design: TrialDesign, ds: Any, answers: Sequence[SampleSizeAnswer]) -> str:
-    rows, marked = _pick_rows(ds, answers)
-    two_arm = design.endpoint.layout != "single_arm"
-    cols: list[tuple[str, str]] = [("Total patients", "num")]
-    if two_arm:
-        cols.append(("Treatment / control", "num"))
-    cols += [(f"Classical power at {design.assumed_effect:g}", "num"), ("Assurance", "num")]
-    has_rel = "conditional_assurance" in ds
-    if has_rel:
-        cols += [("Conditional assurance", "num"), ("P(success and relevant effect)", "num")]
-    if marked:
-        cols.append(("Solved target", "note"))
-    head = "".join(f'<th class="{c}" scope="col">{_e(name)}</th>' for name, c in cols)
-    n = ds["n"].values
-    n_t, n_c = ds["n_treatment"].values, ds["n_control"].values
-    body = []
-    for j in rows:
-        cells = [str(int(n[j]))]
-        if two_arm:
-            cells.append(f"{int(n_t[j])} / {int(n_c[j])}")
-        cells += [_value(ds, "power", j), _value(ds, "assurance", j)]
-        if has_rel:
-            cells += [_value(ds, "conditional_assurance", j),
-                      _value(ds, "prob_success_and_relevant", j)]
-        if marked:
-            notes = []
-            for answer in marked.get(j, []):
-                exact = answer.n_total == int(n[j])
-                notes.append(f"smallest size for {_target_name(answer)}" if exact else
-                             f"close to the smallest size for {_target_name(answer)} "
-                             f"({answer.n_total})")
-            cells.append("; ".join(notes))
-        tds = "".join(f'<td class="{c}">{_e(v)}</td>'
-                      for v, (_, c) in zip(cells, cols, strict=True))
-        body.append(f'<tr class="marked">{tds}</tr>' if j in marked else f"<tr>{tds}</tr>")
-    note = "Rows are taken from the computed grid of sizes"
-    if marked:
-        note += "; highlighted rows are those nearest to a solved size"
-    if "assurance_mcse" in ds:
-        note += "; \u00b1 gives one Monte Carlo standard error"
-    return (f'<table class="grid"><thead><tr>{head}</tr></thead>'
-            f'<tbody>{"".join(body)}</tbody></table><p class="note">{_e(note)}.</p>')
-
-
-def _targets(design: TrialDesign, answers: Sequence[SampleSizeAnswer]) -> str:
-    if not answers:
-        return '<p class="note">No target was solved for this memo.</p>'
-    two_arm = design.endpoint.layout != "single_arm"
-    heads = ["Target", "Total patients"] + (["Treatment / control"] if two_arm else []) + \
-        ["Value reached", "Highest possible", "Comment"]
-    classes = ["", "num"] + (["num"] if two_arm else []) + ["num", "num", ""]
-    body = []
-    for answer in answers:
-        if answer.reached and answer.n_total is not None:
-            cells = [str(answer.n_total)]
-            if two_arm:
-                cells.append(f"{answer.n_treatment} / {answer.n_control}")
-            cells.append("" if answer.achieved is None else
-                         _p(answer.achieved) + _se(answer.achieved_mcse))
-            comment = "" if answer.message.startswith("Smallest size") else answer.message
-            first = f'<td class="name">{_e(_target_name(answer))}</td>'
-            row = first + "".join(f'<td class="num">{_e(c)}</td>' for c in cells)
-        else:
-            span = 3 if two_arm else 2
-            row = (f'<td class="name">{_e(_target_name(answer))}</td>'
-                   f'<td class="no" colspan="{span}">not reachable</td>')
-            comment = answer.message
-        row += f'<td class="num">{_e(_p(answer.ceiling))}</td><td>{_e(comment)}</td>'
-        body.append(f"<tr>{row}</tr>")
-    head = "".join(f'<th class="{c}" scope="col">{_e(h)}</th>'
-                   for h, c in zip(heads, classes, strict=True))
-    return (f'<table class="grid"><thead><tr>{head}</tr></thead>'
-            f'<tbody>{"".join(body)}</tbody></table>')
-
+# ------------------------------------------------------------------------------------------
+# HTML: what the memo needs from a plan, gathered once
+# ------------------------------------------------------------------------------------------
+#: the go / consider / stop approach the zones follow (as cited in assurance.rules.zones)
+ZONES_SOURCE = "Lalonde et al. (2007), Clinical Pharmacology & Therapeutics 82:21-32"
+#: the precision criteria's source
+PRECISION_SOURCE = "Joseph, Wolfson & du Berger (1995), The Statistician 44:143-154"
+#: relative tolerance above the nominal level before a type I error is flagged
+TYPE_ONE_TOLERANCE = 1e-6
 
 FIGURE_NAMES = ("power_and_assurance", "prior")
 
 
-def _figures(design: TrialDesign, ds: Any, answers: Sequence[SampleSizeAnswer],
-             rendered: Mapping[str, bytes] | None = None) -> str:
-    from .figures import figure_bytes, plot_power_and_assurance, plot_prior
+@dataclass
+class _Parts:
+    """The pieces of a plan the memo reads (from a Plan, or from the older arguments)."""
 
-    captions = {
-        "power_and_assurance": (
-            "Classical power, assurance and the ceiling by total sample size",
-            "Classical power assumes the effect is exactly the assumed value; assurance "
-            "averages over the design prior and cannot pass the dashed ceiling."),
-        "prior": (
-            "The design prior for the true effect",
-            "The shaded side holds the effects at which the rule can be passed with enough "
-            "patients; their prior probability sets the ceiling of assurance."),
-    }
-    draw = {"power_and_assurance": lambda: plot_power_and_assurance(ds, answers=answers),
-            "prior": lambda: plot_prior(design)}
-    parts = []
-    for name in FIGURE_NAMES:
-        alt, caption = captions[name]
-        if rendered is not None and name in rendered:
-            png = rendered[name]
-        else:
-            png = figure_bytes(draw[name]().figure, "png")
-        data = base64.b64encode(png).decode("ascii")
-        parts.append(f'<figure><img alt="{_e(alt)}" src="data:image/png;base64,{data}">'
-                     f"<figcaption>{_e(caption)}</figcaption></figure>")
-    return "".join(parts)
+    design: Any
+    results: Any
+    sample_sizes: list[Any]
+    precision: Sequence[Any] = ()
+    prior_origin: Any = None
+    source: Any = None
+    planned_n: int = 0
+    planned_reason: str = ""
+    made_by: str = ""
+    created: str = ""
+    seed: int | None = None
+    zones: Any = None
 
 
-def _precision_section(ds: Any, precision: Sequence[Any],
-                       rendered: Mapping[str, bytes] | None) -> str:
-    """Posterior interval width: the n each criterion gives, and the width figure."""
-    if "width_mean" not in ds:
+def _parts_from_plan(plan: Any) -> _Parts:
+    ds = plan.results
+    settings = getattr(plan, "settings", None)
+    seed = getattr(settings, "seed", None)
+    if seed is None:
+        seed = ds.attrs.get("seed")
+    parts = _Parts(
+        design=plan.design, results=ds, sample_sizes=list(plan.sample_sizes),
+        precision=tuple(getattr(plan, "precision", ()) or ()),
+        prior_origin=getattr(plan, "prior_origin", None), source=getattr(plan, "source", None),
+        planned_n=int(getattr(plan, "planned_n", 0) or 0),
+        planned_reason=str(getattr(plan, "planned_reason", "") or ""),
+        made_by=str(getattr(plan, "made_by", "") or ""),
+        created=str(getattr(plan, "created", "") or ""),
+        seed=seed, zones=getattr(settings, "zones", None))
+    if not parts.planned_n:
+        parts.planned_n, parts.planned_reason = _choose_planned(parts.sample_sizes, ds)
+    return parts
+
+
+def _choose_planned(answers: Sequence[SampleSizeAnswer], ds: Any) -> tuple[int, str]:
+    """The size the decision box reports when the plan does not say (as the planner does)."""
+    words = {"assurance": "assurance", "conditional_assurance": "conditional assurance",
+             "power": "classical power"}
+    for quantity in ("assurance", "conditional_assurance", "power"):
+        for answer in answers:
+            if answer.quantity == quantity and answer.reached and answer.n_total is not None:
+                return int(answer.n_total), (f"the smallest size reaching the "
+                                             f"{words[quantity]} target of "
+                                             f"{wd.percent(answer.target)}")
+    why = "no target was reached" if answers else "no target was set"
+    return int(np.max(ds["n"].values)), f"the largest size evaluated ({why})"
+
+
+def _row(ds: Any, n_total: int) -> tuple[int, bool]:
+    """Row of ``ds`` for ``n_total`` and whether it is exactly that size."""
+    j = _nearest(ds, n_total)
+    return j, int(ds["n"].values[j]) == int(n_total)
+
+
+def _pct(ds: Any, name: str, j: int, decimals: int = 1) -> str:
+    """``70.0%`` or ``70.0% ± 0.4`` (Monte Carlo standard error in percentage points)."""
+    if name not in ds:
         return ""
-    rows = []
-    for answer in precision or ():
-        if isinstance(answer, str):
-            rows.append(f"<tr><td colspan=\"3\">{_e(answer)}</td></tr>")
+    text = wd.percent(float(ds[name].values[j]), decimals)
+    mcse = f"{name}_mcse"
+    if mcse in ds:
+        se = 100 * float(ds[mcse].values[j])
+        text += " \u00b1 <0.1" if se < 0.05 else f" \u00b1 {se:.1f}"
+    return text
+
+
+def _arms_text(design: Any, ds: Any, j: int) -> str:
+    if design.endpoint.layout == "single_arm":
+        return "one group"
+    return (f"{int(ds['n_treatment'].values[j])} on treatment, "
+            f"{int(ds['n_control'].values[j])} on control")
+
+
+def _time_unit(endpoint: Any) -> str:
+    return str(getattr(endpoint, "time_unit", None) or "units of time")
+
+
+# ------------------------------------------------------------------------------------------
+# decision box
+# ------------------------------------------------------------------------------------------
+def _unreachable(parts: _Parts) -> list[str]:
+    out = []
+    for answer in parts.sample_sizes:
+        if answer.reached:
             continue
-        size = (f"{answer.n_total} ({answer.n_treatment} / {answer.n_control})"
-                if answer.reached and answer.n_control else
-                (str(answer.n_total) if answer.reached else "not reached"))
-        rows.append(f"<tr><td>{_e(answer.criterion)}</td><td class=\"num\">{_e(size)}</td>"
-                    f"<td>{_e(answer.message)}</td></tr>")
-    table = ("<table class=\"grid\"><thead><tr><th scope=\"col\">Criterion</th>"
-             "<th class=\"num\" scope=\"col\">Total patients (treatment / control)</th>"
-             "<th scope=\"col\">Detail</th></tr></thead>"
-             f"<tbody>{''.join(rows)}</tbody></table>") if rows else ""
-    png = (rendered or {}).get("interval_width")
+        target = wd.percent(answer.target)
+        if answer.quantity == "assurance":
+            out.append(f"No size reaches {target} assurance: even a very large trial succeeds "
+                       f"with probability at most {wd.percent(answer.ceiling)}.")
+        elif answer.quantity == "conditional_assurance":
+            out.append(f"No size reaches {target} conditional assurance: even a very large "
+                       "trial succeeds with probability at most "
+                       f"{wd.percent(answer.ceiling)} when the effect is relevant.")
+        else:
+            highest = getattr(answer, "highest", None)
+            tail = "" if highest is None else f" (the highest found is {wd.percent(highest)})"
+            out.append(f"No size reaches {target} classical power{tail}.")
+        highest = getattr(answer, "highest", None)
+        if answer.quantity != "power" and highest is not None and \
+                highest > answer.ceiling + 5e-4:
+            where = getattr(answer, "highest_n_total", None)
+            out[-1] += (f" (False positives lift it to {wd.percent(highest, 1)}"
+                        + ("" if where is None else f" at {where} patients") + ".)")
+    return out
+
+
+def _decision(parts: _Parts) -> dict[str, Any]:
+    design, ds = parts.design, parts.results
+    ep = design.endpoint
+    j, exact = _row(ds, parts.planned_n)
+    n_shown = int(ds["n"].values[j])
+    assurance = float(ds["assurance"].values[j])
+    power = float(ds["power"].values[j])
+    ceiling = float(ds["ceiling"])
+    tiles = [
+        {"key": "assurance", "label": "Probability of success",
+         "value": wd.percent(assurance), "note": f"at {n_shown} patients"
+         + ("" if "assurance_mcse" not in ds else
+            f" (\u00b1 {100 * float(ds['assurance_mcse'].values[j]):.1f} points, "
+            "Monte Carlo)"), "lead": True},
+        {"key": "ceiling", "label": "Ceiling",
+         "value": wd.percent(ceiling), "note": "the most any size can reach"},
+        {"key": "power", "label": "Classical power",
+         "value": wd.percent(power),
+         "note": f"if the effect is exactly {wd.effect_text(ep, design.assumed_effect)}"},
+        {"key": "gap", "label": "Gap",
+         "value": wd.points(power - assurance).replace("percentage point", "point"),
+         "note": "classical power minus probability of success"},
+    ]
+    if "prob_success_and_relevant" in ds and design.relevant_effect is not None:
+        tiles.append({"key": "success_and_relevant", "label": "Success and a relevant effect",
+                      "value": wd.percent(float(ds["prob_success_and_relevant"].values[j])),
+                      "note": "the effect is at least as good as "
+                              f"{wd.effect_text(ep, design.relevant_effect)}"})
+    false_share = None
+    if "prob_success_and_benefit" in ds and assurance > 0:
+        false_share = min(max(1.0 - float(ds["prob_success_and_benefit"].values[j])
+                              / assurance, 0.0), 1.0)
+        tiles.append({"key": "false_positives", "label": "Successes that are false positives",
+                      "value": wd.percent(false_share),
+                      "note": "the treatment is not truly better"})
+    if "expected_events" in ds.coords or "expected_events" in ds:
+        events = float(ds["expected_events"].values[j])
+        duration = getattr(ep, "analysis_time", None)
+        tiles.append({"key": "events", "label": "Expected events",
+                      "value": f"{events:,.0f}",
+                      "note": ("by the analysis" if duration is None else
+                               f"study duration {wd.number(duration)} {_time_unit(ep)}")})
+    if "patient_time" in ds.coords or "patient_time" in ds:
+        time = float(ds["patient_time"].values[j])
+        tiles.append({"key": "patient_time", "label": "Total patient time",
+                      "value": f"{time:,.0f}", "note": _time_unit(ep)})
+    size = f"{n_shown} patients" + ("" if design.endpoint.layout == "single_arm"
+                                     else f" ({_arms_text(design, ds, j)})")
+    reason = parts.planned_reason or "the size the plan was asked to report"
+    planned = f"Planned size: {size}, {reason}."
+    if not exact:
+        planned += (f" ({parts.planned_n} patients was not computed; the nearest size "
+                    f"computed, {n_shown}, is shown.)")
+    sentences = [planned]
+    if false_share is not None and false_share >= 0.005:
+        sentences.append(
+            f"Of the trials that succeed, about {wd.percent(false_share)} would do so with a "
+            "treatment that is not truly better.")
+    caution = ("These figures rest on the design prior: the sensitivity section shows how "
+               "they move with it, and a statistician should review the design.")
+    return {"lead": _unreachable(parts), "tiles": tiles, "sentences": sentences,
+            "caution": caution, "n": n_shown, "row": j}
+
+
+# ------------------------------------------------------------------------------------------
+# what was assumed
+# ------------------------------------------------------------------------------------------
+def _assumed(parts: _Parts, j: int) -> list[tuple[str, str]]:
+    design, ds = parts.design, parts.results
+    ep = design.endpoint
+    effect = getattr(ep, "effect_name", "effect")
+    rows: list[tuple[str, str]] = [("Outcome and analysis", wd.endpoint_text(ep)),
+                                   ("Success", wd.rule_text(design.rule, ep))]
+    origin = parts.prior_origin
+    recipe = ""
+    if origin is not None and type(origin).__name__ == "DiscountedEstimate":
+        recipe = wd.origin_text(origin, ep).removeprefix("Design prior from an ").rstrip(".")
+        recipe += ", which gives "
+    rows.append((f"Design prior for the {effect}",
+                 f"{recipe}{wd.prior_text(design.design_prior, ep)}. Probability that the "
+                 f"treatment is better: {wd.percent(float(ds['prob_benefit']))}."))
+    if hasattr(ep, "sigma"):
+        unit = getattr(ep, "unit", None)
+        sigma = f"{wd.number(ep.sigma)}{f' {unit}' if unit else ''}"
+        sd_prior = getattr(design, "sigma_prior", None)
+        rows.append(("Outcome SD", f"uncertain, {wd.sd_prior_text(sd_prior, unit)}; classical "
+                     f"power uses the planning value {sigma}" if sd_prior is not None
+                     else f"{sigma}, taken as known when planning"))
+    if getattr(design, "analysis_prior", None) is not None:
+        rows.append(("Analysis prior (used by the final analysis)",
+                     wd.prior_text(design.analysis_prior, ep)))
+    rows.append(("Assumed effect (classical power)", wd.effect_text(ep, design.assumed_effect)))
+    if design.relevant_effect is not None:
+        word = "at most" if ep.better == "lower" else "at least"
+        prob = f"; prior probability of an effect this good: " \
+               f"{wd.percent(float(ds['prob_relevant']))}" if "prob_relevant" in ds else ""
+        rows.append(("Clinically relevant effect",
+                     f"{word} {wd.effect_text(ep, design.relevant_effect)}{prob}"))
+    margin = float(getattr(design.rule, "margin", 0.0) or 0.0)
+    if margin > 0:
+        shown = wd.ratio(margin) if getattr(ep, "ratio_scale", False) else \
+            wd.effect_text(ep, margin)
+        rows.append(("Non-inferiority margin",
+                     f"{shown}: the treatment may be worse than control by less than this"))
+    if "expected_events" in ds.coords or "expected_events" in ds:
+        unit = _time_unit(ep)
+        duration = getattr(ep, "analysis_time", None)
+        if duration is not None:
+            rows.append(("Study duration",
+                         f"{wd.number(duration)} {unit}: {wd.number(ep.accrual_time)} of "
+                         f"accrual, then {wd.number(ep.follow_up_time)} of follow-up"))
+        rows.append(("Expected events",
+                     f"{float(ds['expected_events'].values[j]):,.0f} at {int(ds.n[j])} "
+                     "patients (the analysis takes place when the study ends)"))
+    if "patient_time" in ds.coords or "patient_time" in ds:
+        line = (f"{float(ds['patient_time'].values[j]):,.0f} {_time_unit(ep)} at "
+                f"{int(ds.n[j])} patients")
+        if "expected_events_if_no_effect" in ds.coords:
+            line += (f"; about {float(ds['expected_events_if_no_effect'].values[j]):,.0f} "
+                     "events if the treatment changed nothing")
+        rows.append(("Total patient time", line))
+    region = passable_probability(design)
+    ceiling = float(ds["ceiling"])
+    why = ("the prior probability that the true effect lies where the success rule can be "
+           "passed" if abs(region - ceiling) < 5e-4 else
+           f"the prior probability ({wd.percent(region, 1)}) of the effects the rule can pass, "
+           "plus false positives at the edge of that region")
+    rows.append(("Ceiling of the probability of success", f"{wd.percent(ceiling, 1)}: {why}"))
+    rows.append(("Method", str(ds.attrs.get("method", ""))))
+    draws = int(ds.attrs.get("draws", 0) or 0)
+    if draws > 0:
+        rows.append(("Monte Carlo", f"{draws} draws, seed {_seed_text(parts.seed)}; "
+                     "\u00b1 gives one Monte Carlo standard error"))
+    return rows
+
+
+def _seed_text(seed: Any) -> str:
+    return "not fixed" if seed is None or int(seed) < 0 else str(int(seed))
+
+
+# ------------------------------------------------------------------------------------------
+# candidate sizes and targets
+# ------------------------------------------------------------------------------------------
+def _candidates(parts: _Parts, planned_row: int) -> dict[str, Any]:
+    design, ds, answers = parts.design, parts.results, parts.sample_sizes
+    ep = design.endpoint
+    rows, marked = _pick_rows(ds, answers)
+    rows = sorted(set(rows) | {planned_row})
+    two_arm = ep.layout != "single_arm"
+    head = ["Total patients"] + (["Treatment / control"] if two_arm else [])
+    extra = [(name, label) for name, label in
+             (("expected_events", "Expected events"),
+              ("patient_time", f"Patient time ({_time_unit(ep)})"))
+             if name in ds.coords or name in ds]
+    head += [label for _, label in extra]
+    head += [f"Classical power at {wd.effect_text(ep, design.assumed_effect)}",
+             "Probability of success"]
+    has_rel = "conditional_assurance" in ds
+    if has_rel:
+        head += ["Success if the effect is relevant", "Success and a relevant effect"]
+    head.append("Note")
+    n = ds["n"].values
+    body = []
+    for j in rows:
+        cells = [str(int(n[j]))]
+        if two_arm:
+            cells.append(f"{int(ds['n_treatment'].values[j])} / "
+                         f"{int(ds['n_control'].values[j])}")
+        cells += [f"{float(ds[name].values[j]):,.0f}" for name, _ in extra]
+        cells += [_pct(ds, "power", j), _pct(ds, "assurance", j)]
+        if has_rel:
+            cells += [_pct(ds, "conditional_assurance", j),
+                      _pct(ds, "prob_success_and_relevant", j)]
+        notes = ["planned size"] if j == planned_row else []
+        for answer in marked.get(j, []):
+            exact = answer.n_total == int(n[j])
+            notes.append(f"smallest size for {_target_words(answer)}" if exact else
+                         f"close to the smallest size for {_target_words(answer)} "
+                         f"({answer.n_total})")
+        cells.append("; ".join(notes))
+        body.append({"cells": cells, "marked": j == planned_row or j in marked})
+    note = "Rows are taken from the sizes computed; highlighted rows are the planned size " \
+           "and those nearest to a solved size"
+    if "assurance_mcse" in ds:
+        note += "; \u00b1 gives one Monte Carlo standard error in percentage points"
+    return {"head": head, "rows": body, "note": note + "."}
+
+
+def _target_words(answer: SampleSizeAnswer) -> str:
+    name = _QUANTITY_NAME.get(answer.quantity, answer.quantity)
+    return f"{name} {wd.percent(answer.target)}"
+
+
+def _targets(parts: _Parts) -> list[dict[str, Any]]:
+    two_arm = parts.design.endpoint.layout != "single_arm"
+    out = []
+    for answer in parts.sample_sizes:
+        row = {"name": _target_words(answer), "reached": bool(answer.reached),
+               "ceiling": wd.percent(answer.ceiling, 1), "comment": ""}
+        if answer.reached and answer.n_total is not None:
+            row["n"] = str(answer.n_total)
+            row["arms"] = f"{answer.n_treatment} / {answer.n_control}" if two_arm else ""
+            value = "" if answer.achieved is None else wd.percent(answer.achieved, 1)
+            if value and answer.achieved_mcse is not None:
+                value += f" \u00b1 {100 * answer.achieved_mcse:.1f}"
+            row["achieved"] = value
+            if not answer.message.startswith("Smallest size"):
+                row["comment"] = answer.message
+        else:
+            row["comment"] = answer.message
+        out.append(row)
+    return out
+
+
+# ------------------------------------------------------------------------------------------
+# sensitivity, zones, precision, type I error
+# ------------------------------------------------------------------------------------------
+def _target_label(key: Any) -> str:
+    if isinstance(key, int | float | np.floating | np.integer):
+        return f"Size for {wd.percent(float(key))} assurance"
+    return f"Size for the {str(key).replace('_', ' ')} target"
+
+
+def _sensitivity(parts: _Parts, figures: bool,
+                 rendered: Mapping[str, bytes] | None) -> dict[str, Any] | None:
+    ds = parts.results
+    if "sensitivity_assurance" not in ds:
+        return None
+    ep = parts.design.endpoint
+    planned = int(ds["sensitivity_planned_n"]) if "sensitivity_planned_n" in ds \
+        else parts.planned_n
+    names = [str(v) for v in ds["variation"].values]
+    descriptions = [str(v) for v in ds["variation_description"].values] \
+        if "variation_description" in ds.variables else names
+    keys = list(ds["sensitivity_target"].values) if "sensitivity_n" in ds else []
+    targets = {a.quantity: a.target for a in parts.sample_sizes}
+    head = ["Design prior", f"Probability of success at {planned} patients", "Ceiling"]
+    for key in keys:
+        target = targets.get(str(key))
+        head.append(f"Size for {wd.percent(target)} {str(key).replace('_', ' ')}"
+                    if target is not None else _target_label(key))
+    rows = []
+    for i, (name, text) in enumerate(zip(names, descriptions, strict=True)):
+        if name == "elicited":
+            text = "as elicited: " + wd.prior_text(parts.design.design_prior, ep)
+        cells = [wd._no_code(text), wd.percent(float(ds["sensitivity_assurance"].values[i]), 1),
+                 wd.percent(float(ds["sensitivity_ceiling"].values[i]), 1)]
+        for k in range(len(keys)):
+            value = int(ds["sensitivity_n"].values[i, k])
+            cells.append("not reachable" if value < 0 else f"{value:,}")
+        rows.append({"name": name, "cells": cells, "marked": name == "elicited"})
+    sentence = str(ds.attrs.get("sensitivity_sentence", ""))
+    figure = None
+    if figures:
+        figure = _figure(
+            "sensitivity_map", rendered,
+            lambda: _call("plot_sensitivity_map", ds, parts.design),
+            f"Probability of success at {planned} patients over the prior's centre and "
+            "spread",
+            "Each point is a design prior with that centre and spread; the elicited prior is "
+            "marked and the line shows where the target is just met.")
+    return {"head": head, "rows": rows, "sentence": sentence, "figure": figure}
+
+
+def _zones(parts: _Parts, figures: bool, rendered: Mapping[str, bytes] | None,
+           planned_row: int) -> dict[str, Any] | None:
+    ds = parts.results
+    if "prob_go" not in ds:
+        return None
+    ep = parts.design.endpoint
+    rows, _ = _pick_rows(ds, parts.sample_sizes)
+    rows = sorted(set(rows) | {planned_row})
+    table = [{"cells": [str(int(ds.n.values[i])), _pct(ds, "prob_go", i),
+                        _pct(ds, "prob_consider", i), _pct(ds, "prob_stop", i)],
+              "marked": i == planned_row} for i in rows]
+    n = int(ds.n.values[planned_row])
+    go = float(ds["prob_go"].values[planned_row])
+    success = float(ds["assurance"].values[planned_row])
+    zones = parts.zones
+    if zones is not None:
+        rule = (f"go when the probability that the effect is better than "
+                f"{wd.effect_text(ep, zones.min_acceptable)} (the minimum acceptable) is at "
+                f"least {wd.percent(zones.go_min_prob)}"
+                + ("" if zones.go_target_prob is None else
+                   f" and that it is better than {wd.effect_text(ep, zones.target)} (the "
+                   f"target) is at least {wd.percent(zones.go_target_prob)}")
+                + f"; stop when the probability of an effect better than the target is below "
+                f"{wd.percent(zones.stop_target_prob)}; consider otherwise")
+        go_needs = (f"posterior probabilities of beating the minimum acceptable effect "
+                    f"({wd.effect_text(ep, zones.min_acceptable)}) and the target effect "
+                    f"({wd.effect_text(ep, zones.target)})")
+    else:
+        rule = wd._no_code(str(ds.attrs.get("zones", "")))
+        go_needs = "posterior probabilities of beating the minimum acceptable and target effects"
+    reconcile = ""
+    if abs(go - success) >= 0.005:
+        higher = "lower" if go < success else "higher"
+        reconcile = (
+            f"At {n} patients the chance of a go decision is {wd.percent(go)}, {higher} than "
+            f"the {wd.percent(success)} probability of success: they are different rules on "
+            f"different quantities. Success needs the final test to pass the success rule "
+            f"({wd.rule_text(parts.design.rule, ep)}); go needs {go_needs}, computed with "
+            "the analysis prior, so it asks for a larger observed effect.")
+    figs = []
+    if figures:
+        figs.append(_figure("zones", rendered, lambda: _call("plot_zones", ds),
+                            "Chances of go, consider and stop by sample size",
+                            "Probabilities under the design prior."))
+        figs.append(_figure("zone_characteristic", rendered,
+                            lambda: _call("plot_zone_characteristic", ds, n),
+                            f"Chances of go, consider and stop against the true effect at {n} "
+                            "patients",
+                            "The operating characteristic of the rule: what it decides if the "
+                            "true effect is exactly the value on the horizontal axis."))
+    return {"rule": rule, "rows": table, "reconcile": reconcile,
+            "source": ZONES_SOURCE, "figures": [f for f in figs if f]}
+
+
+def _precision(parts: _Parts, figures: bool,
+               rendered: Mapping[str, bytes] | None) -> dict[str, Any] | None:
+    ds = parts.results
+    if "width_mean" not in ds:
+        return None
+    ep = parts.design.endpoint
+    rows, left_out = [], []
+    for answer in parts.precision or ():
+        if isinstance(answer, str):
+            left_out.append(f"The {wd.criterion_name(answer)} criterion cannot be computed "
+                            "for this design with the method used, so it is left out.")
+            continue
+        what = {"ACC": "average coverage"}.get(answer.criterion, "width")
+        if answer.reached and answer.n_total is not None:
+            size = f"{answer.n_total:,}" + (
+                f" ({answer.n_treatment} / {answer.n_control})" if answer.n_control else "")
+            value = (wd.percent(answer.achieved, 1) if answer.criterion == "ACC" else
+                     wd.number(answer.achieved)) if answer.achieved is not None else ""
+            detail = f"{what} {value} at this size" if value else ""
+        else:
+            size, detail = "not reached", ""
+        target = (f"{wd.percent(answer.coverage)} interval no longer than "
+                  f"{wd.number(answer.length)}")
+        rows.append({"cells": [wd.criterion_name(answer.criterion), target, size, detail]})
+    sd_note = ""
+    if getattr(ep, "analysis", None) == "t":
+        sd_note = ("The final analysis estimates the SD (t test), but these widths treat the "
+                   "SD as known (the planning value), so for small trials they are slightly "
+                   "optimistic.")
+    figure = None
+    if figures:
+        figure = _figure("interval_width", rendered,
+                         lambda: _call("plot_interval_width", ds, parts.precision),
+                         "Posterior interval width against sample size",
+                         "Width of the posterior interval for the effect, over data the "
+                         "design prior makes likely.")
+    return {"note": wd._no_code(str(ds.attrs.get("precision", ""))), "rows": rows,
+            "left_out": left_out, "sd_note": sd_note, "figure": figure,
+            "source": PRECISION_SOURCE}
+
+
+def _type_one(parts: _Parts) -> dict[str, Any] | None:
+    design, ds = parts.design, parts.results
+    rule = design.rule
+    nominal = getattr(rule, "one_sided_alpha", None)
+    kind = design.endpoint.to_dict().get("kind")
+    if "type_one_error" not in ds or nominal is None:
+        return None
+    t1 = np.asarray(ds["type_one_error"].values, dtype=float)
+    over = t1 > nominal * (1 + TYPE_ONE_TOLERANCE)
+    text = []
+    if over.any():
+        n = ds["n"].values
+        worst = int(np.argmax(t1))
+        where = (f"at {int(n[over][0])} patients" if over.sum() == 1 else
+                 f"at {int(over.sum())} of the {n.size} sizes computed, between "
+                 f"{int(n[over].min())} and {int(n[over].max())} patients")
+        text.append(f"The chance of a success when the treatment has no effect (type I error) "
+                    f"exceeds the nominal {wd.percent(nominal, 1)} {where}; the worst is "
+                    f"{wd.percent(float(t1[worst]), 2)} at {int(n[worst])} patients.")
+    if kind == "binary":
+        text.append("With a yes/no outcome the possible results are counts, so the set of "
+                    "results that count as a success changes in steps as the trial grows: "
+                    "exact power and type I error rise and fall in a saw-tooth rather than "
+                    "smoothly with the sample size.")
+    if not text:
+        return None
+    return {"sentences": text}
+
+
+# ------------------------------------------------------------------------------------------
+# figures, provenance
+# ------------------------------------------------------------------------------------------
+def _call(name: str, *args: Any) -> Any:
+    """A figure function of :mod:`.figures` by name, or None where it does not exist."""
+    from . import figures as fg
+
+    draw = getattr(fg, name, None)
+    return None if draw is None else draw(*args)
+
+
+def _figure(name: str, rendered: Mapping[str, bytes] | None, draw: Any, alt: str,
+            caption: str) -> dict[str, str] | None:
+    png = (rendered or {}).get(name)
     if png is None:
-        from .figures import figure_bytes, plot_interval_width
-
-        png = figure_bytes(plot_interval_width(ds, precision).figure, "png")
-    data = base64.b64encode(png).decode("ascii")
-    figure = (f'<figure><img alt="Posterior interval width against sample size" '
-              f'src="data:image/png;base64,{data}"><figcaption>Width of the posterior interval '
-              "for the effect, over data the design prior makes likely.</figcaption></figure>")
-    note = _e(ds.attrs.get("precision", ""))
-    return (f"<section><h2>How precisely the effect will be known</h2><p>{note}. ALC: "
-            "average width within the target; ACC: average coverage of an interval of the "
-            "target length; WOC / MWOC: worst width over all / the most likely data sets "
-            f"(Joseph, Wolfson &amp; du Berger 1995).</p>{table}{figure}</section>")
-
-
-def _origin_section(origin: Any, rendered: Mapping[str, bytes] | None) -> str:
-    """Where the design prior comes from: a fit to judgements, an earlier trial, a meta-analysis."""
-    if origin is None:
-        return ""
-    text = origin if isinstance(origin, str) else origin.report()
-    figure = ""
-    if type(origin).__name__ == "PriorFit":
+        ax = draw()
+        if ax is None:
+            return None
         from .figures import figure_bytes
 
-        png = (rendered or {}).get("prior_fit")
-        if png is None:
-            from .figures import plot_fit
-
-            png = figure_bytes(plot_fit(origin).figure, "png")
-        data = base64.b64encode(png).decode("ascii")
-        figure = (f'<figure><img alt="Fitted prior against the elicited judgements" '
-                  f'src="data:image/png;base64,{data}"><figcaption>Elicited judgements and '
-                  "the fitted distribution function.</figcaption></figure>")
-    return (f"<section><h2>Where the design prior comes from</h2><pre>{_e(text)}</pre>"
-            f"{figure}</section>")
+        png = figure_bytes(ax.figure, "png")
+    data = base64.b64encode(png).decode("ascii")
+    return {"src": f"data:image/png;base64,{data}", "alt": alt, "caption": caption}
 
 
-def _zones_section(ds: Any, answers: Sequence[SampleSizeAnswer]) -> str:
-    """Go / consider / stop probabilities at the candidate sizes, when the results have them."""
-    if "prob_go" not in ds:
-        return ""
-    rows, _ = _pick_rows(ds, answers)
-    mc = "prob_go_mcse" in ds
-    head = ("<tr><th class=\"num\" scope=\"col\">Total patients</th>"
-            "<th class=\"num\" scope=\"col\">P(go)</th>"
-            "<th class=\"num\" scope=\"col\">P(consider)</th>"
-            "<th class=\"num\" scope=\"col\">P(stop)</th></tr>")
-    body = []
-    for i in rows:
-        go = _p(float(ds["prob_go"][i]))
-        stop = _p(float(ds["prob_stop"][i]))
-        if mc:
-            go += f" \u00b1 {float(ds['prob_go_mcse'][i]):.3f}"
-            stop += f" \u00b1 {float(ds['prob_stop_mcse'][i]):.3f}"
-        body.append(f"<tr><td class=\"num\">{int(ds.n[i])}</td><td class=\"num\">{_e(go)}</td>"
-                    f"<td class=\"num\">{_e(_p(float(ds['prob_consider'][i])))}</td>"
-                    f"<td class=\"num\">{_e(stop)}</td></tr>")
-    rule = _e(ds.attrs.get("zones", ""))
-    return (f"<section><h2>Go, consider or stop</h2><p>Rule: {rule}. Probabilities under the "
-            f"design prior.</p><table class=\"grid\"><thead>{head}</thead>"
-            f"<tbody>{''.join(body)}</tbody></table></section>")
+def _origin(parts: _Parts, figures: bool,
+            rendered: Mapping[str, bytes] | None) -> dict[str, Any] | None:
+    origin = parts.prior_origin
+    if origin is None:
+        return None
+    figure = None
+    if figures and type(origin).__name__ == "PriorFit":
+        figure = _figure("prior_fit", rendered, lambda: _call("plot_fit", origin),
+                         "Fitted prior against the elicited judgements",
+                         "Elicited judgements and the fitted distribution function.")
+    return {"text": wd.origin_text(origin, parts.design.endpoint), "figure": figure}
+
+
+def _provenance(parts: _Parts, versions: str, date: str) -> dict[str, Any]:
+    rows: list[tuple[str, str]] = []
+    source = parts.source
+    if source is not None:
+        rows.append(("Design file", str(source.path)))
+        rows.append(("SHA-256 of the design file", hashlib.sha256(source.content).hexdigest()))
+    else:
+        rows.append(("Design file", "none (the plan was made in Python)"))
+    rows.append(("Made by", parts.made_by or "not recorded"))
+    rows.append(("Computed (UTC)", parts.created or "not recorded"))
+    rows.append(("Memo written", date))
+    rows.append(("Seed", _seed_text(parts.seed)))
+    rows.append(("Method", str(parts.results.attrs.get("method", ""))))
+    return {"rows": rows, "versions": versions}
 
 
 def _date_text(date: _dt.date | str | None) -> str:
@@ -559,6 +863,175 @@ def _date_text(date: _dt.date | str | None) -> str:
     )
 
 
+@functools.lru_cache(maxsize=1)
+def _template() -> Any:
+    import jinja2
+
+    env = jinja2.Environment(
+        loader=jinja2.FileSystemLoader(str(Path(__file__).with_name("templates"))),
+        autoescape=True, trim_blocks=True, lstrip_blocks=True,
+        undefined=jinja2.StrictUndefined,
+        # control characters, line separators and direction overrides become visible escapes
+        finalize=lambda v: printable(v, line_breaks=True) if isinstance(v, str) else v)
+    return env.get_template("memo.html")
+
+
+def _render(parts: _Parts, *, cautions: Sequence[str], versions: str | None,
+            date: _dt.date | str | None, figures: bool,
+            rendered: Mapping[str, bytes] | None, design_record: str | None) -> str:
+    if isinstance(cautions, str):
+        cautions = [cautions]
+    cautions = [str(c) for c in cautions]
+    versions = _versions_text() if versions is None else str(versions)
+    design, ds = parts.design, parts.results
+    decision = _decision(parts)
+    j = decision["row"]
+    main = prior = None
+    if figures:
+        main = _figure("power_and_assurance", rendered,
+                       lambda: _call("plot_power_and_assurance", ds) if not parts.sample_sizes
+                       else _power_figure(ds, parts.sample_sizes),
+                       "Classical power, probability of success and the ceiling by total "
+                       "sample size",
+                       "Classical power assumes the effect is exactly the assumed value; the "
+                       "probability of success (assurance) averages over the design prior and "
+                       "cannot pass the dashed ceiling.")
+        prior = _figure("prior", rendered, lambda: _call("plot_prior", design),
+                        "The design prior for the true effect",
+                        "The shaded side holds the effects at which the rule can be passed "
+                        "with enough patients; their prior probability sets the ceiling.")
+    if design_record is None:
+        recorded = json.dumps(json.loads(ds.attrs["design"]), indent=2)
+        recorded_title = "Design as recorded with the results"
+    else:
+        recorded, recorded_title = design_record, "Design file as planned (design.toml)"
+    context = {
+        "title": printable(design.title),  # one line, even if the title holds a line break
+        "date": _date_text(date),
+        "package": str(ds.attrs.get("package_version", "")),
+        "decision": decision,
+        "assumed": _assumed(parts, j),
+        "prior_figure": prior,
+        "main_figure": main,
+        "candidates": _candidates(parts, j),
+        "targets": _targets(parts),
+        "two_arm": design.endpoint.layout != "single_arm",
+        "sensitivity": _sensitivity(parts, figures, rendered),
+        "zones": _zones(parts, figures, rendered, j),
+        "precision": _precision(parts, figures, rendered),
+        "type_one": _type_one(parts),
+        "origin": _origin(parts, figures, rendered),
+        "provenance": _provenance(parts, versions, _date_text(date)),
+        "recorded": recorded,
+        "recorded_title": recorded_title,
+        "cautions": cautions,
+    }
+    return _template().render(**context)
+
+
+def _power_figure(ds: Any, answers: Sequence[SampleSizeAnswer]) -> Any:
+    from .figures import plot_power_and_assurance
+
+    return plot_power_and_assurance(ds, answers=list(answers))
+
+
+def plan_memo_html(
+    plan: Any,
+    *,
+    figures: bool = True,
+    rendered: Mapping[str, bytes] | None = None,
+    cautions: Sequence[str] = DEFAULT_CAUTIONS,
+    versions: str | None = None,
+    date: _dt.date | str | None = None,
+    design_record: str | None = None,
+) -> str:
+    """The decision memo of a :class:`~assurance.Plan` as one self-contained HTML string.
+
+    In order: the decision box (probability of success at the planned size, the ceiling,
+    classical power and the gap, success with a relevant effect, the share of successes that
+    are false positives, events or patient time), what was assumed, the main figure, the
+    candidate sizes, sensitivity to the design prior, go / consider / stop, precision, a
+    type I error note, where the prior comes from, provenance and cautions. Built from one
+    template (``report/templates/memo.html``) with autoescaping.
+
+    Parameters
+    ----------
+    plan
+        The plan (:func:`assurance.plan` or :meth:`assurance.Plan.from_file`).
+    figures
+        Embed the figures (as PNG data inside the file).
+    rendered
+        PNG bytes of figures already drawn, keyed by name (``"power_and_assurance"``,
+        ``"prior"``, ``"prior_fit"``, ``"interval_width"``, ``"zones"``,
+        ``"zone_characteristic"``, ``"sensitivity_map"``); the others are drawn here.
+    cautions, versions, date
+        As for :func:`write_memo`.
+    design_record
+        The normalised design file shown under provenance; ``plan.design_record()`` unless
+        given.
+
+    Returns
+    -------
+    str
+        A complete HTML document.
+
+    Examples
+    --------
+    >>> import assurance as asr
+    >>> design = asr.TrialDesign(asr.ContinuousEndpoint(sigma=10.0, analysis="z"),
+    ...                          asr.Normal(4.0, 2.0), title="Demo")
+    >>> p = asr.plan(design, targets={"assurance": 0.6}, sizes=[100, 200])
+    >>> page = plan_memo_html(p, figures=False, date="2026-01-01", versions="-")
+    >>> page.startswith("<!DOCTYPE html>"), "<script" in page
+    (True, False)
+    """
+    if not hasattr(plan, "design") or not hasattr(plan, "results") or \
+            not hasattr(plan, "sample_sizes"):
+        raise AssuranceInputError(
+            "The 'plan' parameter of plan_memo_html must be an assurance.Plan. "
+            f"Got {type(plan).__name__} instead.")
+    parts = _parts_from_plan(plan)
+    _check_inputs(parts.design, parts.results, parts.sample_sizes, "plan_memo_html")
+    if design_record is None and hasattr(plan, "design_record"):
+        design_record = plan.design_record()
+    return _render(parts, cautions=cautions, versions=versions, date=date, figures=figures,
+                   rendered=rendered, design_record=design_record)
+
+
+def write_plan_memo(
+    plan: Any,
+    path: str | os.PathLike[str],
+    *,
+    overwrite: bool = False,
+    figures: bool = True,
+    rendered: Mapping[str, bytes] | None = None,
+    cautions: Sequence[str] = DEFAULT_CAUTIONS,
+    versions: str | None = None,
+    date: _dt.date | str | None = None,
+    design_record: str | None = None,
+) -> Path:
+    """Write :func:`plan_memo_html` of ``plan`` to ``path`` (atomically, never overwriting
+    unless asked).
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> import assurance as asr
+    >>> design = asr.TrialDesign(asr.ContinuousEndpoint(sigma=10.0, analysis="z"),
+    ...                          asr.Normal(4.0, 2.0))
+    >>> p = asr.plan(design, targets={"assurance": 0.6}, sizes=[100, 200])
+    >>> with tempfile.TemporaryDirectory() as folder:
+    ...     path = write_plan_memo(p, pathlib.Path(folder) / "memo.html", figures=False)
+    ...     print(path.name, "ICH E9" in path.read_text(encoding="utf-8"))
+    memo.html True
+    """
+    target = check_target(path, "write_plan_memo", overwrite)
+    page = plan_memo_html(plan, figures=figures, rendered=rendered, cautions=cautions,
+                          versions=versions, date=date, design_record=design_record)
+    return write_atomic(target, page.encode("utf-8"), overwrite=overwrite,
+                        owner="write_plan_memo")
+
+
 def memo_html(
     design: TrialDesign,
     ds: Any,
@@ -572,6 +1045,7 @@ def memo_html(
     prior_origin: Any = None,
     precision: Sequence[Any] = (),
     design_record: str | None = None,
+    plan: Any = None,
 ) -> str:
     """The decision memo as one HTML string (see :func:`write_memo`).
 
@@ -581,13 +1055,18 @@ def memo_html(
         As for :func:`write_memo`.
     rendered
         PNG bytes of figures already drawn, keyed by name (``"power_and_assurance"``,
-        ``"prior"``), so a caller that saved them does not draw them twice.
+        ``"prior"``, ...), so a caller that saved them does not draw them twice.
     prior_origin
         What the design prior was built from: a fit to elicited judgements
-        (:class:`~assurance.priors.elicitation.PriorFit`), a meta-analytic prior, or a sentence.
+        (:class:`~assurance.priors.elicitation.PriorFit`), an earlier trial, a meta-analytic
+        prior, or a sentence.
     precision
         Precision answers (one per criterion) shown with the interval-width figure when
         ``ds`` holds ``width_mean``.
+    plan
+        The :class:`~assurance.Plan` these came from; when given, its planned size, its
+        provenance (design file, command, time, seed) and its zone rule are used too
+        (:func:`plan_memo_html` does the same from the plan alone).
 
     Returns
     -------
@@ -605,51 +1084,19 @@ def memo_html(
     (True, False)
     """
     answers = _check_inputs(design, ds, answers, "memo_html")
-    if isinstance(cautions, str):
-        cautions = [cautions]
-    cautions = [str(c) for c in cautions]
-    versions = _versions_text() if versions is None else str(versions)
-    title = printable(design.title)  # one line, even if the title holds a line break
-    package = ds.attrs.get("package_version", "")
-    summary = " ".join(_summary_sentences(design, ds, answers))
-    seed = ds.attrs.get("seed", -1)
-    draws = int(ds.attrs.get("draws", 0) or 0)
-    run = [f"method: {ds.attrs.get('method', '')}"]
-    if draws > 0:
-        run.append(f"Monte Carlo draws: {draws}; seed: "
-                   + ("not fixed" if seed is None or int(seed) < 0 else str(seed)))
-    if design_record is None:
-        recorded = json.dumps(json.loads(ds.attrs["design"]), indent=2)
-        recorded_title = "Design as recorded with the results"
+    if plan is not None:
+        parts = _parts_from_plan(plan)
+        parts.design, parts.results, parts.sample_sizes = design, ds, answers
     else:
-        recorded, recorded_title = design_record, "Design file as planned (design.toml)"
-    caution_items = "".join(f"<li>{_e(c)}</li>" for c in cautions)
-    figure_block = (f"<section><h2>Figures</h2>{_figures(design, ds, answers, rendered)}"
-                    "</section>"
-                    if figures else "")
-    return (
-        "<!DOCTYPE html>\n"
-        '<html lang="en"><head><meta charset="utf-8">'
-        '<meta name="viewport" content="width=device-width, initial-scale=1">'
-        f"<title>{_e(title)}: sample-size memo</title><style>{_CSS}</style></head>"
-        "<body><main>"
-        f"<header><h1>{_e(title)}</h1><p class=\"meta\">Sample-size decision memo "
-        f"\u00b7 generated {_e(_date_text(date))} \u00b7 assurance {_e(package)}</p></header>"
-        f'<section class="summary"><h2>In short</h2><p>{_e(summary)}</p></section>'
-        f"<section><h2>Design</h2>{_facts(design, ds)}</section>"
-        f"<section><h2>Candidate sample sizes</h2>{_candidates(design, ds, answers)}</section>"
-        f"<section><h2>Sample sizes for the targets</h2>{_targets(design, answers)}</section>"
-        f"{_zones_section(ds, answers)}"
-        f"{_origin_section(prior_origin, rendered)}"
-        f"{_precision_section(ds, precision, rendered)}"
-        f"{figure_block}"
-        f'<section class="cautions"><h2>Cautions</h2><ul>{caution_items}</ul></section>'
-        '<section class="provenance"><h2>Provenance</h2>'
-        f"<pre>{_e(chr(10).join(run))}\n\n{_e(versions)}</pre>"
-        f"<details><summary>{_e(recorded_title)}</summary>"
-        f"<pre>{_e(recorded)}</pre></details></section>"
-        "</main></body></html>\n"
-    )
+        planned_n, reason = _choose_planned(answers, ds)
+        seed = ds.attrs.get("seed")
+        parts = _Parts(design=design, results=ds, sample_sizes=answers,
+                       planned_n=planned_n, planned_reason=reason,
+                       seed=None if seed is None else int(seed))
+    parts.prior_origin = prior_origin if prior_origin is not None else parts.prior_origin
+    parts.precision = tuple(precision) if precision else parts.precision
+    return _render(parts, cautions=cautions, versions=versions, date=date, figures=figures,
+                   rendered=rendered, design_record=design_record)
 
 
 def _versions_text() -> str:
@@ -673,13 +1120,15 @@ def write_memo(
     prior_origin: Any = None,
     precision: Sequence[Any] = (),
     design_record: str | None = None,
+    plan: Any = None,
 ) -> Path:
     """Write the decision memo for a design as one self-contained HTML file.
 
-    The memo gives, in order: a short summary (assurance against classical power and the
-    ceiling), the design, candidate sample sizes taken from ``ds``, the sizes that reach
-    each target (and the targets that cannot be reached), the figures, cautions and
-    provenance. Nothing is computed beyond what ``ds`` and ``answers`` hold.
+    The memo gives, in order: the decision box, what was assumed, the main figure, candidate
+    sample sizes taken from ``ds`` and the sizes that reach each target, sensitivity, zones
+    and precision (when ``ds`` holds them), a type I error note, the prior's origin,
+    provenance and cautions (see :func:`plan_memo_html`). Nothing is computed beyond what
+    ``ds`` and ``answers`` hold.
 
     Parameters
     ----------
@@ -714,6 +1163,9 @@ def write_memo(
     design_record
         The normalised design file (``design.toml`` text) shown under provenance; without
         it, the design as recorded in ``ds``.
+    plan
+        The :class:`~assurance.Plan` these came from, for its planned size, provenance and
+        zone rule (see :func:`memo_html`; :func:`write_plan_memo` takes the plan alone).
 
     Returns
     -------
@@ -743,5 +1195,5 @@ def write_memo(
     target = check_target(path, "write_memo", overwrite)
     page = memo_html(design, ds, answers, cautions=cautions, versions=versions, date=date,
                      figures=figures, rendered=rendered, prior_origin=prior_origin,
-                     precision=precision, design_record=design_record)
+                     precision=precision, design_record=design_record, plan=plan)
     return write_atomic(target, page.encode("utf-8"), overwrite=overwrite, owner="write_memo")
