@@ -437,12 +437,17 @@ def _decision(parts: _Parts) -> dict[str, Any]:
                       "note": "the effect is at least as good as "
                               f"{wd.effect_text(ep, design.relevant_effect)}"})
     false_share = None
+    non_inferiority = float(getattr(design.rule, "margin", 0.0) or 0.0) > 0
     if "prob_success_and_benefit" in ds and assurance > 0:
+        # share of successes where the true effect is not beneficial (effect <= no effect):
+        # 1 - P(success and truly better) / P(success)
         false_share = min(max(1.0 - float(ds["prob_success_and_benefit"].values[j])
                               / assurance, 0.0), 1.0)
-        tiles.append({"key": "false_positives", "label": "Successes that are false positives",
-                      "value": wd.percent(false_share),
-                      "note": "the treatment is not truly better"})
+        if not non_inferiority:
+            tiles.append({"key": "false_positives",
+                          "label": "Successes that are false positives",
+                          "value": wd.percent(false_share),
+                          "note": "the treatment is not truly better"})
     if "expected_events" in ds.coords or "expected_events" in ds:
         events = float(ds["expected_events"].values[j])
         duration = getattr(ep, "analysis_time", None)
@@ -462,7 +467,12 @@ def _decision(parts: _Parts) -> dict[str, Any]:
         planned += (f" ({parts.planned_n} patients was not computed; the nearest size "
                     f"computed, {n_shown}, is shown.)")
     sentences = [planned]
-    if false_share is not None and false_share >= 0.005:
+    if false_share is not None and non_inferiority:
+        sentences.append(
+            f"Success here shows non-inferiority, not superiority: about "
+            f"{wd.percent(false_share)} of the trials that succeed would do so with a "
+            "treatment that is not truly better than control.")
+    elif false_share is not None and false_share >= 0.005:
         sentences.append(
             f"Of the trials that succeed, about {wd.percent(false_share)} would do so with a "
             "treatment that is not truly better.")
