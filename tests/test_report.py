@@ -189,16 +189,21 @@ def test_memo_escapes_the_title(exact_page):
     assert "<b>&" not in exact_page
 
 
+def _pct(p, decimals=1):
+    """The memo's percentage (one decimal in tables), written out here."""
+    return f"{100 * p:.{decimals}f}%"
+
+
 def test_memo_shows_the_numbers_it_promises(exact, exact_page):
     _, ds, answers = exact
-    assert f"{float(ds.ceiling):.3f}" in exact_page
-    assert f"{float(ds.prob_relevant):.3f}" in exact_page
+    assert _pct(float(ds.ceiling)) in exact_page
+    assert f"{100 * float(ds.prob_relevant):.0f}%" in exact_page
     reached = answers[0]
-    assert f"{reached.achieved:.3f}" in exact_page and f">{reached.n_total}<" in exact_page
-    # a row of the candidate table, exactly as in ds
+    assert _pct(reached.achieved) in exact_page and f">{reached.n_total}<" in exact_page
+    # a row of the candidate table, exactly as in ds (percentages, one decimal)
     j = int(np.flatnonzero(ds.n.values == 100)[0])
-    assert f">{float(ds.assurance[j]):.3f}<" in exact_page
-    assert f">{float(ds.power[j]):.3f}<" in exact_page
+    assert f">{_pct(float(ds.assurance[j]))}<" in exact_page
+    assert f">{_pct(float(ds.power[j]))}<" in exact_page
     assert "2026-01-05" in exact_page and "assurance test-build" in exact_page
 
 
@@ -206,8 +211,9 @@ def test_memo_reports_an_unreachable_target(exact, exact_page):
     unreachable = exact[2][2]
     assert not unreachable.reached
     assert "not reachable" in exact_page
-    assert html.escape(unreachable.message) in exact_page
-    assert "Assurance 0.99 cannot be reached" in exact_page
+    assert unreachable.message in html.unescape(exact_page)
+    assert (f"No size reaches 99% assurance: even a very large trial succeeds with "
+            f"probability at most {100 * unreachable.ceiling:.0f}%.") in exact_page
 
 
 def test_memo_with_monte_carlo_shows_standard_errors(monte_carlo):
@@ -215,8 +221,8 @@ def test_memo_with_monte_carlo_shows_standard_errors(monte_carlo):
     page = memo_html(design, ds, answers, date=DATE, versions=VERSIONS, figures=False)
     j = int(np.flatnonzero(ds.n.values == 100)[0])
     value, se = float(ds.assurance[j]), float(ds.assurance_mcse[j])
-    assert f"{value:.3f} \u00b1 {se:.3f}" in page
-    assert f"{answers[0].achieved:.3f} \u00b1 {answers[0].achieved_mcse:.3f}" in page
+    assert f"{_pct(value)} \u00b1 {100 * se:.1f}" in page  # standard error in points
+    assert f"{_pct(answers[0].achieved)} \u00b1 {100 * answers[0].achieved_mcse:.1f}" in page
     assert f"{DRAWS} draws, seed 7" in page
     assert "Monte Carlo standard error" in page
 
@@ -243,11 +249,12 @@ def test_memo_refuses_a_dataset_of_another_design(exact, monte_carlo):
         memo_html(exact[0], monte_carlo[1], [], figures=False)
 
 
-def test_memo_without_targets_summarises_the_grid(exact):
+def test_memo_without_targets_reports_the_largest_size(exact):
     design, ds, _ = exact
     page = memo_html(design, ds, None, date=DATE, versions=VERSIONS, figures=False)
-    assert "No target was solved" in page
-    assert f"From {int(ds.n[0])} to {int(ds.n[-1])} patients" in page
+    assert "No target was set for this plan." in page
+    assert (f"Planned size: {int(ds.n[-1])} patients (" in page
+            and "the largest size evaluated (no target was set)." in page)
 
 
 def test_custom_cautions_replace_the_default(exact):
