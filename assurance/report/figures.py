@@ -92,7 +92,7 @@ def _style(ax: Axes) -> None:
     ax.set_axisbelow(True)
 
 
-def _legend(ax: Axes, **kwargs: Any) -> None:
+def _legend(ax: Axes, **kwargs: Any) -> Any:
     kwargs.setdefault("fontsize", 8.8)
     kwargs.setdefault("frameon", True)
     legend = ax.legend(**kwargs)
@@ -102,6 +102,7 @@ def _legend(ax: Axes, **kwargs: Any) -> None:
     frame.set_edgecolor("#CCCCCC")
     frame.set_facecolor("white")
     frame.set_alpha(0.92)
+    return legend
 
 
 def _legend_below(ax: Axes) -> None:
@@ -173,6 +174,23 @@ def _design_dict(ds: Any) -> dict[str, Any]:
         return {}
 
 
+def _assumed_words(info: dict[str, Any]) -> str:
+    """"assumed hazard ratio (0.75)", "assumed effect (3 metres)": the effect classical power
+    is computed at, from a dataset's design record."""
+    endpoint = info.get("endpoint", {})
+    assumed = info.get("assumed_effect")
+    name, _, unit = _effect_scale(endpoint) if endpoint else ("effect", "", "")
+    if unit != "ratio":
+        name = "effect"
+    if not isinstance(assumed, int | float):
+        return f"assumed {name}"
+    if unit == "percentage points":
+        return f"assumed {name} ({100 * assumed:.4g} percentage points)"
+    if unit in ("ratio", "units of the outcome", ""):
+        return f"assumed {name} ({assumed:g})"
+    return f"assumed {name} ({assumed:g} {unit})"
+
+
 def _check_dataset(ds: Any, owner: str, needed: Sequence[str] = ("power", "assurance")) -> None:
     missing = [name for name in needed if not hasattr(ds, "data_vars") or name not in ds]
     if missing or "n" not in getattr(ds, "dims", ()):
@@ -183,19 +201,173 @@ def _check_dataset(ds: Any, owner: str, needed: Sequence[str] = ("power", "assur
         )
 
 
+def _endpoint_dict(endpoint: dict[str, Any] | Any) -> dict[str, Any]:
+    if isinstance(endpoint, dict):
+        return endpoint
+    try:
+        return dict(endpoint.to_dict())
+    except (AttributeError, TypeError, ValueError):
+        return {}
+
+
+_RATIO_NAMES = {"time_to_event": "hazard ratio", "counts": "rate ratio"}
+_BINARY_NAMES = {"risk_ratio": "risk ratio", "odds_ratio": "odds ratio"}
+
+
+def _effect_scale(endpoint: dict[str, Any] | Any) -> tuple[str, str, str]:
+    """(name, what it compares, unit) of an endpoint's effect, in plain words.
+
+    ``unit`` is ``"ratio"`` for ratio effects (drawn on a log axis labelled with ratios),
+    ``"percentage points"`` for differences in rates (ticks multiplied by 100), the outcome's
+    unit when the endpoint names one, and ``"units of the outcome"`` otherwise.
+    """
+    info = _endpoint_dict(endpoint)
+    kind = info.get("kind")
+    single = info.get("layout") == "single_arm"
+    if kind in _RATIO_NAMES or (kind == "binary" and info.get("scale") in _BINARY_NAMES):
+        name = _RATIO_NAMES.get(kind) or _BINARY_NAMES[info["scale"]]
+        return name, ("single arm / reference" if single else "treatment / control"), "ratio"
+    if kind == "binary":
+        if single:
+            return "response rate minus the reference rate", "", "percentage points"
+        return "difference in response rates", "treatment minus control", "percentage points"
+    unit = info.get("unit") or getattr(endpoint, "unit", None)
+    unit = _drawable(printable(str(unit))) if unit else "units of the outcome"
+    if kind not in (None, "continuous"):  # an endpoint this module does not know by name
+        name = str(getattr(endpoint, "effect_name", None) or "effect")
+        return name, "", "ratio" if getattr(endpoint, "ratio_scale", False) else unit
+    if single:
+        return "mean change", "", unit
+    return "difference in means", "treatment minus control", unit
+
+
+def _effect_label(endpoint: dict[str, Any] | Any, prefix: str = "True ") -> str:
+    """Axis label of an effect on its natural scale, with its unit and direction."""
+    info = _endpoint_dict(endpoint)
+    name, compares, unit = _effect_scale(endpoint)
+    notes = ["log scale" if unit == "ratio" else unit]
+    if info.get("better", getattr(endpoint, "better", None)) == "lower":
+        notes.append("lower is better")
+    head = prefix + name if prefix else name[:1].upper() + name[1:]
+    if compares:
+        head += f", {compares}"
+    return f"{head} ({'; '.join(notes)})"
+
+
 def _effect_word(endpoint: dict[str, Any] | Any) -> str:
-    layout = endpoint.get("layout") if isinstance(endpoint, dict) else endpoint.layout
-    better = endpoint.get("better") if isinstance(endpoint, dict) else endpoint.better
-    kind = endpoint.get("kind") if isinstance(endpoint, dict) else endpoint.to_dict().get("kind")
-    if getattr(endpoint, "ratio_scale", False):
-        base = f"true {endpoint.effect_name} (treatment / control, log scale)"
-    elif kind not in (None, "continuous"):
-        base = f"true {endpoint.effect_name}"
-    elif layout == "single_arm":
-        base = "true mean change"
+    """The x label of the prior figure (kept for callers of the old name)."""
+    return _effect_label(endpoint)
+
+
+def _ratio_ticks(ax: Axes, lo: float, hi: float, axis: str = "x") -> None:
+    """Label a log-ratio axis with ratios (0.5, 0.8, 1, 1.25, ...)."""
+    from matplotlib.ticker import FixedLocator, FuncFormatter
+
+    nice = np.array([0.05, 0.1, 0.2, 0.3, 0.4, 0.5, 0.6, 0.7, 0.8, 0.9, 1.0, 1.1, 1.25,
+                     1.5, 2.0, 3.0, 5.0, 10.0, 20.0])
+    ticks = np.log(nice[(np.log(nice) >= lo) & (np.log(nice) <= hi)])
+    if ticks.size > 9:
+        ticks = ticks[:: math.ceil(ticks.size / 9)]
+    target = ax.xaxis if axis == "x" else ax.yaxis
+    if ticks.size >= 2:
+        target.set_major_locator(FixedLocator(ticks))
+    target.set_major_formatter(FuncFormatter(lambda v, _pos: f"{math.exp(v):.3g}"))
+
+
+def _percent_ticks(ax: Axes, axis: str = "x") -> None:
+    """Show proportions on an axis as percentage points (0.15 -> 15)."""
+    from matplotlib.ticker import FuncFormatter
+
+    target = ax.xaxis if axis == "x" else ax.yaxis
+    target.set_major_formatter(FuncFormatter(lambda v, _pos: f"{100 * v:.4g}"))
+
+
+def _effect_axis(ax: Axes, endpoint: dict[str, Any] | Any, lo: float, hi: float,
+                 prefix: str = "True ", axis: str = "x") -> None:
+    """Label an axis of effects (log scale for ratios) with the effect's name and unit."""
+    unit = _effect_scale(endpoint)[2]
+    if unit == "ratio":
+        _ratio_ticks(ax, lo, hi, axis)
+    elif unit == "percentage points":
+        _percent_ticks(ax, axis)
+    setter = ax.set_xlabel if axis == "x" else ax.set_ylabel
+    setter(_effect_label(endpoint, prefix), fontsize=10.5, parse_math=False)
+
+
+_SIZE_LABEL = "Total sample size (patients)"
+
+
+def _size_axis(ax: Axes, ds: Any, lo: float, hi: float) -> None:
+    """The x axis of a figure over sizes: its label, and expected events on top when known."""
+    ax.set_xlim(lo, hi if hi > lo else lo + 1)
+    ax.set_xlabel(_SIZE_LABEL, fontsize=10.5, parse_math=False)
+    _events_axis(ax, ds)
+
+
+def _events_axis(ax: Axes, ds: Any) -> Any:
+    """A secondary x axis on top with the expected number of events at each size.
+
+    Uses the coordinate ``expected_events`` over ``n`` (time-to-event plans); sizes between
+    the computed ones are interpolated linearly. Returns the secondary axis or None.
+    """
+    if "expected_events" not in getattr(ds, "coords", {}) or "n" not in ds.dims:
+        return None
+    n = np.asarray(ds["n"].values, dtype=float)
+    events = np.asarray(ds["expected_events"].values, dtype=float).reshape(-1)
+    if events.shape != n.shape:
+        return None
+    ok = np.isfinite(n) & np.isfinite(events)
+    n, events = n[ok], events[ok]
+    if n.size < 2:
+        return None
+    order = np.argsort(n)
+    n, events = n[order], events[order]
+    keep = np.concatenate([[True], np.diff(events) > 0]) & np.concatenate(
+        [[True], np.diff(n) > 0])
+    n, events = n[keep], events[keep]
+    if n.size < 2:
+        return None
+
+    def to_events(x: Any) -> Any:
+        return np.interp(x, n, events, left=np.nan, right=np.nan)
+
+    def to_size(e: Any) -> Any:
+        return np.interp(e, events, n, left=np.nan, right=np.nan)
+
+    top = ax.secondary_xaxis("top", functions=(to_events, to_size))
+    top.tick_params(labelsize=9, colors="#333333")
+    top.set_xlabel("Expected events (at the assumed effect)", fontsize=9.5, parse_math=False,
+                   color="#333333")
+    return top
+
+
+def _place_legend(ax: Axes, own: bool, locs: Sequence[str] = (
+        "lower right", "upper left", "lower left", "upper right", "center right",
+        "center left"), **kwargs: Any) -> None:
+    """The legend inside the axes where it covers no curve or marker; otherwise outside.
+
+    Outside means under the figure (a figure this module made) or to the right of the axes
+    (axes the caller gave).
+    """
+    from ._label_placement import obstacles, renderer_of
+
+    handles, _ = ax.get_legend_handles_labels()
+    if not handles:
+        return
+    renderer = renderer_of(ax.figure)
+    obs = obstacles(ax, renderer)
+    inside = ax.bbox
+    for loc in locs:
+        legend = _legend(ax, loc=loc, **kwargs)
+        box = tuple(legend.get_window_extent(renderer).extents)
+        if box[0] >= inside.x0 and box[2] <= inside.x1 and box[1] >= inside.y0 and \
+                box[3] <= inside.y1 and not obs.blocks(box):
+            return
+    legend.remove()
+    if own:
+        _legend_below(ax)
     else:
-        base = "true effect (treatment minus control)"
-    return base + ("; lower is better" if better == "lower" else "")
+        _legend(ax, loc="upper left", bbox_to_anchor=(1.02, 1.0), borderaxespad=0.0)
 
 
 # ------------------------------------------------------------------------------------------
@@ -268,6 +440,29 @@ def passable_probability(design: TrialDesign) -> float:
     return design.benefit_prior.prob_above(design.benefit_rule.lowest_passable_effect())
 
 
+def _margin(design: TrialDesign) -> tuple[float, str] | None:
+    """Where the rule's null value lies on the prior's axis, and its label, when it is not
+    "no effect": the non-inferiority margin of a test, or the effect a posterior rule must
+    beat. None for a superiority rule against no effect."""
+    from ..rules.significance import Significance
+
+    rule = design.rule
+    try:
+        null = float(design.benefit_rule.null_value)
+    except (AttributeError, TypeError, ValueError):
+        return None
+    if not math.isfinite(null) or abs(null) < 1e-12:
+        return None
+    position = design.endpoint.sign * null + 0.0
+    ratio = bool(getattr(design.endpoint, "ratio_scale", False))
+    shown = f"{math.exp(position):.3g}" if ratio else f"{position:g}"
+    if isinstance(rule, Significance) and rule.margin > 0:
+        return position, f"non-inferiority margin ({shown}: the test's null value)"
+    if type(rule).__name__ == "PosteriorProbability":
+        return position, f"effect the posterior must beat ({shown})"
+    return None
+
+
 def plot_prior(design: TrialDesign, ax: Axes | None = None) -> Axes:
     """Draw the design prior over the true effect, with the values the plan depends on.
 
@@ -276,7 +471,8 @@ def plot_prior(design: TrialDesign, ax: Axes | None = None) -> Axes:
     density, not on the density's scale). Vertical lines mark the assumed effect, the
     clinically relevant effect (if any) and no effect. The shaded side holds the effects at
     which the success rule can be passed once the trial is large enough; its prior
-    probability is the ceiling of assurance.
+    probability is the ceiling of assurance. A non-inferiority margin (or the effect a
+    posterior rule must beat, when it is not "no effect") is marked too.
 
     Parameters
     ----------
@@ -300,7 +496,7 @@ def plot_prior(design: TrialDesign, ax: Axes | None = None) -> Axes:
     ...                                      [0.25, 0.75]), relevant_effect=3.0)
     >>> ax = plot_prior(design)
     >>> ax.get_xlabel()
-    'true effect (treatment minus control)'
+    'True difference in means, treatment minus control (units of the outcome)'
     """
     from ..design import TrialDesign
 
@@ -353,11 +549,16 @@ def plot_prior(design: TrialDesign, ax: Axes | None = None) -> Axes:
                         label=region_label)
         ax.fill_between(x[~yes | (x == threshold)], dens[~yes | (x == threshold)],
                         color=_LIGHT, alpha=0.9, linewidth=0)
-        ax.set_ylabel("prior density", fontsize=10.5, parse_math=False)
+        ax.set_ylabel("Prior density (probability per unit of the log ratio)" if ratio else
+                      "Prior density (probability per unit of effect)", fontsize=10.5,
+                      parse_math=False)
     else:
-        ax.set_ylabel("prior probability", fontsize=10.5, parse_math=False)
+        ax.set_ylabel("Prior probability (probability)", fontsize=10.5, parse_math=False)
 
+    atom_labels = []
     if atoms:
+        from ._label_placement import Label, around
+
         biggest = max(p for _, p in atoms)
         scale = 0.8 * peak / biggest if peak > 0 else 1.0
         for k, (loc, p) in enumerate(atoms):
@@ -366,11 +567,8 @@ def plot_prior(design: TrialDesign, ax: Axes | None = None) -> Axes:
             ax.vlines(loc, 0, h, color=colour, linewidth=3.0, zorder=4,
                       label="point mass (labelled with its probability)" if k == 0 else None)
             ax.plot([loc], [h], marker="o", markersize=6, color=colour, zorder=5)
-            right = loc > lo + 0.85 * (hi - lo)  # keep the label inside the axes
-            ax.annotate(f"P = {p:.3g}", (loc, h), xytext=(-5 if right else 5, 4),
-                        textcoords="offset points", ha="right" if right else "left",
-                        fontsize=9, color="#222222", zorder=6, bbox=_TEXT_BOX,
-                        parse_math=False)
+            atom_labels.append(Label(f"P = {p:.3g}", (loc, h), around((4, 10, 18, 28)),
+                                     style={"fontsize": 9, "bbox": _TEXT_BOX}))
         top = max(peak, biggest * scale)
     else:
         top = peak
@@ -389,19 +587,14 @@ def plot_prior(design: TrialDesign, ax: Axes | None = None) -> Axes:
                    linestyle=(4, (4, 4)) if same else (0, (6, 2, 1.5, 2)), zorder=3,
                    label=f"clinically relevant effect ({design.relevant_effect:g})")
 
-    ax.set_xlim(lo, hi)
-    if ratio:  # the axis is the log ratio; its ticks are labelled with ratios
-        from matplotlib.ticker import FixedLocator, FuncFormatter
+    margin = _margin(design)
+    if margin is not None:
+        position, text = margin
+        ax.axvline(position, color=_ORANGE, linewidth=1.8, linestyle=(0, (1.5, 1.5)),
+                   zorder=3, label=text)
 
-        nice = np.array([0.05, 0.1, 0.2, 0.3, 0.4, 0.5, 0.6, 0.7, 0.8, 0.9, 1.0, 1.1, 1.25,
-                         1.5, 2.0, 3.0, 5.0, 10.0, 20.0])
-        ticks = np.log(nice[(np.log(nice) >= lo) & (np.log(nice) <= hi)])
-        if ticks.size > 9:
-            ticks = ticks[:: math.ceil(ticks.size / 9)]
-        if ticks.size >= 2:
-            ax.xaxis.set_major_locator(FixedLocator(ticks))
-        ax.xaxis.set_major_formatter(FuncFormatter(lambda v, _pos: shown(v)))
-    ax.set_xlabel(_effect_word(design.endpoint), fontsize=10.5, parse_math=False)
+    ax.set_xlim(lo, hi)
+    _effect_axis(ax, design.endpoint, lo, hi)
     ax.set_title(_title(design.title, "design prior for the true effect"), fontsize=11.5,
                  loc="left", parse_math=False)
     if own:
@@ -409,7 +602,12 @@ def plot_prior(design: TrialDesign, ax: Axes | None = None) -> Axes:
         _legend_below(ax)
     else:
         ax.set_ylim(0, top * 1.6)  # head room for the legend
-        _legend(ax, loc="upper left" if sign > 0 else "upper right", ncol=1)
+        _place_legend(ax, own, ("upper left", "upper right") if sign > 0 else
+                      ("upper right", "upper left"), ncol=1)
+    if atom_labels:
+        from ._label_placement import place_labels
+
+        place_labels(ax, atom_labels)
     return ax
 
 
@@ -432,7 +630,10 @@ def plot_power_and_assurance(
 
     Also drawn: conditional assurance (when the design has a relevant effect), a band of
     two Monte Carlo standard errors around assurance (when sigma has a prior), and the
-    ceiling that assurance cannot pass, as a dashed line labelled with its value.
+    ceiling that assurance cannot pass, as a dashed line labelled with its value. Labels
+    are placed where they cover no curve, marker or other label (a label that fits nowhere
+    becomes a numbered footnote under the axes); for a time-to-event design a second axis on
+    top gives the expected number of events.
 
     Parameters
     ----------
@@ -442,7 +643,8 @@ def plot_power_and_assurance(
         Axes to draw into. Without one, a new figure is made on the off-screen canvas.
     answers
         Solved sample sizes (:class:`~assurance.SampleSizeAnswer`) to mark; those not
-        reached, or outside the range of ``ds``, are left out.
+        reached, or outside the range of ``ds``, are left out. Each target is drawn as a
+        dotted line, labelled from the left (the ceiling's label is placed from the right).
 
     Returns
     -------
@@ -461,13 +663,12 @@ def plot_power_and_assurance(
     [0.0, 1.0]
     """
     _check_dataset(ds, "plot_power_and_assurance")
+    own = ax is None
     ax = _axes(ax)
     _style(ax)
     info = _design_dict(ds)
     n = np.asarray(ds["n"].values, dtype=float)
-    assumed = info.get("assumed_effect")
-    power_label = "classical power at the assumed effect" + (
-        f" ({assumed:g})" if isinstance(assumed, int | float) else "")
+    power_label = "classical power at the " + _assumed_words(info)
 
     dot = "o" if n.size < 4 else None  # a line of one or two points needs markers
     ax.plot(n, ds["power"].values, color=_BLUE, linewidth=2.0, marker=dot, label=power_label)
@@ -489,43 +690,70 @@ def plot_power_and_assurance(
                   ds["conditional_assurance_mcse"].values, _GREEN, None)
 
     ceiling = float(ds["ceiling"])
-    ax.axhline(ceiling, color=_BLACK, linewidth=1.2, linestyle=(0, (4, 3)), zorder=2,
+    ax.axhline(ceiling, color=_BLACK, linewidth=1.3, linestyle=(0, (5, 3)), zorder=2,
                label=f"ceiling of assurance ({ceiling:.3f})")
-    above = ceiling < 0.9
-    ax.annotate(f"ceiling {ceiling:.3f}", (1.0, ceiling), xycoords=("axes fraction", "data"),
-                xytext=(-4, 4 if above else -5), textcoords="offset points", fontsize=9,
-                ha="right", va="bottom" if above else "top", color=_BLACK, bbox=_TEXT_BOX,
-                zorder=6, parse_math=False)
+
+    from ._label_placement import Label, along, around, place_labels
+
+    lines = [Label(f"ceiling {ceiling:.3f}", (1.0, ceiling), along("right"),
+                   ax.get_yaxis_transform(), {"fontsize": 9, "color": _BLACK,
+                                              "bbox": _TEXT_BOX}, leader_from=1e9,
+                   footnote=False)]  # the legend gives the ceiling's value too
+    # targets: a dotted grey line each, labelled from the left end (the ceiling's label
+    # starts from the right end, so a target at the ceiling's height stays readable)
+    targets: dict[float, list[str]] = {}
+    for answer in answers or ():
+        if answer.target is not None and 0.0 < float(answer.target) < 1.0:
+            name = _QUANTITY_NAME.get(answer.quantity, answer.quantity)
+            if not answer.reached:
+                name += " not reached"
+            targets.setdefault(round(float(answer.target), 6), []).append(name)
+    for k, (value, names) in enumerate(sorted(targets.items())):
+        ax.axhline(value, color="#595959", linewidth=1.0, linestyle=(0, (1, 2.5)), zorder=2,
+                   label="target (dotted)" if k == 0 else None)
+        lines.append(Label(f"target {value:g} ({', '.join(names)})", (0.0, value),
+                            along("left"), ax.get_yaxis_transform(),
+                            {"fontsize": 8.5, "color": "#333333", "bbox": _TEXT_BOX},
+                            leader_from=1e9))
 
     lo, hi = float(n.min()), float(n.max())
+    labels = []  # the solved sizes' labels first: they must stay near their markers
     shown = sorted((a for a in answers or () if a.reached and a.n_total is not None
                     and a.achieved is not None and lo <= a.n_total <= hi),
                    key=lambda a: a.n_total)
-    last_x, last_y, depth = -np.inf, -np.inf, 0
+    groups: list[list[Any]] = []  # sizes almost at the same point share one label
     for answer in shown:
-        # labels of nearby points are stacked downwards so they never overprint
-        near = answer.n_total - last_x < 0.15 * (hi - lo) and abs(answer.achieved - last_y) < 0.15
-        depth = depth + 1 if near else 0
-        last_x, last_y = answer.n_total, answer.achieved
-        colour = _QUANTITY_COLOUR.get(answer.quantity, _GREY)
-        ax.vlines(answer.n_total, 0, answer.achieved, color=colour, linewidth=1.0,
-                  linestyle=":", zorder=3)
-        ax.plot([answer.n_total], [answer.achieved], marker="o", markersize=7,
-                markerfacecolor=colour, markeredgecolor=_BLACK, zorder=5)
-        name = _QUANTITY_NAME.get(answer.quantity, answer.quantity)
-        ax.annotate(f"n = {answer.n_total}\n({name} {answer.target:g})",
-                    (answer.n_total, answer.achieved), xytext=(6, -26 - 30 * depth),
-                    textcoords="offset points", fontsize=8.5, color="#222222", zorder=6,
-                    bbox=_TEXT_BOX, parse_math=False)
+        last = groups[-1][-1] if groups else None
+        if last is not None and answer.n_total - last.n_total <= 0.04 * (hi - lo) and \
+                abs(answer.achieved - last.achieved) <= 0.03:
+            groups[-1].append(answer)
+        else:
+            groups.append([answer])
+    for group in groups:
+        for answer in group:
+            colour = _QUANTITY_COLOUR.get(answer.quantity, _GREY)
+            ax.vlines(answer.n_total, 0, answer.achieved, color=colour, linewidth=1.0,
+                      linestyle=":", zorder=3)
+            ax.plot([answer.n_total], [answer.achieved], marker="o", markersize=7,
+                    markerfacecolor=colour, markeredgecolor=_BLACK, zorder=5,
+                    linestyle="none")
+        text = "\n".join(f"n = {a.n_total} "
+                         f"({_QUANTITY_NAME.get(a.quantity, a.quantity)} {a.target:g})"
+                         for a in group)
+        if len(group) == 1:
+            text = text.replace(" (", "\n(", 1)
+        first = group[0]
+        labels.append(Label(text, (first.n_total, first.achieved), around(),
+                            style={"fontsize": 8.5, "bbox": _TEXT_BOX}))
 
-    ax.set_xlim(lo, hi if hi > lo else lo + 1)
     ax.set_ylim(0.0, 1.0)
-    ax.set_xlabel("total number of patients (all arms)", fontsize=10.5, parse_math=False)
-    ax.set_ylabel("probability", fontsize=10.5, parse_math=False)
+    _size_axis(ax, ds, lo, hi)
+    ax.set_ylabel("Chance of success (probability)", fontsize=10.5, parse_math=False)
     title = ds.attrs.get("title", "")
     ax.set_title(_title(title, "chance of success by sample size"), fontsize=11.5, loc="left",
                  parse_math=False)
-    _legend(ax, loc="lower right")
+    _place_legend(ax, own)
+    place_labels(ax, labels + lines)
     return ax
 
 
