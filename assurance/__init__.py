@@ -83,6 +83,9 @@ _PUBLIC = {
     "precision_model_for": "precision.for_design",
     "Plan": "planner",
     "plan": "planner",
+    "SensitivitySettings": "sensitivity",
+    "prior_sensitivity": "sensitivity",
+    "prior_variations": "sensitivity",
     "read_design": "design_file:read_design_file",  # name here : name in the module
 }
 
@@ -148,6 +151,9 @@ __all__ = [
     "precision_model_for",
     "Plan",
     "plan",
+    "SensitivitySettings",
+    "prior_sensitivity",
+    "prior_variations",
     "read_design",
 ]
 
@@ -174,6 +180,7 @@ if TYPE_CHECKING:  # pragma: no cover - for type checkers and editors only
         linear_pool,
     )
     from .priors.evidence import (
+        DiscountedEstimate,
         Estimate,
         arm_estimates,
         estimate_from_events,
@@ -181,7 +188,6 @@ if TYPE_CHECKING:  # pragma: no cover - for type checkers and editors only
         meta_analytic_prior,
         meta_analytic_prior_mcmc,
         prior_from_estimate,
-        DiscountedEstimate,
         prior_predictive_summary,
         robust_mixture,
     )
@@ -201,6 +207,7 @@ if TYPE_CHECKING:  # pragma: no cover - for type checkers and editors only
     from .rules.posterior import AllOf, AnyOf, MinimumEstimate, PosteriorProbability
     from .rules.significance import Significance
     from .rules.zones import GoConsiderStop, evaluate_zones
+    from .sensitivity import SensitivitySettings, prior_sensitivity, prior_variations
     from .simulation.survival import simulate_assurance, simulate_trials
     from .versions import show_versions
 

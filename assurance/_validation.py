@@ -120,3 +120,34 @@ def _interval_text(
     left = "(" if low_open else "["
     right = ")" if high_open else "]"
     return f" in {left}{low:g}, {high:g}{right}"
+
+
+#: Longest unit name ("metres", "mmHg"), in characters.
+MAX_UNIT = 40
+
+
+def check_text(value: object, name: str, owner: str, *, max_length: int,
+               allow_none: bool = False) -> str | None:
+    """A short line of plain text: a non-empty string without control characters.
+
+    Examples
+    --------
+    >>> check_text("metres", "unit", "ContinuousEndpoint", max_length=40)
+    'metres'
+    """
+    if value is None and allow_none:
+        return None
+    if not isinstance(value, str) or not value.strip():
+        raise AssuranceInputError(
+            f"The {name!r} parameter of {owner} must be a non-empty string. "
+            f"Got {value!r:.80} instead.")
+    if len(value) > max_length:
+        raise AssuranceInputError(
+            f"The {name!r} parameter of {owner} must be at most {max_length} characters. "
+            f"Got {len(value):,} characters, starting {value[:40]!r}, instead.")
+    for i, ch in enumerate(value):  # C0 and C1 controls, DEL, lone surrogates
+        if (ch < " " and ch != "\t") or "\x7f" <= ch <= "\x9f" or "\ud800" <= ch <= "\udfff":
+            raise AssuranceInputError(
+                f"The {name!r} parameter of {owner} must be plain text without control "
+                f"characters; character {i + 1} is {ascii(ch)}. Got {value!r:.80} instead.")
+    return value

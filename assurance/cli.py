@@ -17,6 +17,7 @@ import signal
 import sys
 import time
 import warnings
+from dataclasses import replace
 from pathlib import Path
 from typing import Any
 
@@ -238,6 +239,7 @@ def _plan(args: argparse.Namespace) -> int:
             from .planner import Plan
 
             plan = Plan.from_file(design_path, progress=progress)
+            plan = replace(plan, made_by=_command_line(args))
             _say_notes(plan.source.notes if plan.source is not None else ())
             progress("writing results, figures and memo")
             write_outputs(out, plan, formats=("png", "svg") if args.svg else ("png",),
@@ -246,13 +248,25 @@ def _plan(args: argparse.Namespace) -> int:
             _say(plan.summary())
             _say(f"\nWritten to {out}/ (memo.html, results.csv, results.nc, sample_sizes.csv, "
                  "figures/,\n  design.toml: every key in force, and design_as_given.toml: the "
-                 "file as given)")
+                 "file as given; sensitivity and zone tables as CSV when computed)")
         progress("done")
     except (KeyboardInterrupt, _Stopped) as stop:
         if claim is not None and claim.committed:
             stop.written = out  # type: ignore[union-attr]
         raise
     return 0
+
+
+def _command_line(args: argparse.Namespace) -> str:
+    """The command as a user would type it again (quoted where needed)."""
+    import shlex
+
+    words = ["assurance", "plan", str(args.design)]
+    if args.out is not None:
+        words += ["--out", args.out]
+    words += [flag for flag, on in (("--overwrite", args.overwrite), ("--svg", args.svg),
+                                    ("--quiet", args.quiet)) if on]
+    return " ".join(shlex.quote(_visible(w)) for w in words)
 
 
 if __name__ == "__main__":  # pragma: no cover

@@ -30,13 +30,14 @@ from .errors import AssuranceInputError
 from .planning import DEFAULT_DRAWS, SampleSizeAnswer
 from .precision.for_design import PrecisionPlan
 from .rules.zones import GoConsiderStop
-from .workflow import DEFAULT_SEED, ProgressCallback, check_plan_inputs, run_plan
+from .workflow import DEFAULT_SEED, ProgressCallback, check_plan_inputs, check_planned, run_plan
 
 if TYPE_CHECKING:  # pragma: no cover
     import numpy as np
     from matplotlib.figure import Figure
 
     from .precision.widths import PrecisionAnswer
+    from .sensitivity import SensitivitySettings
 
 __all__ = ["Plan", "PlanSettings", "DesignSource", "plan"]
 
@@ -59,6 +60,12 @@ class PlanSettings:
         The precision plan, or None.
     draws, seed
         Monte Carlo settings.
+    planned
+        The planned total size asked for, or None (then :attr:`Plan.planned_n` is chosen
+        from the targets).
+    sensitivity
+        How the design prior was varied (:class:`~assurance.sensitivity.SensitivitySettings`),
+        or None when the sensitivity results were left out.
 
     Examples
     --------
@@ -72,6 +79,8 @@ class PlanSettings:
     precision: PrecisionPlan | None = None
     draws: int = DEFAULT_DRAWS
     seed: int = DEFAULT_SEED
+    planned: int | None = None
+    sensitivity: Any = None
 
 
 @dataclass(frozen=True)
@@ -124,6 +133,14 @@ class Plan:
         prior or a sentence), shown in the memo; None when not said.
     source
         The design file (:class:`DesignSource`) when the plan was read from one.
+    planned_n, planned_reason
+        The total size the decision is taken at and how it was chosen, in plain words:
+        the planned size given, else the smallest size reaching the assurance target (then
+        the conditional assurance or power target), else the largest size evaluated.
+    made_by
+        The command line or Python call that made the plan (for the memo's provenance).
+    created
+        When the plan was computed: UTC date and time, ISO 8601, to the second.
 
     Examples
     --------
@@ -142,6 +159,10 @@ class Plan:
     settings: PlanSettings = field(default_factory=lambda: PlanSettings({}, None))
     prior_origin: Any = None
     source: DesignSource | None = None
+    planned_n: int = 0
+    planned_reason: str = ""
+    made_by: str = "assurance.Plan(...)"
+    created: str = field(default_factory=lambda: _utc_now())
 
     def __post_init__(self) -> None:
         if not isinstance(self.design, TrialDesign):
@@ -155,6 +176,29 @@ class Plan:
                 f"Got {type(self.results).__name__} instead.")
         object.__setattr__(self, "sample_sizes", tuple(self.sample_sizes))
         object.__setattr__(self, "precision", tuple(self.precision))
+        if not self.planned_n:  # a Plan put together by hand: the largest size evaluated
+            object.__setattr__(self, "planned_n", int(self.results["n"].values.max()))
+            object.__setattr__(self, "planned_reason", self.planned_reason
+                               or "the largest size evaluated")
+
+    @property
+    def sensitivity(self) -> Any:
+        """The prior-sensitivity results (an ``xarray.Dataset``), or None when left out.
+
+        Dimension ``variation`` (the elicited prior and each variation, with
+        ``variation_description``): ``sensitivity_assurance``, ``sensitivity_ceiling``,
+        ``sensitivity_n`` (per assurance target; -1: not reachable); the map
+        ``sensitivity_map`` over ``map_centre`` x ``map_spread``; the sentence in
+        ``attrs["sensitivity_sentence"]``. See :func:`assurance.sensitivity.prior_sensitivity`.
+        """
+        names = [v for v in self.results.data_vars if str(v).startswith("sensitivity_")
+                 or v == "variation_description"]
+        if not names:
+            return None
+        found = self.results[names]
+        found.attrs = {k: v for k, v in self.results.attrs.items()
+                       if k.startswith("sensitivity_")}
+        return found
 
     # --------------------------------------------------------------------------------------
     # making one
@@ -216,8 +260,10 @@ class Plan:
         spec = read_design_file(path)
         made = plan(spec.design, targets=spec.targets, sizes=spec.sizes, zones=spec.zones,
                     precision=spec.precision, draws=spec.draws, seed=spec.seed,
-                    prior_origin=spec.prior_origin, progress=progress)
-        return replace(made, source=DesignSource(path, spec.content, spec.record, spec.notes))
+                    prior_origin=spec.prior_origin, progress=progress, planned=spec.planned,
+                    sensitivity=spec.sensitivity or False)
+        return replace(made, source=DesignSource(path, spec.content, spec.record, spec.notes),
+                       made_by=f"assurance.Plan.from_file({str(path)!r})")
 
     # --------------------------------------------------------------------------------------
     # saving
@@ -435,8 +481,10 @@ def plan(
     seed: int = DEFAULT_SEED,
     prior_origin: Any = None,
     progress: ProgressCallback | None = None,
+    planned: int | None = None,
+    sensitivity: bool | SensitivitySettings = True,
 ) -> Plan:
-    """Plan a trial: solve each target, evaluate the sizes, add zones and precision.
+    """Plan a trial: solve each target, evaluate the sizes, add zones, precision, sensitivity.
 
     The same computation as ``assurance plan`` on a design file with the same content.
 
@@ -466,6 +514,12 @@ def plan(
     progress
         Optional callback: ``progress(text)`` at each step and ``progress(label, done,
         total)`` as chunks of a Monte Carlo evaluation finish (``print`` fits).
+    planned
+        The total size the decision is taken at (the memo's decision box); None chooses the
+        smallest size reaching the assurance target (then conditional assurance, then power).
+    sensitivity
+        Sensitivity of the answer to the design prior: True (default settings), a
+        :class:`~assurance.sensitivity.SensitivitySettings`, or False to leave it out.
 
     Returns
     -------
@@ -497,9 +551,33 @@ def plan(
             f"The 'prior_origin' parameter of {owner} must be a sentence, a PriorFit, a "
             f"meta-analytic prior result (anything with a report() method) or None. Got "
             f"{prior_origin!r} instead.")
+    planned = check_planned(planned, design, owner=owner)
+    varied = _sensitivity_settings(sensitivity, owner)
     done = run_plan(design, targets, grid, zones=zones, precision=precision, draws=draws,
-                    seed=seed, progress=progress)
+                    seed=seed, progress=progress, planned=planned, sensitivity=varied,
+                    prior_origin=prior_origin)
     settings = PlanSettings(dict(targets), None if grid is None else tuple(int(n) for n in grid),
-                            zones, precision, draws, seed)
+                            zones, precision, draws, seed, planned, varied)
     return Plan(design, done.dataset, done.sample_sizes, done.precision, settings,
-                prior_origin)
+                prior_origin, planned_n=done.planned_n, planned_reason=done.planned_reason,
+                made_by="assurance.plan(...)")
+
+
+def _sensitivity_settings(value: Any, owner: str) -> Any:
+    from .sensitivity import SensitivitySettings
+
+    if value is True:
+        return SensitivitySettings()
+    if value is False or value is None:
+        return None
+    if isinstance(value, SensitivitySettings):
+        return value
+    raise AssuranceInputError(
+        f"The 'sensitivity' parameter of {owner} must be True, False or a "
+        f"SensitivitySettings. Got {value!r} instead.")
+
+
+def _utc_now() -> str:
+    import datetime as _dt
+
+    return _dt.datetime.now(_dt.UTC).replace(microsecond=0).isoformat()

@@ -41,12 +41,15 @@ from .rules.zones import GoConsiderStop
 
 if TYPE_CHECKING:  # pragma: no cover
     from .precision.widths import PrecisionAnswer
+    from .sensitivity import SensitivitySettings
 
 __all__ = [
     "PlanResults",
     "run_plan",
     "default_sizes",
     "check_plan_inputs",
+    "check_planned",
+    "choose_planned",
     "DEFAULT_SEED",
     "ProgressCallback",
 ]
@@ -75,6 +78,9 @@ class PlanResults:
     precision
         One :class:`~assurance.precision.PrecisionAnswer` per precision criterion, or the
         reason (a string) why a criterion is unavailable for this design.
+    planned_n, planned_reason
+        The size a decision is taken at (:func:`choose_planned`) and how it was chosen, in
+        plain words.
 
     Examples
     --------
@@ -88,6 +94,8 @@ class PlanResults:
     dataset: Any
     sample_sizes: tuple[SampleSizeAnswer, ...]
     precision: tuple[PrecisionAnswer | str, ...]
+    planned_n: int = 0
+    planned_reason: str = ""
 
 
 def check_plan_inputs(
@@ -174,6 +182,9 @@ def run_plan(
     draws: int = DEFAULT_DRAWS,
     seed: int = DEFAULT_SEED,
     progress: ProgressCallback | None = None,
+    planned: int | None = None,
+    sensitivity: SensitivitySettings | None = None,
+    prior_origin: Any = None,
 ) -> PlanResults:
     """Solve every target, then evaluate the design over the sizes.
 
@@ -201,6 +212,15 @@ def run_plan(
     progress
         Optional callback: ``progress(text)`` at each step, ``progress(label, done, total)``
         as chunks of a Monte Carlo evaluation finish.
+    planned
+        The total size a decision is taken at (None: chosen by :func:`choose_planned`);
+        always evaluated.
+    sensitivity
+        How to vary the design prior (:class:`~assurance.sensitivity.SensitivitySettings`);
+        None leaves the sensitivity results out.
+    prior_origin
+        What the design prior was built from (an earlier trial's
+        :class:`~assurance.DiscountedEstimate` adds variations of its discounts).
 
     Returns
     -------
@@ -222,9 +242,19 @@ def run_plan(
     for quantity, target in targets.items():
         say(f"solving n for {quantity.replace('_', ' ')} {target:g}")
         answers.append(solve_sample_size(design, target, quantity=quantity, draws=draws, seed=seed))
+    planned = check_planned(planned, design, owner="run_plan")
+    if sensitivity is not None:
+        from .sensitivity import SensitivitySettings
+
+        if not isinstance(sensitivity, SensitivitySettings):
+            raise AssuranceInputError(
+                "The 'sensitivity' parameter of run_plan must be a SensitivitySettings or "
+                f"None. Got {sensitivity!r} instead.")
     grid = grid if grid is not None else default_sizes(design, answers)
     solved = [a.n_total for a in answers if a.reached and a.n_total <= 2 * grid.max()]
     grid = np.unique(np.concatenate([grid, np.array(solved, dtype=int)]))
+    planned_n, planned_reason = choose_planned(planned, answers, grid)
+    grid = np.unique(np.append(grid, planned_n))
     say(f"evaluating {grid.size} sample sizes")
     chunks = None if progress is None else (
         lambda done, total: progress("Monte Carlo", done, total))
@@ -234,7 +264,75 @@ def run_plan(
     precision_answers: list[Any] = []
     if precision is not None:
         ds, precision_answers = _add_precision(ds, design, precision, seed=seed, say=say)
-    return PlanResults(ds, tuple(answers), tuple(precision_answers))
+    if sensitivity is not None:
+        ds = _add_sensitivity(ds, design, planned_n, targets, sensitivity, prior_origin,
+                              draws=draws, seed=seed, say=say)
+    return PlanResults(ds, tuple(answers), tuple(precision_answers), planned_n, planned_reason)
+
+
+def check_planned(planned: Any, design: TrialDesign, *, owner: str) -> int | None:
+    """Check a planned total size: None, or a whole number the analysis allows.
+
+    Examples
+    --------
+    >>> import assurance as asr
+    >>> design = asr.TrialDesign(asr.ContinuousEndpoint(sigma=10.0), asr.Normal(4.0, 2.0))
+    >>> check_planned(300, design, owner="plan")
+    300
+    """
+    if planned is None:
+        return None
+    return check_int(planned, "planned", owner, low=design.endpoint.smallest_total,
+                     high=MAX_TOTAL)
+
+
+_QUANTITY_WORDS = {"assurance": "assurance", "conditional_assurance": "conditional assurance",
+                   "power": "classical power"}
+
+
+def choose_planned(planned: int | None, answers: Sequence[SampleSizeAnswer],
+                   grid: np.ndarray) -> tuple[int, str]:
+    """The size a decision is taken at, and how it was chosen, in plain words.
+
+    ``planned`` when given; otherwise the smallest size reaching the assurance target, then
+    the conditional assurance target, then the power target (the first reached); otherwise
+    the largest size in ``grid``.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> choose_planned(None, [], np.array([100, 200]))
+    (200, 'the largest size evaluated (no target was reached)')
+    >>> choose_planned(150, [], np.array([100, 200]))
+    (150, 'the planned size given')
+    """
+    if planned is not None:
+        return int(planned), "the planned size given"
+    for quantity in ("assurance", "conditional_assurance", "power"):
+        for answer in answers:
+            if answer.quantity == quantity and answer.reached:
+                return int(answer.n_total), (
+                    f"the smallest size reaching the {_QUANTITY_WORDS[quantity]} target of "
+                    f"{answer.target:.0%}")
+    reason = ("the largest size evaluated (no target was reached)" if answers
+              else "the largest size evaluated (no target was set)")
+    return int(np.max(grid)), reason
+
+
+def _add_sensitivity(ds: Any, design: TrialDesign, planned_n: int, targets: Mapping[str, float],
+                     settings: Any, origin: Any, *, draws: int, seed: int,
+                     say: Callable[..., Any]) -> Any:
+    from .sensitivity import prior_sensitivity
+
+    say("sensitivity to the design prior")
+    found = prior_sensitivity(design, planned_n, targets, settings, origin=origin,
+                              draws=draws, seed=seed)
+    attrs = dict(ds.attrs, **found.attrs)
+    ds = ds.assign({name: found[name] for name in found.data_vars})
+    ds = ds.assign_coords({name: found.coords[name] for name in found.coords
+                           if name not in ds.coords})
+    ds.attrs.update(attrs)
+    return ds
 
 
 def _quiet(*_args: Any) -> None:

@@ -26,8 +26,9 @@ LAYERS: list[tuple[str, ...]] = [
     ("assurance.compute",),                                               # arithmetic
     ("assurance.priors", "assurance.rules", "assurance.endpoints",        # the domain
      "assurance.precision", "assurance.design"),
-    ("assurance.planning", "assurance.joint", "assurance.workflow",       # evaluate, solve,
-     "assurance.simulation"),                                             # simulate
+    ("assurance.planning", "assurance.joint", "assurance.simulation"),    # evaluate, solve,
+    ("assurance.sensitivity",),                                           # vary the prior
+    ("assurance.workflow",),                                              # the plan's steps
     ("assurance.design_file",),                                           # the file format
     ("assurance.report",),                                                # memo, figures, folder
     ("assurance.planner",),                                               # the Plan

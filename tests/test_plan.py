@@ -73,8 +73,9 @@ def _event_driven() -> dict:
 
 
 def _phase2_to_phase3() -> dict:
-    prior = asr.prior_from_estimate(asr.Estimate(22.0, 9.0, "effect"), shrinkage=0.8,
+    origin = asr.DiscountedEstimate(asr.Estimate(22.0, 9.0, "estimate"), shrinkage=0.8,
                                     power_weight=0.5, robust_weight=0.8, vague_sd=40.0)
+    prior = origin.prior()
     design = asr.TrialDesign(
         asr.ContinuousEndpoint(sigma=60.0, layout="two_arm", allocation=1.0, analysis="t",
                                better="higher"),
@@ -89,7 +90,7 @@ def _phase2_to_phase3() -> dict:
     return {"design": design, "targets": {"power": 0.9, "assurance": 0.7},
             "sizes": range(50, 1001, 25),
             "zones": asr.GoConsiderStop(min_acceptable=10.0, target=25.0),
-            "prior_origin": "Design prior from an earlier trial (written by hand)."}
+            "prior_origin": origin}
 
 
 def _relapse_counts() -> dict:
@@ -313,7 +314,8 @@ def test_solved_sizes_are_added_to_the_grid(small):
                                                                       ("assurance", 140)]
     assert [int(n) for n in small.results.n] == [100, 140, 200, 264, 300]
     assert small.settings == PlanSettings({"power": 0.9, "assurance": 0.6}, (100, 200, 300),
-                                          None, small.settings.precision, 20000, 20260101)
+                                          None, small.settings.precision, 20000, 20260101,
+                                          None, asr.SensitivitySettings())
 
 
 def test_summary_is_the_text_the_command_line_prints(small, small_file, tmp_path, capsys):
@@ -536,7 +538,8 @@ def test_progress_reports_each_step(small_file):
     steps = [args[0] for args in calls if len(args) == 1]
     assert steps == ["solving n for power 0.9", "solving n for assurance 0.6",
                      "evaluating 5 sample sizes", "posterior interval width against n",
-                     "solving n for precision (ALC)", "solving n for precision (WOC)"]
+                     "solving n for precision (ALC)", "solving n for precision (WOC)",
+                     "sensitivity to the design prior"]
 
 
 def test_plan_is_the_function_even_after_importing_its_module():

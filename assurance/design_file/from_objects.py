@@ -56,13 +56,26 @@ def _raw(plan: Any) -> dict[str, Any]:
     if design.relevant_effect is not None:
         effect["relevant"] = float(design.relevant_effect)
     raw["effect"] = effect
-    raw["design_prior"] = _prior(design.design_prior)
+    raw["design_prior"] = _design_prior(design.design_prior, plan.prior_origin)
     if design.analysis_prior is not None:
         raw["analysis_prior"] = _prior(design.analysis_prior)
     if design.sigma_prior is not None:
         raw["sd_prior"] = _prior(design.sigma_prior)
     if settings.sizes is not None:
         raw["sizes"] = {"list": [int(n) for n in settings.sizes]}
+    if settings.planned is not None:
+        raw.setdefault("sizes", {})["planned"] = int(settings.planned)
+    varied = settings.sensitivity
+    if varied is None:
+        raw["sensitivity"] = {"show": False}
+    else:
+        if varied.map_centre_range != 2.0 or tuple(varied.map_spread_range) != (0.25, 4.0):
+            raise NotExpressible("sensitivity map ranges other than the defaults")
+        raw["sensitivity"] = {"show": True, "centre_shift": float(varied.centre_shift),
+                              "spread_factors": [float(f) for f in varied.spread_factors],
+                              "weight_change": float(varied.weight_change),
+                              "map_centres": int(varied.map_centres),
+                              "map_spreads": int(varied.map_spreads)}
     raw["targets"] = {k: float(v) for k, v in settings.targets.items()}
     if settings.zones is not None:
         z = settings.zones
@@ -80,6 +93,26 @@ def _raw(plan: Any) -> dict[str, Any]:
         raise NotExpressible("a seed that is not a whole number")
     raw["monte_carlo"] = {"draws": int(settings.draws), "seed": int(seed)}
     return raw
+
+
+def _design_prior(prior: Any, origin: Any) -> dict[str, Any]:
+    """An earlier trial's recipe when the prior came from one (so it can be varied), else the
+    prior itself."""
+    from ..priors.evidence import DiscountedEstimate
+
+    if not isinstance(origin, DiscountedEstimate) or \
+            origin.prior().to_dict() != prior.to_dict():
+        return _prior(prior)
+    table: dict[str, Any] = {"family": "earlier_trial"}
+    if origin.estimate.measure == "log ratio":
+        table.update(ratio=math.exp(origin.estimate.value), log_se=origin.estimate.se)
+    else:
+        table.update(estimate=origin.estimate.value, se=origin.estimate.se)
+    for key in ("power_weight", "shrinkage", "robust_weight", "vague_sd", "vague_mean"):
+        value = getattr(origin, key)
+        if value is not None:
+            table[key] = float(value)
+    return table
 
 
 def _endpoint(ep: Any) -> dict[str, Any]:

@@ -103,6 +103,10 @@ class DesignFile:
         Warnings for the reader of the design (not errors).
     content
         The file's exact bytes, as read (None when parsed from a mapping).
+    planned
+        ``[sizes] planned``: the total size the decision is taken at, or None.
+    sensitivity
+        How to vary the design prior (``[sensitivity]``), or None when ``show = false``.
     """
 
     design: Any
@@ -117,6 +121,8 @@ class DesignFile:
     record: dict[str, Any] = field(default_factory=dict, compare=False)
     notes: tuple[str, ...] = ()
     content: bytes | None = field(default=None, repr=False, compare=False)
+    planned: int | None = None
+    sensitivity: Any = None
 
 
 def read_design_file(path: str | Path) -> DesignFile:
@@ -366,12 +372,23 @@ class _Builder:
                 endpoint, design_prior, rule, effect, sd_prior, analysis_prior, title),
                 _DESIGN_KEYS, _scale_note(endpoint))
         sizes = None
+        planned = None
         if t["sizes"] is not None and t["sizes"] is not _FAILED:
             sizes = _sizes(t["sizes"])
-            if endpoint is not _FAILED and sizes.min() < endpoint.smallest_total:
+            if endpoint is not _FAILED and sizes is not None and \
+                    sizes.min() < endpoint.smallest_total:
                 self.problems.add("sizes", f"every size must be >= {endpoint.smallest_total} "
                                   "(the fewest patients this analysis allows). Got "
                                   f"{int(sizes.min())}.")
+            planned = t["sizes"].planned
+            if endpoint is not _FAILED and planned is not None and \
+                    planned < endpoint.smallest_total:
+                self.problems.add("sizes.planned", f"must be >= {endpoint.smallest_total} "
+                                  "(the fewest patients this analysis allows). Got "
+                                  f"{planned}.")
+        sensitivity = None
+        if t["sensitivity"] is not _FAILED and t["sensitivity"].show:
+            sensitivity = self.attempt("sensitivity", lambda: _sensitivity(t["sensitivity"]))
         targets: dict[str, float] = {}
         if t["targets"] is not _FAILED:
             targets = {k: float(v) for k, v in t["targets"].model_dump().items()
@@ -399,7 +416,8 @@ class _Builder:
         record = _record(t, title, endpoint)
         return DesignFile(design=design, sizes=sizes, targets=targets, draws=draws, seed=seed,
                           source=self.source, zones=zones, prior_origin=origin,
-                          precision=precision, record=record, notes=tuple(notes))
+                          precision=precision, record=record, notes=tuple(notes),
+                          planned=planned, sensitivity=sensitivity)
 
     def preflight(self, design: Any, zones: Any, precision: Any, draws: int, seed: int
                   ) -> None:
@@ -438,7 +456,7 @@ def _endpoint(table: Any, effect: Any, builder: _Builder | None) -> Any:
 
         return ContinuousEndpoint(sigma=table.sd, layout=table.layout,
                                   allocation=table.allocation, analysis=table.analysis,
-                                  better=table.better)
+                                  better=table.better, unit=table.unit)
     if kind == "binary":
         from ..endpoints.binary import BinaryEndpoint
 
@@ -482,7 +500,7 @@ def _endpoint(table: Any, effect: Any, builder: _Builder | None) -> Any:
                          **{k: getattr(table, k) for k in (
                              "overdispersion", "dropout_rate", "layout", "allocation",
                              "better", "variance_at", "planning_rate_ratio",
-                             "test_variance")})
+                             "test_variance", "time_unit")})
 
 
 def _rule(table: Any) -> Any:
@@ -524,9 +542,20 @@ def _trial_design(endpoint: Any, design_prior: Any, rule: Any, effect: Any, sd_p
                        power_effects=tuple(effect.also_power_at), title=title)
 
 
-def _sizes(table: Any) -> np.ndarray:
+def _sensitivity(table: Any) -> Any:
+    from ..sensitivity import SensitivitySettings
+
+    return SensitivitySettings(centre_shift=table.centre_shift,
+                               spread_factors=tuple(table.spread_factors),
+                               weight_change=table.weight_change,
+                               map_centres=table.map_centres, map_spreads=table.map_spreads)
+
+
+def _sizes(table: Any) -> np.ndarray | None:
     if table.list_ is not None:
         return np.array(table.list_, dtype=int)
+    if table.from_ is None:  # only 'planned': the sizes are chosen from the targets
+        return None
     step = table.step if table.step is not None else max(1, (table.to - table.from_) // 50)
     return np.arange(table.from_, table.to + 1, step)
 
@@ -552,7 +581,7 @@ def _record(t: dict[str, Any], title: str, endpoint: Any) -> dict[str, Any]:
         if table is not None and table["family"] == "beta_rates" and "scale" not in table:
             table["scale"] = endpoint.scale
     sizes = record.get("sizes")
-    if sizes is not None and "list" not in sizes and "step" not in sizes:
+    if sizes is not None and "list" not in sizes and "from" in sizes and "step" not in sizes:
         sizes["step"] = max(1, (sizes["to"] - sizes["from"]) // 50)
     return record
 

@@ -85,6 +85,8 @@ def key(default: Any = ..., help: str = "", *, scale: str | None = None,
 
 #: Longest title, in characters (TrialDesign has the same bound).
 MAX_TITLE = 200
+#: Longest unit name, in characters (the endpoints have the same bound).
+MAX_UNIT = 40
 #: Longest scipy.stats name or parameter name (the longest scipy name has 18 characters).
 MAX_NAME = 40
 
@@ -113,6 +115,9 @@ _PLAIN_PATTERN = "^[^\\u0000-\\u0008\\u000a-\\u001f\\u007f-\\u009f]*$"
 Title = Annotated[str, Field(min_length=1, max_length=MAX_TITLE,
                              json_schema_extra={"pattern": _PLAIN_PATTERN}),
                   AfterValidator(_plain_text)]
+Unit = Annotated[str, Field(min_length=1, max_length=MAX_UNIT,
+                            json_schema_extra={"pattern": _PLAIN_PATTERN}),
+                 AfterValidator(_plain_text)]
 #: a scipy.stats name or parameter name: letters, digits and underscores
 ScipyName = Annotated[str, Field(min_length=1, max_length=MAX_NAME,
                                  pattern=r"^[A-Za-z_][A-Za-z0-9_]*$")]
@@ -442,6 +447,8 @@ class ContinuousTable(Table):
     analysis: Literal["t", "z"] = key(
         "t", "'t': the SD is estimated at the analysis; 'z': the SD is taken as known.")
     better: Literal["higher", "lower"] = key("higher", "Which direction of the effect is good.")
+    unit: Unit | None = key(None, "The outcome's unit for the memo and figures, e.g. 'metres' "
+                            "(labels only).")
 
 
 class BinaryTable(Table):
@@ -561,6 +568,8 @@ class CountsTable(Table):
     control_rate_prior: PriorTable | None = key(
         None, "Prior on the control rate (a table written like any prior).",
         scale="events per patient-time unit")
+    time_unit: Literal["days", "weeks", "months", "years"] | None = key(
+        None, "Unit of time of control_rate and follow_up, for the memo (labels only).")
 
 
 ENDPOINT_TABLES: dict[str, type[Table]] = {
@@ -652,6 +661,9 @@ class SizesTable(Table):
     list_: list[Size] | None = key(
         None, "Explicit total sizes instead of from/to/step.", alias="list", scale="patients",
         min_length=1, max_length=MAX_SIZES)
+    planned: Size | None = key(
+        None, "The total size the memo's decision box reports (none: the smallest size "
+        "reaching the assurance target).", scale="patients")
 
     @model_validator(mode="after")
     def _one_form(self) -> SizesTable:
@@ -659,6 +671,8 @@ class SizesTable(Table):
         if self.list_ is not None:
             if ranged:
                 raise ValueError("give either 'list' or 'from'/'to'/'step', not both")
+            return self
+        if not ranged:  # only 'planned' (or nothing): the sizes are chosen from the targets
             return self
         missing = [k.rstrip("_") for k in ("from_", "to") if getattr(self, k) is None]
         if missing:
@@ -710,6 +724,23 @@ class PrecisionTable(Table):
                                     "outcome criterion covers.")
 
 
+class SensitivityTable(Table):
+    """How the memo's sensitivity section varies the design prior."""
+
+    show: bool = key(True, "Compute the sensitivity section (false: leave it out).")
+    centre_shift: Annotated[float, Field(gt=0, le=3)] = key(
+        0.5, "The prior's centre is moved down and up by this many prior SDs.",
+        scale="prior SDs")
+    spread_factors: list[Annotated[float, Field(gt=0, le=10)]] = key(
+        [0.5, 2.0], "The prior's spread is multiplied by each of these.", max_length=6)
+    weight_change: Annotated[float, Field(gt=0, lt=1)] = key(
+        0.1, "Weights of point masses and vague parts are moved down and up by this.")
+    map_centres: Annotated[int, Field(ge=3, le=101)] = key(
+        21, "Grid points along the prior centre in the sensitivity map.")
+    map_spreads: Annotated[int, Field(ge=3, le=101)] = key(
+        15, "Grid points along the prior spread in the sensitivity map.")
+
+
 class MonteCarloTable(Table):
     """Monte Carlo settings (used where no exact route exists)."""
 
@@ -738,6 +769,8 @@ class DesignFileModel(Table):
     targets: TargetsTable = key(default_factory=TargetsTable, help="Targets to solve n for.")
     zones: ZonesTable | None = key(None, "Go / consider / stop zones.")
     precision: PrecisionTable | None = key(None, "Posterior interval width planning.")
+    sensitivity: SensitivityTable = key(default_factory=SensitivityTable,
+                                        help="Sensitivity of the answer to the design prior.")
     monte_carlo: MonteCarloTable = key(default_factory=MonteCarloTable,
                                        help="Monte Carlo settings.")
 

@@ -14,7 +14,7 @@ from typing import Any, Literal
 
 import numpy as np
 
-from .._validation import check_choice, check_real
+from .._validation import MAX_UNIT, check_choice, check_real, check_text
 from ..priors.families import Prior
 from ..rules.significance import Significance
 from .base import Endpoint, SuccessCalculator
@@ -45,6 +45,9 @@ class ContinuousEndpoint(Endpoint):
     better
         ``"higher"`` if a larger effect is good, ``"lower"`` if a smaller one is
         (for example a fall in blood pressure).
+    unit
+        The outcome's unit for reading ("metres", "mmHg"), at most 40 characters of plain
+        text; None when unnamed. Labels only: no number depends on it.
 
     Examples
     --------
@@ -60,9 +63,11 @@ class ContinuousEndpoint(Endpoint):
     allocation: float = 1.0
     analysis: Literal["t", "z"] = "t"
     better: Literal["higher", "lower"] = "higher"
+    unit: str | None = None
 
     def __post_init__(self) -> None:
         owner = "ContinuousEndpoint"
+        check_text(self.unit, "unit", owner, max_length=MAX_UNIT, allow_none=True)
         object.__setattr__(self, "sigma", check_real(self.sigma, "sigma", owner, low=0,
                                                      low_open=True))
         check_choice(self.layout, "layout", owner, ["two_arm", "single_arm"])
@@ -105,7 +110,7 @@ class ContinuousEndpoint(Endpoint):
     def to_dict(self) -> dict[str, Any]:
         return {"kind": "continuous", "sigma": self.sigma, "layout": self.layout,
                 "allocation": self.allocation, "analysis": self.analysis,
-                "better": self.better}
+                "better": self.better, "unit": self.unit}
 
     def calculator(self, prior_benefit: Prior, rule_benefit: Significance, *, draws: int,
                    seed: int | None, nuisance: Prior | None = None) -> SuccessCalculator:

@@ -97,6 +97,9 @@ class CountEndpoint(Endpoint):
         Optional prior on the control rate (all mass on rates > 0, e.g.
         ``FromScipy(scipy.stats.gamma(a=40, scale=0.02))``). Assurance then averages over
         it by Monte Carlo; classical power keeps ``control_rate``.
+    time_unit
+        The unit of time of ``control_rate`` and ``follow_up`` (``"days"``, ``"weeks"``,
+        ``"months"``, ``"years"``), for reading; None when unnamed. Labels only.
 
     Notes
     -----
@@ -163,6 +166,7 @@ class CountEndpoint(Endpoint):
     planning_rate_ratio: float | None = None
     test_variance: TestVariance = "observed_rates"
     control_rate_prior: Prior | None = None
+    time_unit: Literal["days", "weeks", "months", "years"] | None = None
 
     effect_name = "rate ratio"
     ratio_scale = True
@@ -192,6 +196,9 @@ class CountEndpoint(Endpoint):
                 "Got 'pooled_null' with variance_at='planning_ratio'.")
         if self.control_rate_prior is not None:
             _check_rate_prior(self.control_rate_prior)
+        if self.time_unit is not None:
+            check_choice(self.time_unit, "time_unit", _OWNER,
+                         ["days", "weeks", "months", "years"])
 
     # ---- geometry ----------------------------------------------------------------------
     @property
@@ -303,6 +310,7 @@ class CountEndpoint(Endpoint):
             "test_variance": self.test_variance,
             "control_rate_prior": (None if self.control_rate_prior is None
                                    else self.control_rate_prior.to_dict()),
+            "time_unit": self.time_unit,
         }
 
 

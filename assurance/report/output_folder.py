@@ -41,7 +41,8 @@ if TYPE_CHECKING:  # pragma: no cover
     from ..planner import Plan
 
 __all__ = ["MARKER", "FIGURE_FORMATS", "OutputClaim", "claim_output_folder", "write_outputs",
-           "write_results_csv", "write_sample_sizes_csv"]
+           "write_results_csv", "write_sample_sizes_csv", "write_sensitivity_csv",
+           "write_long_csv"]
 
 #: Name of the marker file in every output folder: the list of files the package wrote.
 MARKER = ".assurance-output"
@@ -629,6 +630,14 @@ def _write_files(tmp: Path, plan: Plan, formats: Sequence[str]) -> None:
     ds, answers = plan.results, plan.sample_sizes
     write_results_csv(ds, tmp / "results.csv")
     write_sample_sizes_csv(answers, tmp / "sample_sizes.csv")
+    if "sensitivity_assurance" in ds:
+        write_sensitivity_csv(ds, tmp / "sensitivity.csv")
+    if "sensitivity_map" in ds:
+        write_long_csv(ds["sensitivity_map"].transpose("map_centre", "map_spread"),
+                       tmp / "sensitivity_map.csv", ("prior_centre", "prior_spread", "assurance"))
+    if "oc_go" in ds:
+        write_long_csv(ds[["oc_go", "oc_consider", "oc_stop"]].transpose("n", "zone_effect"),
+                       tmp / "zones_by_effect.csv", ("n", "true_effect", "go", "consider", "stop"))
     record = plan.design_record()
     saved = ds.copy()
     if record is not None:  # the design in the file's own names travels with the results
@@ -672,6 +681,49 @@ def write_results_csv(ds: Any, path: str | Path) -> None:
             row += [_fmt(ds[name].values[i]) for name in per_n]
             row += [_fmt(ds.power_curve.values[j, i]) for j in range(len(effects))]
             writer.writerow(row)
+
+
+def write_sensitivity_csv(ds: Any, path: str | Path) -> None:
+    """One row per variation of the design prior: what changed, and the answers under it.
+
+    Columns: ``variation``, ``description``, ``prior_centre``, ``prior_spread`` (prior
+    scale), ``assurance`` (at the planned size), ``ceiling`` and ``n_for_<target>`` per
+    assurance target (empty when no size reaches it).
+    """
+    targets = ([str(t) for t in ds.coords["sensitivity_target"].values]
+               if "sensitivity_target" in ds.coords else [])
+    header = ["variation", "description", "prior_centre", "prior_spread", "assurance",
+              "ceiling", *[f"n_for_{t}" for t in targets]]
+    with open(path, "w", newline="", encoding="utf-8") as fh:
+        writer = csv.writer(fh)
+        writer.writerow(header)
+        for i, name in enumerate(ds.coords["variation"].values):
+            row = [str(name), str(ds["variation_description"].values[i])
+                   if "variation_description" in ds else ""]
+            row += [_fmt(ds[v].values[i]) for v in (
+                "sensitivity_prior_centre", "sensitivity_prior_spread",
+                "sensitivity_assurance", "sensitivity_ceiling")]
+            for j in range(len(targets)):
+                n = int(ds["sensitivity_n"].values[i, j])
+                row.append("" if n < 0 else str(n))
+            writer.writerow(row)
+
+
+def write_long_csv(data: Any, path: str | Path, header: Sequence[str]) -> None:
+    """A DataArray or Dataset over two dimensions as one row per pair of coordinates.
+
+    ``header`` names the two coordinates, then each variable.
+    """
+    frame = data if hasattr(data, "data_vars") else data.to_dataset(name="value")
+    names = list(frame.data_vars)
+    first, second = frame[names[0]].dims
+    with open(path, "w", newline="", encoding="utf-8") as fh:
+        writer = csv.writer(fh)
+        writer.writerow(header)
+        values = [frame[name].transpose(first, second).values for name in names]
+        for i, a in enumerate(frame.coords[first].values):
+            for j, b in enumerate(frame.coords[second].values):
+                writer.writerow([_fmt(a), _fmt(b), *[_fmt(v[i, j]) for v in values]])
 
 
 def write_sample_sizes_csv(answers: Sequence[Any], path: str | Path) -> None:
