@@ -401,8 +401,7 @@ def prior_variations(design: TrialDesign, settings: SensitivitySettings | None =
             "instead.")
     settings = _settings(settings, owner)
     prior = design.design_prior
-    out = [PriorVariation("elicited", f"the design prior as elicited ({prior.describe()})",
-                          prior)]
+    out = [PriorVariation("elicited", "the design prior as given", prior)]
     shape = _shape(design, origin)
     if shape is not None:
         m, s = shape.centre, shape.spread
@@ -417,15 +416,16 @@ def prior_variations(design: TrialDesign, settings: SensitivitySettings | None =
                 if shape.beta is not None:
                     text += f"; {what} mean moved through the treatment rate's beta prior"
                 elif shape.fixed:
-                    text += "; point masses and any vague part stay where they are"
+                    text += " (point masses and any vague part stay where they are)"
                 out.append(PriorVariation(f"centre_{word}", text, varied))
         for f in settings.spread_factors:
             varied = (_beta_with(shape.beta, m, f * s) if shape.beta is not None
                       else shape.rebuilt(0.0, f))
             if varied is None:
                 continue
-            verb = "narrowed" if f < 1 else "widened"
-            text = f"spread {verb} {f:g}-fold (SD {s:.3g} to {f * s:.3g}, {_scale_text(design)})"
+            verb = {0.5: "halved", 2.0: "doubled"}.get(
+                f, f"multiplied by {f:g}")
+            text = f"spread {verb} (SD {s:.3g} to {f * s:.3g}, {_scale_text(design)})"
             if shape.beta is not None:
                 text += "; through the treatment rate's beta prior"
             out.append(PriorVariation(f"spread_x{f:g}", text, varied))
@@ -713,6 +713,8 @@ def prior_sensitivity(
                                                      goals.get("assurance"), prior_at)
         if shift is not None:
             data["sensitivity_centre_shift"] = ((), shift, shift_attrs)
+            sentence = _no_margin_sentence(sentence, shift / s, planned_n, goals, names, texts,
+                                           values, sizes)
     attrs["sensitivity_sentence"] = sentence
 
     keys = list(goals)
@@ -746,6 +748,35 @@ def prior_sensitivity(
                                                                 f"({scale})"}),
     }
     return xr.Dataset(data, coords=coords, attrs=attrs)
+
+
+#: a planned size whose assurance falls below the target within this many prior SDs of
+#: the centre has no margin: the sentence then says what a less favourable prior means
+NO_MARGIN_SDS = 0.05
+
+
+def _no_margin_sentence(sentence: str, shift_sds: float, n: int, goals: Mapping[str, float],
+                        names: list[str], texts: list[str], values: list[float],
+                        sizes: list[list[int]]) -> str:
+    """At the smallest size reaching the target any worse prior misses it: say by how much.
+
+    The centre shift is then a tiny number that tells a reader nothing; the less favourable
+    centre variation (its assurance at the planned size and the size it would need) does.
+    """
+    target = goals.get("assurance")
+    moved = [i for i, name in enumerate(names) if name in ("centre_down", "centre_up")]
+    if target is None or abs(shift_sds) >= NO_MARGIN_SDS or not moved \
+            or values[names.index("elicited")] < target:
+        return sentence
+    worse = min(moved, key=lambda i: values[i])
+    k = list(goals).index("assurance")
+    needed = sizes[worse][k]
+    need = (f"{needed:,} patients would be needed to reach it" if needed > 0
+            else "no size up to the search limit reaches it")
+    return (f"{n:,} patients is the smallest size reaching the {target:.0%} assurance target, "
+            "so any less favourable prior takes assurance below it: with the "
+            f"{texts[worse].split(' (point masses')[0]}, assurance at {n:,} patients is "
+            f"{values[worse]:.0%} and {need}.")
 
 
 def _monte_carlo(design: TrialDesign, draws: int, seed: int | None) -> bool:

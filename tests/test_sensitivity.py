@@ -258,3 +258,21 @@ def test_inputs_are_checked():
         prior_sensitivity(design, 100, {"assurance": 1.5})
     with pytest.raises(AssuranceInputError, match="'settings' parameter"):
         prior_variations(design, {"centre_shift": 1})
+
+
+def test_a_plan_without_margin_says_what_a_less_favourable_prior_means():
+    # at the smallest size reaching the target the centre shift is tiny and says nothing;
+    # the sentence gives the less favourable centre row instead (its numbers, rounded)
+    design = TrialDesign(ContinuousEndpoint(sigma=10.0, analysis="z"), Normal(4.0, 2.0))
+    n = asr.solve_sample_size(design, 0.6).n_total
+    ds = prior_sensitivity(design, n, {"assurance": 0.6})
+    sentence = ds.attrs["sensitivity_sentence"]
+    down = ds.sel(variation="centre_down")
+    assert "smallest size reaching the 60% assurance target" in sentence
+    assert f"{float(down.sensitivity_assurance):.0%}" in sentence
+    assert f"{int(down.sensitivity_n.sel(sensitivity_target='assurance')):,} patients" \
+        in sentence
+    # with room to spare the sentence gives the shift itself
+    roomy = prior_sensitivity(design, 3 * n, {"assurance": 0.6})
+    assert "falls below the 60% target if the prior's centre moves down" in \
+        roomy.attrs["sensitivity_sentence"]
