@@ -374,7 +374,8 @@ class Plan:
         dict of str to matplotlib.figure.Figure
             ``"prior"`` and ``"power_and_assurance"``; ``"prior_fit"`` when the design prior
             was fitted to elicited judgements; ``"interval_width"`` when precision was
-            planned. They are drawn off-screen (no window opens); in a notebook, show one by
+            planned; ``"zones"`` and ``"zones_by_effect"`` (at the planned size) with a go /
+            consider / stop rule; ``"sensitivity_map"`` with the prior sensitivity. They are drawn off-screen (no window opens); in a notebook, show one by
             leaving it as the last expression of a cell.
 
         Examples
@@ -384,7 +385,7 @@ class Plan:
         ...                          asr.Normal(4.0, 2.0))
         >>> figs = asr.plan(design, sizes=[100, 200]).figures()
         >>> sorted(figs)
-        ['power_and_assurance', 'prior']
+        ['power_and_assurance', 'prior', 'sensitivity_map']
         """
         from .report import plot_interval_width, plot_power_and_assurance, plot_prior
 
@@ -400,6 +401,18 @@ class Plan:
         if "width_mean" in self.results:
             figures["interval_width"] = plot_interval_width(self.results,
                                                             self.precision).figure
+        if "prob_go" in self.results:
+            from .report import plot_zone_characteristic, plot_zones
+
+            figures["zones"] = plot_zones(self.results, planned_n=self.planned_n).figure
+            figures["zones_by_effect"] = plot_zone_characteristic(
+                self.results, self.planned_n).figure
+        if "sensitivity_map" in self.results and self.results["sensitivity_map"].size:
+            from .report import plot_sensitivity_map
+
+            figures["sensitivity_map"] = plot_sensitivity_map(
+                self.results, self.design,
+                target=self.settings.targets.get("assurance")).figure
         return figures
 
     def design_record(self) -> str | None:

@@ -23,6 +23,9 @@ from .figures import (
     plot_interval_width,
     plot_power_and_assurance,
     plot_prior,
+    plot_sensitivity_map,
+    plot_zone_characteristic,
+    plot_zones,
     save_figure,
 )
 from .memo import DEFAULT_CAUTIONS, memo_html, memo_text_summary, write_memo
@@ -34,6 +37,9 @@ __all__ = [
     "plot_decomposition",
     "plot_fit",
     "plot_interval_width",
+    "plot_zones",
+    "plot_zone_characteristic",
+    "plot_sensitivity_map",
     "save_figure",
     "figure_bytes",
     "passable_probability",
