@@ -21,7 +21,7 @@ CASE_STUDIES = sorted(p.parent.name for p in (ROOT / "case_studies").glob("*/des
 DRAWS = 4000
 
 
-@functools.lru_cache(maxsize=None)
+@functools.cache
 def case_plan(name: str) -> asr.Plan:
     from assurance.design_file import read_design_file
     from assurance.planner import DesignSource

@@ -15,6 +15,7 @@ from html.parser import HTMLParser
 
 import numpy as np
 import pytest
+from _memo_plans import CASE_STUDIES, ROOT, case_plan
 from hypothesis import given
 from hypothesis import strategies as st
 from scipy import stats
@@ -22,8 +23,6 @@ from scipy import stats
 import assurance as asr
 from assurance.report import wording as wd
 from assurance.report.memo import DEFAULT_CAUTIONS, ZONES_SOURCE, plan_memo_html
-
-from _memo_plans import CASE_STUDIES, ROOT, case_plan
 
 DATE = "2026-01-05"
 VERSIONS = "python 3.x\nassurance test-build"

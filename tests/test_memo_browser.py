@@ -15,10 +15,10 @@ import shutil
 import subprocess
 
 import pytest
-
 from _memo_plans import CASE_STUDIES, case_plan
-from assurance.report.memo import plan_memo_html
 from test_memo import _read, _shown
+
+from assurance.report.memo import plan_memo_html
 
 BROWSER = shutil.which("chromium") or shutil.which("chromium-browser")
 pytestmark = pytest.mark.skipif(

@@ -678,7 +678,8 @@ def _sensitivity(parts: _Parts, figures: bool,
             f"Probability of success at {planned} patients over the prior's centre and "
             "spread",
             "Each point is a design prior with that centre and spread; the elicited prior is "
-            "marked and the line shows where the target is just met.")
+            "marked, and a line shows where the assurance target is just met when that "
+            "happens inside the map.")
     return {"head": head, "rows": rows, "sentence": sentence, "figure": figure}
 
 
