@@ -42,6 +42,9 @@ __all__ = [
     "figure_bytes",
     "passable_probability",
     "plot_fit",
+    "plot_zones",
+    "plot_zone_characteristic",
+    "plot_sensitivity_map",
 ]
 
 # Okabe-Ito colours
@@ -828,10 +831,9 @@ def plot_decomposition(ds: Any, ax: Axes | None = None) -> Axes:
         bottom = top
     ax.fill_between(n, bottom, 1.0, color=_LIGHT, alpha=0.8, linewidth=0, label=names[3])
     ax.axhline(p_good, color=_BLACK, linewidth=1.1, linestyle=(0, (4, 3)), label=line_label)
-    ax.set_xlim(float(n.min()), float(n.max()) if n.max() > n.min() else float(n.min()) + 1)
     ax.set_ylim(0.0, 1.0)
-    ax.set_xlabel("total number of patients (all arms)", fontsize=10.5, parse_math=False)
-    ax.set_ylabel("probability", fontsize=10.5, parse_math=False)
+    _size_axis(ax, ds, float(n.min()), float(n.max()))
+    ax.set_ylabel("Share of trials (probability)", fontsize=10.5, parse_math=False)
     title = ds.attrs.get("title", "")
     ax.set_title(_title(title, "what a success or a failure would mean"), fontsize=11.5,
                  loc="left", parse_math=False)
@@ -839,6 +841,286 @@ def plot_decomposition(ds: Any, ax: Axes | None = None) -> Axes:
         _legend_below(ax)
     else:
         _legend(ax, loc="upper left")
+    return ax
+
+
+# ------------------------------------------------------------------------------------------
+# go / consider / stop
+# ------------------------------------------------------------------------------------------
+_ZONE_STYLE = (("go", "go", _GREEN, "-"), ("consider", "consider", _ORANGE, (0, (5, 2))),
+               ("stop", "stop", _VERMILLION, (0, (6, 2, 1.5, 2))))
+
+
+def plot_zones(ds: Any, ax: Axes | None = None, planned_n: int | None = None) -> Axes:
+    """Draw the probabilities of go, consider and stop against the total sample size.
+
+    The three probabilities (under the design prior) add up to one at each size; they are
+    drawn as stacked bands, go at the bottom, with the boundaries between them as lines. A
+    vertical line marks the planned size, labelled with the three probabilities there.
+
+    Parameters
+    ----------
+    ds
+        A dataset holding ``prob_go``, ``prob_consider`` and ``prob_stop`` over ``n`` (a
+        plan's results with zones, or :func:`assurance.rules.zones.evaluate_zones`).
+    ax
+        Axes to draw into. Without one, a new figure is made on the off-screen canvas.
+    planned_n
+        The planned total size to mark (the nearest size in ``ds`` is labelled), or None.
+
+    Returns
+    -------
+    matplotlib.axes.Axes
+        The axes drawn into.
+
+    Examples
+    --------
+    >>> import assurance as asr
+    >>> from assurance.rules.zones import GoConsiderStop, evaluate_zones
+    >>> design = asr.TrialDesign(asr.ContinuousEndpoint(sigma=10.0), asr.Normal(4.0, 2.0))
+    >>> ds = evaluate_zones(design, GoConsiderStop(2.0, 4.0), range(50, 401, 50))
+    >>> plot_zones(ds, planned_n=200).get_ylabel()
+    'Chance of each decision (probability)'
+    """
+    needed = ("prob_go", "prob_consider", "prob_stop")
+    _check_dataset(ds, "plot_zones", needed)
+    own = ax is None
+    ax = _axes(ax)
+    _style(ax)
+    n = np.asarray(ds["n"].values, dtype=float)
+    values = {name: np.clip(np.asarray(ds[f"prob_{name}"].values, dtype=float), 0, 1)
+              for name in ("go", "consider", "stop")}
+    bottom = np.zeros_like(n)
+    for name, word, colour, style in _ZONE_STYLE:
+        top = np.minimum(bottom + values[name], 1.0)
+        ax.fill_between(n, bottom, top, color=colour, alpha=0.35, linewidth=0,
+                        label=f"P({word})")
+        if name != "stop":
+            ax.plot(n, top, color=colour, linewidth=1.8, linestyle=style)
+        bottom = top
+    lo, hi = float(n.min()), float(n.max())
+    labels = []
+    if planned_n is not None:
+        k = int(np.argmin(np.abs(n - float(planned_n))))
+        at = float(n[k])
+        ax.axvline(at, color=_BLACK, linewidth=1.2, linestyle=(0, (4, 3)), zorder=4)
+        from ._label_placement import Label, around
+
+        text = (f"planned n = {int(at)}\ngo {values['go'][k]:.0%}, consider "
+                f"{values['consider'][k]:.0%}, stop {values['stop'][k]:.0%}")
+        labels.append(Label(text, (at, 0.5), around((6, 14, 24, 40, 60, 90, 130)),
+                            style={"fontsize": 8.5, "bbox": _TEXT_BOX}))
+    ax.set_ylim(0.0, 1.0)
+    _size_axis(ax, ds, lo, hi)
+    ax.set_ylabel("Chance of each decision (probability)", fontsize=10.5, parse_math=False)
+    ax.set_title(_title(ds.attrs.get("title", ""), "go, consider or stop by sample size"),
+                 fontsize=11.5, loc="left", parse_math=False)
+    if own:
+        _legend_below(ax)
+    else:
+        _legend(ax, loc="upper left", bbox_to_anchor=(1.02, 1.0), borderaxespad=0.0)
+    if labels:
+        from ._label_placement import place_labels
+
+        place_labels(ax, labels)
+    return ax
+
+
+def plot_zone_characteristic(ds: Any, n: int, ax: Axes | None = None) -> Axes:
+    """Draw P(go), P(consider) and P(stop) at one size against the true effect.
+
+    The operating characteristic of the go / consider / stop rule: for each fixed true
+    effect (coordinate ``zone_effect``, natural scale), the probability of each decision at
+    total size ``n`` (the nearest size in ``ds``).
+
+    Parameters
+    ----------
+    ds
+        A dataset holding ``oc_go``, ``oc_consider`` and ``oc_stop`` over ``n`` and
+        ``zone_effect``.
+    n
+        The total sample size to show.
+    ax
+        Axes to draw into. Without one, a new figure is made on the off-screen canvas.
+
+    Returns
+    -------
+    matplotlib.axes.Axes
+        The axes drawn into.
+
+    Examples
+    --------
+    >>> import assurance as asr
+    >>> from assurance.rules.zones import GoConsiderStop, evaluate_zones
+    >>> design = asr.TrialDesign(asr.ContinuousEndpoint(sigma=10.0), asr.Normal(4.0, 2.0))
+    >>> ds = evaluate_zones(design, GoConsiderStop(2.0, 4.0), [100, 200],
+    ...                     effects=[0, 1, 2, 3, 4, 5, 6])
+    >>> plot_zone_characteristic(ds, 200).get_ylabel()
+    'Chance of the decision (probability)'
+    """
+    needed = ("oc_go", "oc_consider", "oc_stop")
+    _check_dataset(ds, "plot_zone_characteristic", needed)
+    if "zone_effect" not in ds.dims:
+        raise AssuranceInputError(
+            "The 'ds' parameter of plot_zone_characteristic must have the dimension "
+            f"'zone_effect'. Got dimensions {tuple(ds.dims)} instead.")
+    from .._validation import check_real
+
+    size = check_real(n, "n", "plot_zone_characteristic", low=0, low_open=True)
+    own = ax is None
+    ax = _axes(ax)
+    _style(ax)
+    sizes = np.asarray(ds["n"].values, dtype=float)
+    k = int(np.argmin(np.abs(sizes - size)))
+    shown_n = int(sizes[k])
+    info = _design_dict(ds)
+    endpoint = info.get("endpoint", {})
+    ratio = _effect_scale(endpoint)[2] == "ratio" if endpoint else False
+    effects = np.asarray(ds["zone_effect"].values, dtype=float)
+    order = np.argsort(effects)
+    x = np.log(effects[order]) if ratio else effects[order]
+    dot = "o" if x.size <= 12 else None
+    for name, word, colour, style in _ZONE_STYLE:
+        y = np.asarray(ds[f"oc_{name}"].isel(n=k).values, dtype=float)[order]
+        ax.plot(x, y, color=colour, linewidth=2.0, linestyle=style, marker=dot,
+                markersize=5, label=f"P({word})")
+    lo, hi = float(x.min()), float(x.max())
+    pad = 0.04 * (hi - lo) if hi > lo else 1.0
+    ax.set_xlim(lo - pad, hi + pad)
+    ax.set_ylim(-0.02, 1.02)
+    if endpoint:
+        _effect_axis(ax, endpoint, lo - pad, hi + pad)
+    else:
+        ax.set_xlabel("True effect (units of the outcome)", fontsize=10.5, parse_math=False)
+    ax.set_ylabel("Chance of the decision (probability)", fontsize=10.5, parse_math=False)
+    ax.set_title(_title(ds.attrs.get("title", ""),
+                        f"decisions at n = {shown_n} by true effect"),
+                 fontsize=11.5, loc="left", parse_math=False)
+    _place_legend(ax, own, ("center right", "center left", "upper center", "lower center"))
+    return ax
+
+
+# ------------------------------------------------------------------------------------------
+# sensitivity to the design prior
+# ------------------------------------------------------------------------------------------
+def plot_sensitivity_map(ds: Any, design: TrialDesign | None = None, ax: Axes | None = None,
+                         *, target: float | None = None) -> Axes:
+    """Draw assurance at the planned size over the design prior's centre and spread.
+
+    Filled contours of ``sensitivity_map`` over ``map_centre`` x ``map_spread`` (the centre
+    and SD of the prior's continuous part, on the prior's scale: the log ratio for ratio
+    effects, shown to the reader as ratios); the elicited prior is marked, and the
+    assurance target's contour is drawn and labelled when a target is given or known.
+
+    Parameters
+    ----------
+    ds
+        A dataset holding ``sensitivity_map`` (a plan's results, or
+        :func:`assurance.sensitivity.prior_sensitivity`); points marked -1 (no prior of
+        that centre and spread) are left blank.
+    design
+        The trial, for the effect's name and unit (else read from ``ds.attrs["design"]``).
+    ax
+        Axes to draw into. Without one, a new figure is made on the off-screen canvas.
+    target
+        The assurance target whose contour to draw; by default
+        ``ds.attrs["sensitivity_target_assurance"]`` when present.
+
+    Returns
+    -------
+    matplotlib.axes.Axes
+        The axes drawn into (the colour bar is beside it).
+
+    Examples
+    --------
+    >>> import numpy as np, xarray as xr
+    >>> c, s = np.linspace(0, 8, 9), np.linspace(1, 4, 7)
+    >>> grid = 1 / (1 + np.exp(-(c[:, None] - 4) / s[None, :]))
+    >>> ds = xr.Dataset({"sensitivity_map": (("map_centre", "map_spread"), grid),
+    ...                  "sensitivity_planned_n": ((), 200)},
+    ...                 coords={"map_centre": c, "map_spread": s},
+    ...                 attrs={"sensitivity_elicited_centre": 4.0,
+    ...                        "sensitivity_elicited_spread": 2.0})
+    >>> ax = plot_sensitivity_map(ds, target=0.6)
+    >>> ax.get_xlabel()
+    'Prior centre: difference in means, treatment minus control (units of the outcome)'
+    """
+    if "sensitivity_map" not in getattr(ds, "data_vars", {}) or \
+            not {"map_centre", "map_spread"} <= set(getattr(ds, "dims", ())):
+        raise AssuranceInputError(
+            "The 'ds' parameter of plot_sensitivity_map must hold 'sensitivity_map' over "
+            "'map_centre' and 'map_spread' (a plan's results or prior_sensitivity). Got "
+            f"{type(ds).__name__} instead.")
+    if target is not None:
+        from .._validation import check_real
+
+        target = check_real(target, "target", "plot_sensitivity_map", low=0, high=1,
+                            low_open=True, high_open=True)
+    elif ds.attrs.get("sensitivity_target_assurance") is not None:
+        target = float(ds.attrs["sensitivity_target_assurance"])
+    from matplotlib.colors import BoundaryNorm
+
+    ax = _axes(ax, (7.6, 5.2))
+    grid = np.asarray(ds["sensitivity_map"].transpose("map_spread", "map_centre").values,
+                      dtype=float)
+    grid = np.ma.masked_less(grid, 0.0)
+    centres = np.asarray(ds["map_centre"].values, dtype=float)
+    spreads = np.asarray(ds["map_spread"].values, dtype=float)
+    endpoint: Any = design.endpoint if design is not None else \
+        _design_dict(ds).get("endpoint", {})
+    name, compares, unit = _effect_scale(endpoint)
+    levels = np.linspace(0.0, 1.0, 11)
+    mesh = ax.contourf(centres, spreads, grid, levels=levels, cmap="cividis",
+                       norm=BoundaryNorm(levels, 256), extend="neither")
+    planned = ds.get("sensitivity_planned_n")
+    at = f" at n = {int(planned)}" if planned is not None else " at the planned size"
+    bar = ax.figure.colorbar(mesh, ax=ax, ticks=levels[::2])
+    bar.set_label(f"Probability of success{at}", fontsize=10, parse_math=False)
+    from ._label_placement import Label, around, place_labels
+
+    labels = []
+    if target is not None and grid.count() and grid.min() < target < grid.max():
+        lines = ax.contour(centres, spreads, grid, levels=[target], colors=_BLACK,
+                           linewidths=1.8, linestyles=[(0, (5, 2))])
+        # the label goes at the contour's middle point, placed clear of the rest
+        paths = [p for p in lines.get_paths() if len(p.vertices)]
+        if paths:
+            longest = max(paths, key=lambda p: len(p.vertices))
+            mid = longest.vertices[len(longest.vertices) // 2]
+            from matplotlib.lines import Line2D
+
+            for path in paths:  # the contour as lines, so labels keep off it
+                ax.add_line(Line2D(path.vertices[:, 0], path.vertices[:, 1], color=_BLACK,
+                                   linewidth=1.8, alpha=0.0))
+            labels.append(Label(f"target {target:g}", (float(mid[0]), float(mid[1])),
+                                around(), style={"fontsize": 9, "bbox": _TEXT_BOX}))
+    m = ds.attrs.get("sensitivity_elicited_centre")
+    sd = ds.attrs.get("sensitivity_elicited_spread")
+    if m is not None and sd is not None:
+        ax.plot([float(m)], [float(sd)], marker="*", markersize=15, color="white",
+                markeredgecolor=_BLACK, linestyle="none", zorder=5)
+        labels.append(Label("elicited prior", (float(m), float(sd)), around(),
+                            style={"fontsize": 9, "bbox": _TEXT_BOX}))
+    lo, hi = float(centres.min()), float(centres.max())
+    ax.set_xlim(lo, hi)
+    ax.set_ylim(float(spreads.min()), float(spreads.max()))
+    if unit == "ratio":
+        _ratio_ticks(ax, lo, hi)
+        ax.set_xlabel(f"Prior centre: {name} (median, {compares}; log scale)",
+                      fontsize=10.5, parse_math=False)
+        ax.set_ylabel(f"Prior spread: SD (log {name})", fontsize=10.5, parse_math=False)
+    else:
+        if unit == "percentage points":
+            _percent_ticks(ax)
+            _percent_ticks(ax, "y")
+        where = f", {compares}" if compares else ""
+        ax.set_xlabel(f"Prior centre: {name}{where} ({unit})", fontsize=10.5,
+                      parse_math=False)
+        ax.set_ylabel(f"Prior spread: SD ({unit})", fontsize=10.5, parse_math=False)
+    ax.set_title(_title(ds.attrs.get("title", ""),
+                        "how the chance of success moves with the prior"),
+                 fontsize=11.5, loc="left", parse_math=False)
+    place_labels(ax, labels)
     return ax
 
 
@@ -994,12 +1276,13 @@ def plot_interval_width(ds: Any, answers: Sequence[Any] = (), ax: Axes | None = 
     >>> ds = interval_width_curve(NormalMean(10.0, asr.Normal(0, 20)), range(20, 401, 20),
     ...                           length=4.0)
     >>> plot_interval_width(ds).get_ylabel()
-    'width of the posterior interval'
+    'Width of the posterior interval (units of the effect)'
     """
     if "width_mean" not in getattr(ds, "data_vars", {}):
         raise AssuranceInputError(
             "The 'ds' parameter of plot_interval_width must hold 'width_mean' (from "
             f"assurance.precision.interval_width_curve). Got {type(ds).__name__} instead.")
+    own = ax is None
     ax = _axes(ax)
     _style(ax)
     n = ds.n.values
@@ -1026,19 +1309,29 @@ def plot_interval_width(ds: Any, answers: Sequence[Any] = (), ax: Axes | None = 
                 n.min() <= answer.n_total <= n.max() and answer.criterion in ("ALC", "WOC",
                                                                                 "MWOC"):
             marks.setdefault(int(answer.n_total), []).append(answer)
+    from ._label_placement import Label, around, place_labels
+
+    labels = []
     for size, group in marks.items():
         ax.plot([size], [group[0].achieved], marker="o", markersize=6,
-                markeredgecolor=_BLACK, markerfacecolor=_GREEN, zorder=5)
-        ax.annotate(" = ".join(a.criterion for a in group) + f": n = {size}",
-                    (size, group[0].achieved), xytext=(5, 6), textcoords="offset points",
-                    fontsize=8.5, bbox=_TEXT_BOX, parse_math=False)
-    ax.set_xlim(float(n.min()), float(n.max()) if n.max() > n.min() else float(n.min()) + 1)
+                markeredgecolor=_BLACK, markerfacecolor=_GREEN, zorder=5, linestyle="none")
+        labels.append(Label(" = ".join(a.criterion for a in group) + f": n = {size}",
+                            (size, group[0].achieved), around(),
+                            style={"fontsize": 8.5, "bbox": _TEXT_BOX}))
     ax.set_ylim(bottom=0.0)
-    ax.set_xlabel("total number of patients (all arms)", fontsize=10.5, parse_math=False)
-    ax.set_ylabel("width of the posterior interval", fontsize=10.5, parse_math=False)
+    _size_axis(ax, ds, float(n.min()), float(n.max()))
+    endpoint = _design_dict(ds).get("endpoint", {})
+    unit = _effect_scale(endpoint)[2] if endpoint else "units of the effect"
+    if unit == "ratio":
+        unit = "log ratio"
+    elif unit == "percentage points":
+        unit = "proportion"
+    ax.set_ylabel(f"Width of the posterior interval ({unit})", fontsize=10.5,
+                  parse_math=False)
     ax.set_title(_title(ds.attrs.get("title", ""), "how precisely the effect will be known"),
                  fontsize=11.5, loc="left", parse_math=False)
-    _legend(ax, loc="upper right")
+    _place_legend(ax, own, ("upper right", "lower left", "center right"))
+    place_labels(ax, labels)
     return ax
 
 
