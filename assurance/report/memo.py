@@ -674,7 +674,8 @@ def _sensitivity(parts: _Parts, figures: bool,
     if figures:
         figure = _figure(
             "sensitivity_map", rendered,
-            lambda: _call("plot_sensitivity_map", ds, parts.design),
+            lambda: _call_with("plot_sensitivity_map", (ds, parts.design),
+                               target=targets.get("assurance")),
             f"Probability of success at {planned} patients over the prior's centre and "
             "spread",
             "Each point is a design prior with that centre and spread; the elicited prior is "
@@ -724,10 +725,11 @@ def _zones(parts: _Parts, figures: bool, rendered: Mapping[str, bytes] | None,
             "the analysis prior, so it asks for a larger observed effect.")
     figs = []
     if figures:
-        figs.append(_figure("zones", rendered, lambda: _call("plot_zones", ds),
+        figs.append(_figure("zones", rendered,
+                            lambda: _call_with("plot_zones", (ds,), planned_n=n),
                             "Chances of go, consider and stop by sample size",
                             "Probabilities under the design prior."))
-        figs.append(_figure("zone_characteristic", rendered,
+        figs.append(_figure("zones_by_effect", rendered,
                             lambda: _call("plot_zone_characteristic", ds, n),
                             f"Chances of go, consider and stop against the true effect at {n} "
                             "patients",
@@ -816,6 +818,19 @@ def _call(name: str, *args: Any) -> Any:
 
     draw = getattr(fg, name, None)
     return None if draw is None else draw(*args)
+
+
+def _call_with(name: str, args: tuple[Any, ...], **keywords: Any) -> Any:
+    """As :func:`_call`, passing ``keywords`` only where the function takes them."""
+    import inspect
+
+    from . import figures as fg
+
+    draw = getattr(fg, name, None)
+    if draw is None:
+        return None
+    taken = inspect.signature(draw).parameters
+    return draw(*args, **{k: v for k, v in keywords.items() if k in taken})
 
 
 def _figure(name: str, rendered: Mapping[str, bytes] | None, draw: Any, alt: str,
@@ -974,7 +989,8 @@ def plan_memo_html(
     rendered
         PNG bytes of figures already drawn, keyed by name (``"power_and_assurance"``,
         ``"prior"``, ``"prior_fit"``, ``"interval_width"``, ``"zones"``,
-        ``"zone_characteristic"``, ``"sensitivity_map"``); the others are drawn here.
+        ``"zones_by_effect"``, ``"sensitivity_map"``, as :meth:`assurance.Plan.figures`
+        names them); the others are drawn here.
     cautions, versions, date
         As for :func:`write_memo`.
     design_record
