@@ -66,7 +66,7 @@ def test_every_axis_names_its_unit(case_figures):
             x, y = ax.get_xlabel(), ax.get_ylabel()
             assert x.strip() and y.strip(), (name, fig_name)
             assert "(" in y and ")" in y, (name, fig_name, y)  # "... (probability)" etc.
-            if fig_name in ("prior", "zone_characteristic", "sensitivity_map"):
+            if fig_name in ("prior", "zone_characteristic", "zones_by_effect", "sensitivity_map"):
                 assert "(" in x and ")" in x or "ratio" in x, (name, fig_name, x)
             elif fig_name != "prior_fit":
                 assert "patients" in x, (name, fig_name, x)
