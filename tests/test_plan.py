@@ -40,7 +40,7 @@ CASE_DIR = ROOT / "case_studies"
 def _knee_pain() -> dict:
     design = asr.TrialDesign(
         asr.ContinuousEndpoint(sigma=18.0, layout="two_arm", allocation=1.0, analysis="t",
-                               better="lower"),
+                               better="lower", unit="points"),
         asr.Mixture([asr.PointMass(0.0), asr.Normal(-6.0, 3.0)], [0.2, 0.8]),
         rule=asr.Significance(alpha=0.05, sided="two"),
         assumed_effect=-7.0,
@@ -78,7 +78,7 @@ def _phase2_to_phase3() -> dict:
     prior = origin.prior()
     design = asr.TrialDesign(
         asr.ContinuousEndpoint(sigma=60.0, layout="two_arm", allocation=1.0, analysis="t",
-                               better="higher"),
+                               better="higher", unit="metres"),
         prior,
         rule=asr.Significance(alpha=0.05, sided="two"),
         assumed_effect=22.0,
@@ -90,14 +90,14 @@ def _phase2_to_phase3() -> dict:
     return {"design": design, "targets": {"power": 0.9, "assurance": 0.7},
             "sizes": range(50, 1001, 25),
             "zones": asr.GoConsiderStop(min_acceptable=10.0, target=25.0),
-            "prior_origin": origin}
+            "prior_origin": origin, "planned": 500}
 
 
 def _relapse_counts() -> dict:
     design = asr.TrialDesign(
         asr.CountEndpoint(0.6, 2.0, dropout_rate=0.1, overdispersion=0.8, layout="two_arm",
                           allocation=1.0, better="lower", variance_at="true_effect",
-                          test_variance="observed_rates",
+                          test_variance="observed_rates", time_unit="years",
                           control_rate_prior=asr.FromScipy(stats.gamma(a=36.0,
                                                                        scale=0.0166667))),
         asr.Normal(math.log(0.70), 0.15),
@@ -130,7 +130,7 @@ def _response_rate() -> dict:
 def _weekly_injection() -> dict:
     design = asr.TrialDesign(
         asr.ContinuousEndpoint(sigma=12.0, layout="two_arm", allocation=1.0, analysis="t",
-                               better="lower"),
+                               better="lower", unit="mmHg"),
         asr.Normal(0.5, 1.5),
         rule=asr.Significance(alpha=0.025, sided="one", margin=3.0),
         assumed_effect=0.0,
@@ -413,7 +413,8 @@ def test_write_formats_svg_on_request(small, tmp_path):
         assert (out / "figures" / f"{name}.png").is_file()
         assert "</svg>" in (out / "figures" / f"{name}.svg").read_text(encoding="utf-8")
     out = small.write(tmp_path / "svg_only", formats="svg")
-    assert sorted(p.suffix for p in (out / "figures").iterdir()) == [".svg"] * 3
+    assert sorted(p.suffix for p in (out / "figures").iterdir()) == \
+        [".svg"] * len(small.figures())
     assert 'src="data:image/png;base64,' in (out / "memo.html").read_text(encoding="utf-8")
 
 
@@ -511,7 +512,8 @@ def test_figures_are_matplotlib_figures(small):
 
     figures = small.figures()
     try:
-        assert sorted(figures) == ["interval_width", "power_and_assurance", "prior"]
+        assert sorted(figures) == ["interval_width", "power_and_assurance", "prior",
+                                   "sensitivity_map"]
         assert all(isinstance(fig, Figure) for fig in figures.values())
     finally:
         for fig in figures.values():
@@ -524,7 +526,7 @@ def test_figures_include_the_fit_of_an_elicited_prior():
     fit = asr.fit_prior([asr.Quantile(2.0, 0.25), asr.Quantile(4.0, 0.5),
                          asr.Quantile(6.0, 0.75)], family="normal")
     design = asr.TrialDesign(asr.ContinuousEndpoint(sigma=10.0, analysis="z"), fit.prior)
-    figures = asr.plan(design, sizes=[100, 200], prior_origin=fit).figures()
+    figures = asr.plan(design, sizes=[100, 200], prior_origin=fit, sensitivity=False).figures()
     try:
         assert sorted(figures) == ["power_and_assurance", "prior", "prior_fit"]
     finally:
