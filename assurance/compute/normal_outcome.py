@@ -4,12 +4,13 @@ This is where a rule's thresholds meet a prior. Four routes, all returning the s
 quantities (probability of success and of "success and effect above a cut"):
 
 * **known sigma, z analysis**: threshold ``c(n)``; closed form for normal priors, exact for
-  point masses, adaptive quadrature for other priors (:mod:`.prior_predictive`);
+  point masses, a fixed panel rule for other priors (:mod:`.prior_predictive`);
 * **known sigma, t test** (:class:`~assurance.rules.significance.Significance`): the
   non-central t distribution function for point masses and normal priors (power and
   assurance in closed form); the joint probabilities of a normal prior, a minimum observed
   effect, and other priors integrate over the sample SD with the feature-aware rule of
-  :mod:`.sd_quadrature`, or over the prior of the power curve;
+  :mod:`.sd_quadrature` (for other priors with the fixed panel rule over the prior at
+  every node: no adaptive step anywhere);
 * **known sigma, other rules with a t analysis**: the general quadrature over the sample SD;
 * **uncertain sigma** (a prior on sigma): deterministic quadrature over a scaled inverse
   chi-square prior (or point masses, or mixtures of these) when the effect prior is normal,
@@ -25,11 +26,11 @@ from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
-from scipy import integrate, special
+from scipy import special
 
 from ..priors.families import Normal, PointMass, Prior, ScaledInvChiSquare
 from ..rules.significance import Significance
-from .prior_predictive import prob_estimate_above, upper_orthant_normal
+from .prior_predictive import prior_edges, prob_estimate_above, upper_orthant_normal
 from .sd_quadrature import hermite_part, ratio_rule, sd_ratio_nodes
 
 __all__ = ["Cut", "SuccessProbabilities", "DrawAverages", "exact_success", "monte_carlo_success",
@@ -272,50 +273,73 @@ def _t_test(prior: Prior, rule: Significance, se: np.ndarray, df: np.ndarray,
                                             np.broadcast_to(sd / tau[col], h.shape))
                 for j in range(len(cuts)):
                     joint[j] += w * column_sums(col, weight * both[j])
-        elif not kinked:
-            values = _power_over_prior(part, low, se, df, crit, cuts)
+        else:
+            values = _power_over_prior(part, low, se, df, crit, cuts,
+                                       floor_value=e if kinked else None)
             success += w * values[0]
             for j in range(len(cuts)):
                 joint[j] += w * values[1 + j]
-        else:
-            ratio, weight = sd_ratio_nodes(df, kink=floor)
-            c = np.maximum(low + slope[None, :] * ratio, e)
-            for j, cut in enumerate([None, *cuts]):
-                inner = prob_estimate_above(part, c, se[None, :],
-                                            effect_above=None if cut is None else cut.value,
-                                            inclusive=bool(cut and cut.inclusive))
-                target = success if cut is None else joint[j - 1]
-                target += w * np.sum(weight * inner, axis=0)
     return SuccessProbabilities(success=np.clip(success, 0.0, 1.0),
                                 joint=[np.clip(p, 0.0, 1.0) for p in joint])
 
 
 def _power_over_prior(part: Prior, low: float, se: np.ndarray, df: np.ndarray,
-                      crit: np.ndarray, cuts: list[Cut]) -> list[np.ndarray]:
-    """Power curve of the t test averaged over a continuous prior, by adaptive quadrature on
-    the probability scale ``u = F(delta)`` (bounded integrand, finite range); the places
-    where the curve rises (``delta = A + t se r`` for ``r`` across the sample SD ratio's
-    range) and the cuts are breakpoints. Rows: success, then each cut."""
-    u_cuts = [float(part.cdf(cut.value)) for cut in cuts]
-    ratios = np.array([0.0, 0.25, 0.5, 0.75, 1.0, 1.5, 2.0, 4.0])
-    rise = low + (crit * se)[None, :] * ratios[:, None]
-    centres = np.concatenate([rise.ravel(), (rise - 4 * se).ravel(), (rise + 4 * se).ravel()])
-    centres = np.unique(centres)
-    if centres.size > 150:
-        centres = np.quantile(centres, np.linspace(0.0, 1.0, 150))
-    u_points = np.unique(np.concatenate([np.asarray(part.cdf(centres), dtype=float),
-                                         u_cuts]))
-    points = [float(v) for v in u_points if 0.0 < v < 1.0]
+                      crit: np.ndarray, cuts: list[Cut], floor_value: float | None = None
+                      ) -> list[np.ndarray]:
+    """A t test's success probabilities averaged over a continuous prior that is not normal,
+    by fixed rules in both directions. Rows: success, then each cut.
 
-    def integrand(u: float) -> np.ndarray:
-        delta = part.ppf(min(max(u, 1e-300), 1 - 1e-16))
-        power = nct_sf(crit, df, (delta - low) / se)
-        return np.concatenate([power] + [power * (u > uc) for uc in u_cuts])
+    Success iff ``d > c(r) = max(A + B r, e)``, ``B = t se``, ``r`` the sample SD ratio
+    (independent of ``d``), ``e`` the minimum observed effect (``floor_value``) if any. So
+    every figure is ``E_r[g(c(r))]`` with ``g(c) = P(d > c [and delta > a])`` averaged over
+    the prior: the inner expectation by the fixed panel rule of
+    :func:`.prior_predictive.prob_estimate_above` (one survival-function call for every
+    threshold of every node and size), the outer by :func:`.sd_quadrature.ratio_rule`.
+    ``g`` is the prior smoothed by the estimate's noise, so it bends on a scale of at least
+    ``se`` (``1 / t`` in ``r``), at the prior's quantiles, support ends and cuts (the only
+    places a prior's shape is sharp): those are the features given to the outer rule, each
+    with that narrowest width; below the kink ``r = (e - A) / B`` the threshold is ``e``
+    and the integrand constant (the rule's floor).
+    """
+    slope = crit * se
+    with np.errstate(divide="ignore", invalid="ignore"):
+        places = np.unique(np.concatenate([prior_edges(part), [cut.value for cut in cuts]]))
+        centres = (_thinned(places, se) - low) / slope[None, :]
+        widths = np.broadcast_to(1.0 / crit, centres.shape)
+        floor = None if floor_value is None else (floor_value - low) / slope
+    col, ratio, weight = ratio_rule(df, centres, widths, floor=floor)
+    c = low + slope[col] * ratio
+    if floor_value is not None:
+        c = np.maximum(c, floor_value)
+    s = se[col]
+    rows = []
+    for cut in [None, *cuts]:
+        inner = prob_estimate_above(part, c, s, effect_above=None if cut is None
+                                    else cut.value, inclusive=bool(cut and cut.inclusive))
+        rows.append(np.clip(np.bincount(col, weight * inner, minlength=se.size), 0.0, 1.0))
+    return rows
 
-    value, _err = integrate.quad_vec(integrand, 0.0, 1.0, epsabs=1e-11, epsrel=1e-10,
-                                     limit=4000, norm="max", points=points or None)
-    value = np.asarray(value).reshape(1 + len(cuts), se.size)
-    return list(value)
+
+#: Places closer than this many standard errors to the last one kept are not features of
+#: their own: the panels laid about the kept one (0.7 and 2 widths either side) resolve them.
+_MERGE = 0.7
+
+
+def _thinned(places: np.ndarray, se: np.ndarray) -> np.ndarray:
+    """``places`` (sorted) as an array ``(len(places), len(se))``: per column, a place within
+    ``_MERGE * se`` of the last place kept is NaN (ignored by the rule), so that a prior
+    whose quantiles crowd within one standard error costs one feature, not dozens."""
+    out = np.full((places.size, se.size), np.nan)
+    if places.size == 0:
+        return out
+    out[0] = places[0]
+    last = np.full(se.shape, places[0])
+    gap = _MERGE * se
+    for i in range(1, places.size):
+        keep = places[i] - last >= gap
+        out[i, keep] = places[i]
+        last = np.where(keep, places[i], last)
+    return out
 
 
 class DrawAverages:

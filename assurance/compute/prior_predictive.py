@@ -27,7 +27,7 @@ from scipy import special
 
 from ..priors.families import Normal, PointMass, Prior
 
-__all__ = ["prob_estimate_above", "upper_orthant_normal"]
+__all__ = ["prob_estimate_above", "upper_orthant_normal", "prior_edges"]
 
 def upper_orthant_normal(h: np.ndarray, k: np.ndarray, rho: np.ndarray) -> np.ndarray:
     """P(Z1 > h, Z2 > k) for standard normals with correlation ``rho`` in (-1, 1).
@@ -230,8 +230,12 @@ _LEVELS = np.array([1e-15, 1e-13, 1e-11, 1e-9, 1e-7, 1e-6, 1e-5, 1e-4, 1e-3, 5e-
 _LEVELS = np.unique(np.concatenate([_LEVELS, 1.0 - _LEVELS]))
 _GAUSS = special.roots_legendre(_NODES)
 _SQRT_2PI = math.sqrt(2.0 * math.pi)
-#: Most panels one group of thresholds may span before each threshold gets its own nodes.
+#: Most panels one group of thresholds may span before each threshold may get its own
+#: nodes: beyond it a group is split if that takes fewer nodes (each threshold of a kept
+#: group reads only the nodes near it), or if the groups would need more than
+#: ``_MOST_NODES`` nodes in all.
 _MAX_PANELS = 400
+_MOST_NODES = 4_000_000
 #: Largest number of (threshold, node) products formed at once (memory bound); up to this
 #: size the normal densities are kept for the calls with a cut on the same thresholds.
 _BLOCK = 2_000_000
@@ -256,6 +260,24 @@ def _prior_edges(part: Prior) -> np.ndarray:
     except TypeError:  # pragma: no cover - a prior that cannot be weakly referenced
         pass
     return edges
+
+
+def prior_edges(part: Prior) -> np.ndarray:
+    """Where a continuous prior may bend: its quantiles at fixed probability levels (1e-15
+    to 1 - 1e-15, denser in the tails) and its finite support ends, sorted and unique.
+
+    Any feature of ``P(d > c)`` as a function of the threshold ``c`` lies near one of these
+    (within a few standard errors) or is as wide as the spacing between them. Computed once
+    per prior (one ``ppf`` call per level) and kept while the prior lives.
+
+    Examples
+    --------
+    >>> from assurance.priors import Uniform
+    >>> edges = prior_edges(Uniform(0.0, 2.0))
+    >>> float(edges[0]), float(edges[-1]), bool((edges[1:] > edges[:-1]).all())
+    (0.0, 2.0, True)
+    """
+    return _prior_edges(part)
 
 
 def _survival(part: Prior, x: np.ndarray) -> np.ndarray:
@@ -291,7 +313,10 @@ class _Nodes:
         starts = np.flatnonzero(first)
         ends = np.append(starts[1:], self.s.size) - 1
         span = (self.c[ends] - self.c[starts]) / self.s[starts]
-        if span.max() > (_MAX_PANELS - 2 * _Z_END / _STEP) * _STEP:
+        panels = (span.max() + 2 * _Z_END) / _STEP   # the widest group's panels
+        shared = starts.size * panels                # panels if the groups are kept
+        alone = self.s.size * (2 * _Z_END / _STEP + 2)  # one group per threshold
+        if panels > _MAX_PANELS and (shared > alone or shared * _NODES > _MOST_NODES):
             first[:] = True                        # every threshold its own group
             starts = ends = np.arange(self.s.size)
         self.group = np.cumsum(first) - 1          # group of each unique threshold
@@ -315,28 +340,70 @@ class _Nodes:
         self.surv = np.zeros(self.x.shape)
         used = self.weight > 0
         self.surv[used] = _survival(part, self.x[used])
+        self.window = self._windows(low, high - low)
         self.kernel: np.ndarray | None = None
         self.norm: np.ndarray | None = None
 
+    def _windows(self, low: np.ndarray, span: np.ndarray
+                 ) -> tuple[np.ndarray, np.ndarray] | None:
+        """Per threshold, the run of its group's nodes within ``c +- 8.5 se`` (one panel
+        more either side), when the longest such run is well short of the group's row (a
+        group whose thresholds spread over many standard errors: a t analysis): flat
+        indices ``(thresholds, run)`` into the node arrays and which of them are in the
+        run. Nodes beyond the run carry a normal density below 2e-16 of its peak. None
+        when every threshold needs (nearly) the whole row."""
+        rows, width = self.x.shape
+        if rows == self.c.size or width <= 4 * _NODES:
+            return None
+        # one global sorted key: row g holds g + 0.999 x (its position in the row's span),
+        # its padding g + 0.9995; a threshold's window ends are read on the same key
+        frac = np.clip((self.x - low[:, None]) / span[:, None], 0.0, 1.0)
+        keys = (np.arange(rows)[:, None] + np.where(self.weight > 0, 0.999 * frac, 0.9995)
+                ).ravel()
+        g = self.group
+        ends = [g + 0.999 * np.clip((self.c + sign * _Z_END * self.s - low[g]) / span[g],
+                                    0.0, 1.0) for sign in (-1.0, 1.0)]
+        first = np.maximum(np.searchsorted(keys, ends[0], side="left") - _NODES, g * width)
+        last = np.minimum(np.searchsorted(keys, ends[1], side="right") + _NODES,
+                          (g + 1) * width)
+        run = int((last - first).max())
+        if run > 0.6 * width:
+            return None
+        index = first[:, None] + np.arange(run)[None, :]
+        inside = index < last[:, None]
+        return np.minimum(index, last[:, None] - 1), inside
+
+    def _take(self, values: np.ndarray, block: slice) -> np.ndarray:
+        """``values`` (one per node) at the nodes each threshold of ``block`` uses."""
+        if self.window is None:
+            return values[self.group[block]]
+        return values.ravel()[self.window[0][block]]
+
     def _normal_kernel(self, block: slice) -> np.ndarray:
-        """``exp(-z^2 / 2)`` at every node of each threshold's group, ``z = (x - c) / se``."""
-        z = (self.x[self.group[block]] - self.c[block, None]) / self.s[block, None]
-        return np.exp(-0.5 * z * z)
+        """``exp(-z^2 / 2)`` at the nodes each threshold uses, ``z = (x - c) / se`` (0 at
+        the padding of a window)."""
+        z = (self._take(self.x, block) - self.c[block, None]) / self.s[block, None]
+        kernel = np.exp(-0.5 * z * z)
+        if self.window is not None:
+            kernel *= self.window[1][block]
+        return kernel
 
     def _sums(self, mass: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """``sum(mass * kernel)`` per threshold, and the rule's total normal mass."""
-        size = self.c.size * self.x.shape[1]
+        width = self.x.shape[1] if self.window is None else self.window[0].shape[1]
+        size = self.c.size * width
+        every = slice(None)
         if self.kernel is None and size <= _BLOCK:
-            self.kernel = self._normal_kernel(slice(None))
+            self.kernel = self._normal_kernel(every)
         if self.kernel is not None:
             if self.norm is None:
-                self.norm = np.einsum("ij,ij->i", self.weight[self.group], self.kernel)
-            return np.einsum("ij,ij->i", mass[self.group], self.kernel), self.norm
+                self.norm = np.einsum("ij,ij->i", self._take(self.weight, every), self.kernel)
+            return np.einsum("ij,ij->i", self._take(mass, every), self.kernel), self.norm
         out, norm = np.empty(self.c.size), np.empty(self.c.size)
-        for block in _blocks(self.c.size, self.x.shape[1]):
+        for block in _blocks(self.c.size, width):
             kernel = self._normal_kernel(block)
-            out[block] = np.einsum("ij,ij->i", mass[self.group[block]], kernel)
-            norm[block] = np.einsum("ij,ij->i", self.weight[self.group[block]], kernel)
+            out[block] = np.einsum("ij,ij->i", self._take(mass, block), kernel)
+            norm[block] = np.einsum("ij,ij->i", self._take(self.weight, block), kernel)
         self.norm = norm
         return out, norm
 
@@ -426,6 +493,18 @@ def _continuous(part: Prior, c, s, cut):
     with np.errstate(over="ignore", invalid="ignore"):
         ok = np.isfinite(cf - _Z_END * sf) & np.isfinite(cf + _Z_END * sf)
     out = np.full(cf.size, np.nan)
+    edges = _prior_edges(part)
+    if ok.any() and edges.size:
+        # a window wholly above the prior's last edge (its 1 - 1e-15 quantile or upper
+        # support end) gives at most 1e-15; wholly below its first edge, at least 1 - 1e-15
+        # (without a cut above that edge): no nodes for those
+        with np.errstate(over="ignore", invalid="ignore"):
+            above = ok & (cf - _Z_END * sf > edges[-1])
+            below = ok & (cf + _Z_END * sf < edges[0]) if cut is None or cut < edges[0] \
+                else np.zeros(cf.size, dtype=bool)
+        out[above] = 0.0
+        out[below] = 1.0 if cut is None else float(_survival(part, np.array([float(cut)]))[0])
+        ok &= ~(above | below)
     if ok.any():
         if not ok.all():
             cf, sf = cf[ok], sf[ok]

@@ -180,7 +180,7 @@ class _ContinuousCalculator(SuccessCalculator):
         if kinds <= {"Normal", "PointMass"}:
             base = "non-central t distribution (closed form)" if t_test else "closed form"
         else:
-            base = "adaptive quadrature over the prior"
+            base = "fixed quadrature over the prior (panel rule on the prior's survival function)"
         if t_test:
             base += "; quadrature over the sample SD where needed (t test)"
         if self.quadrature:
