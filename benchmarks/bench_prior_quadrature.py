@@ -18,6 +18,10 @@ Paths and targets (from the hardening issue):
    probabilities per size.
 4. The fixed rule alone over the thresholds of a t analysis (32 sample-SD nodes x 100
    sizes): under 10 ms, against the same adaptive peer.
+5. ``evaluate`` with a t analysis and the priors of row 3: under 10 ms (warm and cold: cold
+   clears the prior rule's node cache); the peer is the package's former adaptive rule for
+   this path (``quad_vec`` of the non-central t power over the prior's probability scale,
+   success and two cuts).
 """
 
 from __future__ import annotations
@@ -98,6 +102,30 @@ def former_adaptive(part, c, s, cut):
     return value
 
 
+def former_adaptive_t(part, se, df, crit, cuts):
+    """The package's former rule for a t analysis: quad_vec of the non-central t power over
+    u = F(delta), with breakpoints where the power curve rises and at the cuts."""
+    from assurance.compute.normal_outcome import nct_sf
+
+    u_cuts = [float(part.cdf(cut)) for cut in cuts]
+    ratios = np.array([0.0, 0.25, 0.5, 0.75, 1.0, 1.5, 2.0, 4.0])
+    rise = (crit * se)[None, :] * ratios[:, None]
+    centres = np.unique(np.concatenate([rise.ravel(), (rise - 4 * se).ravel(),
+                                        (rise + 4 * se).ravel()]))
+    if centres.size > 150:
+        centres = np.quantile(centres, np.linspace(0.0, 1.0, 150))
+    u_points = np.unique(np.concatenate([np.asarray(part.cdf(centres), dtype=float), u_cuts]))
+    points = [float(v) for v in u_points if 0.0 < v < 1.0]
+
+    def integrand(u):
+        power = nct_sf(crit, df, part.ppf(min(max(u, 1e-300), 1 - 1e-16)) / se)
+        return np.concatenate([power] + [power * (u > uc) for uc in u_cuts])
+
+    value, _ = integrate.quad_vec(integrand, 0.0, 1.0, epsabs=1e-11, epsrel=1e-10,
+                                  limit=4000, norm="max", points=points or None)
+    return value
+
+
 def _row(label: str, ours: float, peer: float, peer_label: str, target: str, met: bool,
          unit: str = "ms") -> None:
     scale = 1e3 if unit == "ms" else 1e6
@@ -173,6 +201,33 @@ def main() -> None:
                                 for cut in (None, 0.0, RELEVANT)], repeat=1, number=1)
     _row(f"4. fixed rule, {c.shape[0]} x {c.shape[1]} thresholds (t nodes)", ours, theirs,
          "former adaptive", "< 10 ms", ours < 0.010)
+
+    # 5. t analysis with the priors of row 3
+    from assurance.compute import prior_predictive
+
+    crit_t = stats.t.isf(ALPHA, df)
+    for name, prior in priors.items():
+        design = asr.TrialDesign(asr.ContinuousEndpoint(SIGMA, analysis="t"), prior,
+                                 relevant_effect=RELEVANT)
+        warm = best_warm(lambda d=design: asr.evaluate(d, N_TOTAL), repeat=5, number=5)
+
+        def cold(d=design):
+            prior_predictive._NODE_CACHE.clear()
+            asr.evaluate(d, N_TOTAL)
+
+        cold_time = best_warm(cold, repeat=5, number=3)
+        parts = [part for _, part in design.benefit_prior.parts()
+                 if not isinstance(part, asr.PointMass)]
+
+        def peer_t(parts=parts):
+            for part in parts:
+                former_adaptive_t(part, se, df, crit_t, (0.0, RELEVANT))
+
+        theirs = best_warm(peer_t, repeat=1, number=1)
+        _row(f"5. evaluate, t, {name}, warm", warm, theirs, "former adaptive", "< 10 ms",
+             warm < 0.010)
+        _row(f"5. evaluate, t, {name}, cold", cold_time, theirs, "former adaptive",
+             "< 10 ms", cold_time < 0.010)
 
 
 if __name__ == "__main__":
