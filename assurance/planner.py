@@ -353,15 +353,13 @@ class Plan:
         >>> p = asr.plan(design, targets={"assurance": 0.6}, sizes=[100, 200])
         >>> with tempfile.TemporaryDirectory() as folder:
         ...     memo = p.write_memo(pathlib.Path(folder) / "memo.html")
-        ...     print(memo.name, "assurance 0.6" in memo.read_text(encoding="utf-8"))
+        ...     print(memo.name, "Probability of success" in memo.read_text(encoding="utf-8"))
         memo.html True
         """
-        from .report import write_memo
+        from .report import write_plan_memo
 
         _check_overwrite(overwrite, "Plan.write_memo")
-        return write_memo(self.design, self.results, list(self.sample_sizes), path,
-                          overwrite=overwrite, prior_origin=self.prior_origin,
-                          precision=self.precision)
+        return write_plan_memo(self, path, overwrite=overwrite)
 
     # --------------------------------------------------------------------------------------
     # showing
@@ -375,8 +373,9 @@ class Plan:
             ``"prior"`` and ``"power_and_assurance"``; ``"prior_fit"`` when the design prior
             was fitted to elicited judgements; ``"interval_width"`` when precision was
             planned; ``"zones"`` and ``"zones_by_effect"`` (at the planned size) with a go /
-            consider / stop rule; ``"sensitivity_map"`` with the prior sensitivity. They are drawn off-screen (no window opens); in a notebook, show one by
-            leaving it as the last expression of a cell.
+            consider / stop rule; ``"sensitivity_map"`` with the prior sensitivity. They
+            are drawn off-screen (no window opens); in a notebook, show one by leaving it as
+            the last expression of a cell.
 
         Examples
         --------

@@ -302,12 +302,12 @@ def choose_planned(planned: int | None, answers: Sequence[SampleSizeAnswer],
     --------
     >>> import numpy as np
     >>> choose_planned(None, [], np.array([100, 200]))
-    (200, 'the largest size evaluated (no target was reached)')
+    (200, 'the largest size evaluated (no target was set)')
     >>> choose_planned(150, [], np.array([100, 200]))
-    (150, 'the planned size given')
+    (150, 'as set by the planner')
     """
     if planned is not None:
-        return int(planned), "the planned size given"
+        return int(planned), "as set by the planner"
     for quantity in ("assurance", "conditional_assurance", "power"):
         for answer in answers:
             if answer.quantity == quantity and answer.reached:

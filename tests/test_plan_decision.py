@@ -68,7 +68,7 @@ def test_planned_size_defaults_to_the_assurance_target_size():
 def test_a_given_planned_size_is_evaluated_and_matches_the_closed_form():
     p = asr.plan(_design(), targets={"assurance": 0.6}, sizes=[100, 300], planned=250,
                  sensitivity=False)
-    assert p.planned_n == 250 and p.planned_reason == "the planned size given"
+    assert p.planned_n == 250 and p.planned_reason == "as set by the planner"
     got = float(p.results.assurance.sel(n=250))
     assert got == pytest.approx(_closed_form_assurance(250, 10.0, 4.0, 2.0), abs=1e-12)
 
@@ -188,7 +188,7 @@ def test_provenance_names_the_call_and_the_time():
     assert p.made_by == "assurance.plan(...)"
     created = dt.datetime.fromisoformat(p.created)
     assert created.tzinfo is not None
-    assert abs((dt.datetime.now(dt.timezone.utc) - created).total_seconds()) < 600
+    assert abs((dt.datetime.now(dt.UTC) - created).total_seconds()) < 600
 
 
 def test_command_line_records_itself_and_writes_the_tables(tmp_path):

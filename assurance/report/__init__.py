@@ -28,7 +28,14 @@ from .figures import (
     plot_zones,
     save_figure,
 )
-from .memo import DEFAULT_CAUTIONS, memo_html, memo_text_summary, write_memo
+from .memo import (
+    DEFAULT_CAUTIONS,
+    memo_html,
+    memo_text_summary,
+    plan_memo_html,
+    write_memo,
+    write_plan_memo,
+)
 from .notebook import overview_html
 
 __all__ = [
@@ -45,6 +52,8 @@ __all__ = [
     "passable_probability",
     "write_memo",
     "memo_html",
+    "plan_memo_html",
+    "write_plan_memo",
     "memo_text_summary",
     "overview_html",
     "DEFAULT_CAUTIONS",

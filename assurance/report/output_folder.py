@@ -603,8 +603,8 @@ def write_outputs(out: str | os.PathLike[str], plan: Plan, *, overwrite: bool = 
     >>> p = asr.plan(design, targets={"assurance": 0.6}, sizes=[100, 200])
     >>> with tempfile.TemporaryDirectory() as folder:
     ...     written = write_outputs(pathlib.Path(folder) / "plan", p)
-    ...     print(*sorted(f.name for f in written.iterdir()))
-    .assurance-output design.toml figures memo.html results.csv results.nc sample_sizes.csv
+    ...     print(*sorted(f.name for f in written.iterdir())[4:])
+    results.csv results.nc sample_sizes.csv sensitivity.csv sensitivity_map.csv
     """
     formats = _check_formats(formats, "write_outputs")
     keep = [plan.source.path] if plan.source is not None else []
@@ -625,7 +625,7 @@ def write_outputs(out: str | os.PathLike[str], plan: Plan, *, overwrite: bool = 
 
 def _write_files(tmp: Path, plan: Plan, formats: Sequence[str]) -> None:
     from .figures import figure_bytes
-    from .memo import write_memo
+    from .memo import write_plan_memo
 
     ds, answers = plan.results, plan.sample_sizes
     write_results_csv(ds, tmp / "results.csv")
@@ -655,9 +655,7 @@ def _write_files(tmp: Path, plan: Plan, formats: Sequence[str]) -> None:
         for fmt in formats:
             data = rendered[name] if fmt == "png" else figure_bytes(fig, fmt)
             (figures / f"{name}.{fmt}").write_bytes(data)
-    write_memo(plan.design, ds, answers, tmp / "memo.html", rendered=rendered,
-               prior_origin=plan.prior_origin, precision=plan.precision,
-               design_record=record)
+    write_plan_memo(plan, tmp / "memo.html", rendered=rendered, design_record=record)
 
 
 def write_results_csv(ds: Any, path: str | Path) -> None:
