@@ -206,9 +206,15 @@ def evaluate(
         {key: np.concatenate([p[key] for p in parts]) for key in parts[0]}
 
     effects = np.array(design.curve_effects())
-    curve = np.vstack([calc.power(e, n_t, n_c) for e in effects])
+    many = getattr(calc.engine, "powers", None)
+    if many is not None:  # every effect and the null value in one call
+        at = [float(calc.endpoint.to_benefit(e)) for e in effects]
+        rows = many(np.array([*at, float(calc.rule.null_value)]), n_t, n_c)
+        curve, type_one = rows[:-1], rows[-1]
+    else:
+        curve = np.vstack([calc.power(e, n_t, n_c) for e in effects])
+        type_one = calc.engine.power(float(calc.rule.null_value), n_t, n_c)
     power = curve[int(np.flatnonzero(effects == design.assumed_effect)[0])]
-    type_one = calc.engine.power(float(calc.rule.null_value), n_t, n_c)
 
     data_vars: dict[str, tuple[tuple[str, ...], Any]] = {
         "power": (("n",), power), "power_curve": (("effect", "n"), curve),

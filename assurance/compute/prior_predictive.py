@@ -27,7 +27,7 @@ from scipy import special
 
 from ..priors.families import Normal, PointMass, Prior
 
-__all__ = ["prob_estimate_above", "upper_orthant_normal", "prior_edges"]
+__all__ = ["prob_estimate_above", "upper_orthant_normal", "prior_edges", "prob_above_at_points"]
 
 def upper_orthant_normal(h: np.ndarray, k: np.ndarray, rho: np.ndarray) -> np.ndarray:
     """P(Z1 > h, Z2 > k) for standard normals with correlation ``rho`` in (-1, 1).
@@ -149,6 +149,33 @@ def prob_estimate_above(
     if bad is not None:
         total[bad] = np.nan  # not computable: the caller reports it
     return np.minimum(np.maximum(total, 0.0), 1.0)  # NaN stays NaN
+
+
+def prob_above_at_points(values: np.ndarray, threshold: np.ndarray, se: np.ndarray
+                         ) -> np.ndarray:
+    """``P(d > threshold)`` for ``d ~ N(delta, se^2)`` at several true effects at once.
+
+    The same numbers as :func:`prob_estimate_above` with a point mass at each value (a
+    power curve), in one call: rows follow ``values``, columns the thresholds; NaN in a
+    column whose threshold or standard error is not a finite number (standard error > 0).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> p = prob_above_at_points(np.array([0.0, 1.0]), np.array([0.5]), np.array([0.5]))
+    >>> np.round(p[:, 0], 6).tolist()  # Phi(-1), Phi(1)
+    [0.158655, 0.841345]
+    """
+    values = np.asarray(values, dtype=float)[:, None]
+    c, s = (np.asarray(v, dtype=float).ravel()[None, :] for v in (threshold, se))
+    bad = None
+    if not (_all_finite(c) and 0.0 < _smallest(s) and _largest(s) < math.inf):
+        bad = ~(np.isfinite(c) & np.isfinite(s) & (s > 0))
+        c, s = np.where(bad, 0.0, c), np.where(bad, 1.0, s)
+    out = special.ndtr(_scaled_gap(values, c, s))
+    if bad is not None:
+        out[:, bad[0]] = np.nan
+    return np.minimum(np.maximum(out, 0.0), 1.0)
 
 
 #: Below this, ``sqrt(sd^2 + se^2)`` is formed as ``hypot(sd, se)`` (the squares underflow).
