@@ -30,7 +30,12 @@ from scipy import special
 
 from ..priors.families import Normal, PointMass, Prior, ScaledInvChiSquare
 from ..rules.significance import Significance
-from .prior_predictive import prior_edges, prob_estimate_above, upper_orthant_normal
+from .prior_predictive import (
+    prior_edges,
+    prob_estimate_above,
+    prob_estimate_above_cuts,
+    upper_orthant_normal,
+)
 from .sd_quadrature import hermite_part, ratio_rule, sd_ratio_nodes
 
 __all__ = ["Cut", "SuccessProbabilities", "DrawAverages", "exact_success", "monte_carlo_success",
@@ -177,12 +182,9 @@ def exact_success(
     df = np.asarray(df, dtype=float)
     if analysis == "z":
         c = rule.threshold(se, rule.critical_z())
-
-        def prob(cut: Cut | None) -> np.ndarray:
-            return prob_estimate_above(prior, c, se, effect_above=None if cut is None
-                                       else cut.value, inclusive=bool(cut and cut.inclusive))
-
-        return SuccessProbabilities(success=prob(None), joint=[prob(cut) for cut in cuts])
+        probs = prob_estimate_above_cuts(prior, c, se, [(cut.value, cut.inclusive)
+                                                        for cut in cuts])
+        return SuccessProbabilities(success=probs[0], joint=probs[1:])
     crit = rule.critical_t(df) if critical is None else critical
     if isinstance(rule, Significance):
         return _t_test(prior, rule, se, df, np.broadcast_to(np.asarray(crit, float), se.shape),

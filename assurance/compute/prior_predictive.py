@@ -27,7 +27,8 @@ from scipy import special
 
 from ..priors.families import Normal, PointMass, Prior
 
-__all__ = ["prob_estimate_above", "upper_orthant_normal", "prior_edges", "prob_above_at_points"]
+__all__ = ["prob_estimate_above", "prob_estimate_above_cuts", "upper_orthant_normal", "prior_edges",
+           "prob_above_at_points"]
 
 def upper_orthant_normal(h: np.ndarray, k: np.ndarray, rho: np.ndarray) -> np.ndarray:
     """P(Z1 > h, Z2 > k) for standard normals with correlation ``rho`` in (-1, 1).
@@ -178,6 +179,32 @@ def prob_above_at_points(values: np.ndarray, threshold: np.ndarray, se: np.ndarr
     return np.minimum(np.maximum(out, 0.0), 1.0)
 
 
+def prob_estimate_above_cuts(prior: Prior, threshold: np.ndarray, se: np.ndarray,
+                             cuts: list[tuple[float, bool]]) -> list[np.ndarray]:
+    """``[P(d > c), P(d > c and delta > a_1), ...]``: :func:`prob_estimate_above` without a
+    cut and then with each ``(a, inclusive)``, the same numbers; a normal prior's
+    predictive scale and standardised thresholds are formed once for all of them.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from assurance.priors import Normal
+    >>> p = prob_estimate_above_cuts(Normal(1.0, 1.0), np.array([0.5]), np.array([1.0]),
+    ...                              [(0.0, False)])
+    >>> round(float(p[0][0]), 6), bool(p[1][0] < p[0][0])
+    (0.638163, True)
+    """
+    c, s = np.asarray(threshold, dtype=float), np.asarray(se, dtype=float)
+    if isinstance(prior, Normal) and c.shape == s.shape and _all_finite(c) \
+            and 0.0 < _smallest(s) and _largest(s) < math.inf:
+        m, sd = prior.mu, prior.sigma
+        tau, h = _normal_scale(m, sd, c, s)
+        return [np.minimum(np.maximum(_normal_from(m, sd, c, s, cut, tau, h), 0.0), 1.0)
+                for cut in [None, *(a for a, _ in cuts)]]
+    return [prob_estimate_above(prior, c, s, effect_above=None if cut is None else cut[0],
+                                inclusive=bool(cut and cut[1])) for cut in [None, *cuts]]
+
+
 #: Below this, ``sqrt(sd^2 + se^2)`` is formed as ``hypot(sd, se)`` (the squares underflow).
 _TINY_SCALE = 1e-150
 
@@ -212,6 +239,11 @@ def _point_mass(value, c, s, cut, inclusive):
 
 
 def _normal(m, sd, c, s, cut):
+    return _normal_from(m, sd, c, s, cut, *_normal_scale(m, sd, c, s))
+
+
+def _normal_scale(m, sd, c, s):
+    """``tau = sqrt(sd^2 + se^2)`` and ``h = (c - m) / tau``, safe at extreme scales."""
     with np.errstate(over="ignore", under="ignore", invalid="ignore", divide="ignore"):
         tau = np.sqrt(sd * sd + s * s)
         h = (c - m) / tau
@@ -220,6 +252,10 @@ def _normal(m, sd, c, s, cut):
         fix = ~(np.isfinite(tau) & (tau > _TINY_SCALE))
         tau = np.where(fix, np.hypot(sd, s), tau)
         h = _scaled_gap(c, m, tau)
+    return tau, h
+
+
+def _normal_from(m, sd, c, s, cut, tau, h):
     if cut is None:
         return special.ndtr(-h)
     k = (cut - m) / sd
