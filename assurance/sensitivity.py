@@ -411,8 +411,8 @@ def prior_variations(design: TrialDesign, settings: SensitivitySettings | None =
             varied = (_beta_with(shape.beta, m + d, s) if shape.beta is not None
                       else shape.rebuilt(d, 1.0))
             if varied is not None:
-                text = (f"centre moved {word} by {_sds(settings.centre_shift)} "
-                        f"({_from_to(design, m, m + d)})")
+                text = (f"centre moved {word} by {_sds(settings.centre_shift)}, "
+                        f"{_from_to(design, m, m + d)}")
                 if shape.beta is not None:
                     text += f"; {what} mean moved through the treatment rate's beta prior"
                 elif shape.fixed:

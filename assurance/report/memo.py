@@ -662,7 +662,7 @@ def _sensitivity(parts: _Parts, figures: bool,
     rows = []
     for i, (name, text) in enumerate(zip(names, descriptions, strict=True)):
         if name == "elicited":
-            text = "as elicited: " + wd.prior_text(parts.design.design_prior, ep)
+            text = "as given: " + wd.prior_text(parts.design.design_prior, ep)
         cells = [wd._no_code(text), wd.percent(float(ds["sensitivity_assurance"].values[i]), 1),
                  wd.percent(float(ds["sensitivity_ceiling"].values[i]), 1)]
         for k in range(len(keys)):
