@@ -27,6 +27,7 @@ LAYERS: list[tuple[str, ...]] = [
     ("assurance.priors", "assurance.rules", "assurance.endpoints",        # the domain
      "assurance.precision", "assurance.design"),
     ("assurance.planning", "assurance.joint", "assurance.simulation"),    # evaluate, solve,
+    ("assurance.general",),                                               # any PyMC model
     ("assurance.sensitivity",),                                           # vary the prior
     ("assurance.workflow",),                                              # the plan's steps
     ("assurance.design_file",),                                           # the file format
