@@ -14,8 +14,9 @@ Measures, in one run on this machine:
    over 50 sizes (target under 2 s);
 7. time-to-event closed form over 100 sizes (target under 10 ms), and the patient-level
    log-rank simulation in trials per second at several n;
-8. precision: exact binomial ALC/ACC/WOC over every n from 10 to 1000 (target under 1 s),
-   normal-gamma over a 50-point grid (target under 1 s).
+8. precision: exact binomial ALC/ACC/WOC over every n from 10 to 1000 (target under 0.3 s,
+   highest density and equal-tailed: the hardening issue), normal-gamma over a 50-point
+   grid (target under 1 s).
 
 Targets (from the issues that introduced them): (1) under 2 ms, at least 5 times faster than
 (2); (3) under 0.3 s; (4) under 1.5 s for a closed-form plan (the hardening issue; it was
