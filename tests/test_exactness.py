@@ -57,7 +57,12 @@ def quad_reference(dist, c, se, cut=None):
         return 0.0
     steps = dist.cdf(c + np.arange(-8.0, 8.5, 0.5) * se)
     levels = (1e-9, 1e-6, 1e-3, 0.5, 1 - 1e-3, 1 - 1e-6)
-    inner = sorted({float(u) for u in (*steps, *levels) if u_low < u < 1.0})
+    # breakpoints within 1e-12 of either end are dropped: a step there (a standard error
+    # much wider than the prior puts most steps at u = 1 - 1e-16 or so) would make panels a
+    # few doubles wide, where ppf is rounding noise and quad reports bad behaviour; the
+    # integrand is in [0, 1], so such a panel holds under 1e-12, far below RULE_TOL
+    gap = 1e-12
+    inner = sorted({float(u) for u in (*steps, *levels) if u_low + gap < u < 1.0 - gap})
     edges = [u_low, *inner, 1.0]
 
     def f(u):
