@@ -386,33 +386,9 @@ class Plan:
         >>> sorted(figs)
         ['power_and_assurance', 'prior', 'sensitivity_map']
         """
-        from .report import plot_interval_width, plot_power_and_assurance, plot_prior
+        from .report.plan_figures import figure_makers
 
-        figures = {
-            "prior": plot_prior(self.design).figure,
-            "power_and_assurance": plot_power_and_assurance(
-                self.results, answers=list(self.sample_sizes)).figure,
-        }
-        if type(self.prior_origin).__name__ == "PriorFit":
-            from .report.figures import plot_fit
-
-            figures["prior_fit"] = plot_fit(self.prior_origin).figure
-        if "width_mean" in self.results:
-            figures["interval_width"] = plot_interval_width(self.results,
-                                                            self.precision).figure
-        if "prob_go" in self.results:
-            from .report import plot_zone_characteristic, plot_zones
-
-            figures["zones"] = plot_zones(self.results, planned_n=self.planned_n).figure
-            figures["zones_by_effect"] = plot_zone_characteristic(
-                self.results, self.planned_n).figure
-        if "sensitivity_map" in self.results and self.results["sensitivity_map"].size:
-            from .report import plot_sensitivity_map
-
-            figures["sensitivity_map"] = plot_sensitivity_map(
-                self.results, self.design,
-                target=self.settings.targets.get("assurance")).figure
-        return figures
+        return {name: make() for name, make in figure_makers(self).items()}
 
     def design_record(self) -> str | None:
         """The normalised design file (``design.toml`` text), or None if it cannot be written.

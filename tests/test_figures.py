@@ -226,3 +226,19 @@ def test_zone_figures_on_a_computed_zone_dataset():
 def test_new_figures_are_public():
     for name in ("plot_zones", "plot_zone_characteristic", "plot_sensitivity_map"):
         assert name in F.__all__
+
+
+def test_figures_drawn_in_worker_processes_are_the_same_bytes():
+    # render_figures forks workers where it can; the images must not depend on it
+    from assurance.report.plan_figures import figure_makers, render_figures
+
+    design = asr.TrialDesign(asr.ContinuousEndpoint(sigma=10.0, analysis="z", unit="mmHg"),
+                             asr.Normal(4.0, 2.0), title="Invented: forked figures")
+    p = asr.plan(design, targets={"assurance": 0.6}, sizes=[50, 100, 200],
+                 sensitivity=asr.SensitivitySettings(map_centres=5, map_spreads=4))
+    serial = render_figures(p, ("png", "svg"), workers=1)
+    forked = render_figures(p, ("png", "svg"), workers=2)
+    assert list(serial) == list(figure_makers(p)) == list(forked)
+    for name in serial:
+        assert serial[name]["png"] == forked[name]["png"], name
+        assert serial[name]["svg"] == forked[name]["svg"], name

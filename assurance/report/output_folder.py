@@ -624,8 +624,8 @@ def write_outputs(out: str | os.PathLike[str], plan: Plan, *, overwrite: bool = 
 
 
 def _write_files(tmp: Path, plan: Plan, formats: Sequence[str]) -> None:
-    from .figures import figure_bytes
     from .memo import write_plan_memo
+    from .plan_figures import render_figures
 
     ds, answers = plan.results, plan.sample_sizes
     write_results_csv(ds, tmp / "results.csv")
@@ -649,12 +649,12 @@ def _write_files(tmp: Path, plan: Plan, formats: Sequence[str]) -> None:
         (tmp / "design_as_given.toml").write_bytes(plan.source.content)
     figures = tmp / "figures"
     figures.mkdir()
+    images = render_figures(plan, tuple(dict.fromkeys(("png", *formats))))
     rendered = {}
-    for name, fig in plan.figures().items():
-        rendered[name] = figure_bytes(fig, "png")  # the memo embeds the PNG in any case
+    for name, by_format in images.items():
+        rendered[name] = by_format["png"]  # the memo embeds the PNG in any case
         for fmt in formats:
-            data = rendered[name] if fmt == "png" else figure_bytes(fig, fmt)
-            (figures / f"{name}.{fmt}").write_bytes(data)
+            (figures / f"{name}.{fmt}").write_bytes(by_format[fmt])
     write_plan_memo(plan, tmp / "memo.html", rendered=rendered, design_record=record)
 
 

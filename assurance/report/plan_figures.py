@@ -1,0 +1,150 @@
+"""The figures of a plan: which ones it has, and drawing them all at once on several cores.
+
+:meth:`Plan.figures <assurance.Plan.figures>` and the output folder use the same list
+(:func:`figure_makers`), so the folder's ``figures/``, the memo and a notebook show the same
+figures. Drawing is the slowest part of writing a plan's folder (each figure is laid out,
+its labels placed and rendered), and the figures are independent, so :func:`render_figures`
+draws them in forked worker processes where the platform forks (each worker reads the plan
+it inherited; only the finished image bytes come back), and one after another elsewhere.
+
+Examples
+--------
+>>> import assurance as asr
+>>> design = asr.TrialDesign(asr.ContinuousEndpoint(sigma=10.0, analysis="z"),
+...                          asr.Normal(4.0, 2.0))
+>>> p = asr.plan(design, sizes=[100, 200], sensitivity=False)
+>>> list(figure_makers(p))
+['prior', 'power_and_assurance']
+>>> images = render_figures(p, ("png",))
+>>> sorted(images), images["prior"]["png"][:4]
+(['power_and_assurance', 'prior'], b'\\x89PNG')
+"""
+
+from __future__ import annotations
+
+import multiprocessing
+import os
+from collections.abc import Callable, Sequence
+from typing import TYPE_CHECKING, Any
+
+if TYPE_CHECKING:  # pragma: no cover
+    from matplotlib.figure import Figure
+
+__all__ = ["figure_makers", "render_figures"]
+
+
+def figure_makers(plan: Any) -> dict[str, Callable[[], Figure]]:
+    """Name -> a function drawing that figure of ``plan``, in the memo's order.
+
+    ``"prior"`` and ``"power_and_assurance"`` always; ``"prior_fit"`` for a prior fitted to
+    elicited judgements; ``"interval_width"`` with precision; ``"zones"`` and
+    ``"zones_by_effect"`` (at the planned size) with a go / consider / stop rule;
+    ``"sensitivity_map"`` with the prior sensitivity.
+    """
+    from . import figures as f
+
+    ds = plan.results
+    makers: dict[str, Callable[[], Figure]] = {
+        "prior": lambda: f.plot_prior(plan.design).figure,
+        "power_and_assurance": lambda: f.plot_power_and_assurance(
+            ds, answers=list(plan.sample_sizes)).figure,
+    }
+    if type(plan.prior_origin).__name__ == "PriorFit":
+        makers["prior_fit"] = lambda: f.plot_fit(plan.prior_origin).figure
+    if "width_mean" in ds:
+        makers["interval_width"] = lambda: f.plot_interval_width(ds, plan.precision).figure
+    if "prob_go" in ds:
+        makers["zones"] = lambda: f.plot_zones(ds, planned_n=plan.planned_n).figure
+        makers["zones_by_effect"] = lambda: f.plot_zone_characteristic(
+            ds, plan.planned_n).figure
+    if "sensitivity_map" in ds and ds["sensitivity_map"].size:
+        makers["sensitivity_map"] = lambda: f.plot_sensitivity_map(
+            ds, plan.design, target=plan.settings.targets.get("assurance")).figure
+    return makers
+
+
+#: the plan a forked worker draws from (set in the parent just before forking)
+_PLAN: Any = None
+
+
+def _draw(job: tuple[str, tuple[str, ...]]) -> dict[str, bytes]:
+    """Draw one figure of the inherited plan; return its bytes per format."""
+    from .figures import figure_bytes
+
+    name, formats = job
+    fig = figure_makers(_PLAN)[name]()  # off-screen (not pyplot's): freed with the last use
+    return {fmt: figure_bytes(fig, fmt) for fmt in formats}
+
+
+def _quiet_worker() -> None:
+    """A worker leaves signals to the parent: it ends when the parent ends the pool."""
+    import signal
+
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
+    signal.signal(signal.SIGTERM, signal.SIG_DFL)
+    if hasattr(signal, "SIGHUP"):
+        signal.signal(signal.SIGHUP, signal.SIG_DFL)
+
+
+def _warm_up() -> None:
+    """Load fonts and the text machinery once, so forked workers do not each load them."""
+    from .figures import _axes, figure_bytes
+
+    ax = _axes(None, (1.0, 1.0))
+    ax.set_title("warm up")
+    ax.plot([0, 1], [0, 1], marker="o")
+    figure_bytes(ax.figure, "png", dpi=10)
+
+
+def _workers(count: int) -> int:
+    if "fork" not in multiprocessing.get_all_start_methods():
+        return 1
+    try:
+        cores = len(os.sched_getaffinity(0))
+    except AttributeError:  # pragma: no cover - platforms without affinity
+        cores = os.cpu_count() or 1
+    return max(1, min(cores, count, 4))
+
+
+def render_figures(plan: Any, formats: Sequence[str], *,
+                   workers: int | None = None) -> dict[str, dict[str, bytes]]:
+    """Every figure of ``plan`` as image bytes: name -> format -> bytes.
+
+    Parameters
+    ----------
+    plan
+        A :class:`~assurance.Plan`.
+    formats
+        ``"png"``, ``"svg"`` or both.
+    workers
+        Processes to draw in; None: one per available core, at most one per figure and at
+        most 4, and 1 where the platform cannot fork. The bytes do not depend on it.
+
+    Returns
+    -------
+    dict
+        In the order of :func:`figure_makers`.
+    """
+    global _PLAN
+
+    from . import figures  # noqa: F401 - imported once here, inherited by the workers
+
+    names = list(figure_makers(plan))
+    jobs = [(name, tuple(formats)) for name in names]
+    count = _workers(len(jobs)) if workers is None else max(1, min(workers, len(jobs)))
+    _PLAN = plan
+    try:
+        if count == 1:
+            drawn = [_draw(job) for job in jobs]
+        else:
+            _warm_up()
+            pool = multiprocessing.get_context("fork").Pool(count, initializer=_quiet_worker)
+            try:
+                drawn = pool.map(_draw, jobs, chunksize=1)
+                pool.close()
+            finally:
+                pool.terminate()
+                pool.join()
+    finally:
+        _PLAN = None
+    return dict(zip(names, drawn, strict=True))
