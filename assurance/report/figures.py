@@ -194,6 +194,17 @@ def _assumed_words(info: dict[str, Any]) -> str:
     return f"assumed {name} ({assumed:g} {unit})"
 
 
+def _legend_value(design: TrialDesign, value: float) -> str:
+    """An effect as the prior figure's axis shows it: percentage points for rates, with the
+    outcome's unit when it has one ("0.15" -> "15 percentage points", "22 metres")."""
+    unit = _effect_scale(design.endpoint)[2]
+    if unit == "percentage points":
+        return f"{100 * value:.4g} percentage points"
+    if unit in ("ratio", "units of the outcome", ""):
+        return f"{value:g}"
+    return f"{value:g} {unit}"
+
+
 def _check_dataset(ds: Any, owner: str, needed: Sequence[str] = ("power", "assurance")) -> None:
     missing = [name for name in needed if not hasattr(ds, "data_vars") or name not in ds]
     if missing or "n" not in getattr(ds, "dims", ()):
@@ -584,11 +595,13 @@ def plot_prior(design: TrialDesign, ax: Axes | None = None) -> Axes:
     # when the two coincide, their dashes interleave so both colours stay visible
     ax.axvline(assumed, color=_BLUE, linewidth=1.6,
                linestyle=(0, (4, 4)) if same else (0, (5, 3)), zorder=3,
-               label=f"assumed effect for classical power ({design.assumed_effect:g})")
+               label="assumed effect for classical power "
+                     f"({_legend_value(design, design.assumed_effect)})")
     if relevant is not None:
         ax.axvline(relevant, color=_GREEN, linewidth=1.6,
                    linestyle=(4, (4, 4)) if same else (0, (6, 2, 1.5, 2)), zorder=3,
-                   label=f"clinically relevant effect ({design.relevant_effect:g})")
+                   label=f"clinically relevant effect "
+                         f"({_legend_value(design, design.relevant_effect)})")
 
     margin = _margin(design)
     if margin is not None:
