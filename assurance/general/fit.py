@@ -1,0 +1,242 @@
+"""One fit per simulated trial: a Laplace (normal) approximation at the posterior mode, or NUTS.
+
+A :class:`CompiledModel` builds the PyMC analysis model once for one pair of arm sizes and
+compiles, on the unconstrained (transformed) parameters joined into one vector, a single
+function returning the log posterior density, its gradient and Hessian, the effect and the
+effect's gradient. Each simulated trial swaps its data into the model's ``pm.Data``
+containers (no recompilation) and finds the posterior mode by damped Newton steps.
+PyMC and pytensor are imported here only, when a model is compiled.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import logging
+import math
+from collections.abc import Iterator, Mapping
+from typing import Any
+
+import numpy as np
+
+from ..errors import AssuranceInputError
+from .model import GeneralModel
+
+__all__ = ["CompiledModel", "LaplaceFit", "hdi_width"]
+
+#: Newton steps before a fit counts as not converged.
+MAX_STEPS = 100
+#: Converged when the Newton decrement g' (-H)^-1 g (the expected rise in log density to the
+#: mode) is below this.
+TOLERANCE = 1e-10
+
+
+class LaplaceFit(tuple):
+    """``(mean, sd, converged)`` of the effect from one Laplace fit."""
+
+    __slots__ = ()
+
+    def __new__(cls, mean: float, sd: float, converged: bool) -> LaplaceFit:
+        return super().__new__(cls, (mean, sd, converged))
+
+
+@contextlib.contextmanager
+def _quiet_pymc() -> Iterator[None]:
+    logger = logging.getLogger("pymc")
+    level = logger.level
+    logger.setLevel(logging.ERROR)
+    try:
+        yield
+    finally:
+        logger.setLevel(level)
+
+
+class CompiledModel:
+    """The analysis model for one pair of arm sizes, compiled once; data swapped per trial.
+
+    Parameters
+    ----------
+    model
+        The :class:`~assurance.general.GeneralModel`.
+    data
+        A first data set (from the model's simulator at these sizes): the model is built on
+        it.
+
+    Notes
+    -----
+    The Laplace approximation (Tierney & Kadane 1986): with ``theta`` the unconstrained
+    parameters, ``theta*`` the mode of ``log p(theta | y)`` (Jacobians of the transforms
+    included) and ``H`` its Hessian there, ``theta | y ~ N(theta*, (-H)^-1)``; the effect
+    ``g(theta)`` is approximately ``N(g(theta*), grad g' (-H)^-1 grad g)`` (the delta method).
+
+    Examples
+    --------
+    >>> from assurance.general.builtin import logistic  # doctest: +SKIP
+    """
+
+    def __init__(self, model: GeneralModel, data: Mapping[str, np.ndarray]) -> None:
+        import pymc as pm
+        import pytensor
+        import pytensor.tensor as pt
+        from pymc.pytensorf import join_nonshared_inputs
+
+        self.model = model
+        with _quiet_pymc():
+            built = model.build(dict(data))
+        if not isinstance(built, pm.Model):
+            raise AssuranceInputError(
+                f"The 'build' function of GeneralModel {model.name!r} must return a pm.Model. "
+                f"Got {type(built).__name__} instead.")
+        self.pm_model = built
+        names = set(built.named_vars)
+        missing = [k for k in data if k not in names]
+        if missing:
+            raise AssuranceInputError(
+                f"The analysis model of {model.name!r} has no pm.Data container named "
+                f"{missing!r}; the simulator returns {sorted(data)!r}.")
+        if model.effect not in names:
+            raise AssuranceInputError(
+                f"The analysis model of {model.name!r} has no variable named "
+                f"{model.effect!r} (the 'effect' parameter of GeneralModel).")
+        from pytensor.compile.sharedvalue import SharedVariable
+
+        not_data = [k for k in data if not isinstance(built[k], SharedVariable)]
+        if not_data:
+            raise AssuranceInputError(
+                f"The simulator of {model.name!r} returns {not_data!r}, which the analysis "
+                "model does not hold as pm.Data containers; name each data array as its "
+                "pm.Data container.")
+        self._shared = {k: built[k] for k in data}
+        effect_var = built[model.effect]
+        point = built.initial_point()
+        value_vars = built.value_vars
+        effect_expr = built.replace_rvs_by_values([effect_var])[0]
+        [logp, effect], flat = join_nonshared_inputs(
+            point, [built.logp(), effect_expr], value_vars)
+        if effect.ndim != 0:
+            raise AssuranceInputError(
+                f"The effect variable {model.effect!r} of {model.name!r} must be a scalar.")
+        grad = pt.grad(logp, flat)
+        hess = pytensor.gradient.jacobian(grad, flat, vectorize=True)
+        effect_grad = pt.grad(effect, flat, disconnected_inputs="ignore")
+        self._full = pytensor.function([flat], [logp, grad, hess, effect, effect_grad],
+                                       on_unused_input="ignore")
+        self._full.trust_input = True
+        self.start = np.concatenate(
+            [np.ravel(point[v.name]) for v in value_vars]).astype(flat.dtype)
+        self._warm: np.ndarray | None = None
+        self._step: Any = None
+
+    # -- data ------------------------------------------------------------------------------
+    def set_data(self, data: Mapping[str, np.ndarray]) -> None:
+        """Swap one trial's data into the model's ``pm.Data`` containers (in place)."""
+        shared = self._shared
+        if data.keys() != shared.keys():
+            raise AssuranceInputError(
+                f"The simulator of {self.model.name!r} returned data named "
+                f"{sorted(data)!r}; the analysis model holds {sorted(shared)!r}.")
+        for name, value in data.items():
+            var = shared[name]
+            array = np.asarray(value, dtype=var.type.dtype)
+            if array.ndim != var.type.ndim:
+                raise AssuranceInputError(
+                    f"The simulator of {self.model.name!r} returned {name!r} with "
+                    f"{array.ndim} dimension(s); its pm.Data container has {var.type.ndim}.")
+            var.set_value(array, borrow=True)
+
+    def reset_start(self) -> None:
+        """Start the next Laplace fit at the model's initial point (not the last mode)."""
+        self._warm = None
+
+    # -- Laplace -----------------------------------------------------------------------------
+    def laplace(self, data: Mapping[str, np.ndarray] | None = None) -> LaplaceFit:
+        """Posterior mode and curvature: the effect's approximate posterior mean and SD.
+
+        Starts from the previous fit's mode (when it converged) or the initial point, and
+        takes Newton steps with the compiled Hessian, halved until the log density rises
+        and damped (Levenberg) where the Hessian is not negative definite.
+
+        Returns
+        -------
+        LaplaceFit
+            ``(mean, sd, converged)``; ``converged`` is False when no mode was found within
+            :data:`MAX_STEPS` steps (the last point's values are returned).
+        """
+        if data is not None:
+            self.set_data(data)
+        first = self.start if self._warm is None else self._warm
+        fit = self._newton(first.copy())
+        if not fit[2] and self._warm is not None:
+            fit = self._newton(self.start.copy())
+        return fit
+
+    def _newton(self, x: np.ndarray) -> LaplaceFit:
+        full = self._full
+        lp, g, h, eff, ge = full(x)
+        if not math.isfinite(lp):
+            return LaplaceFit(math.nan, math.nan, False)
+        eye = np.eye(x.size)
+        for _ in range(MAX_STEPS):
+            a = -h
+            lam = 0.0
+            while True:
+                try:
+                    chol = np.linalg.cholesky(a + lam * eye if lam else a)
+                    break
+                except np.linalg.LinAlgError:
+                    lam = max(1e-6, 10.0 * lam) if lam else 1e-6 * max(1.0, np.abs(a).max())
+                    if lam > 1e12:
+                        return LaplaceFit(float(eff), math.nan, False)
+            step = _cho_solve(chol, g)
+            dec = float(g @ step)
+            if lam == 0.0 and dec < TOLERANCE:
+                var = float(ge @ _cho_solve(chol, ge))
+                self._warm = x
+                return LaplaceFit(float(eff), math.sqrt(max(var, 0.0)), True)
+            t = 1.0
+            for _ in range(40):
+                x_new = x + t * step
+                lp_new, g_new, h_new, eff_new, ge_new = full(x_new)
+                if math.isfinite(lp_new) and lp_new >= lp + 1e-4 * t * dec - 1e-12 * abs(lp):
+                    break
+                t *= 0.5
+            else:
+                return LaplaceFit(float(eff), math.nan, False)
+            x, lp, g, h, eff, ge = x_new, lp_new, g_new, h_new, eff_new, ge_new
+        return LaplaceFit(float(eff), math.nan, False)
+
+    # -- NUTS --------------------------------------------------------------------------------
+    def nuts(self, data: Mapping[str, np.ndarray] | None = None, *, draws: int = 500,
+             tune: int = 500, chains: int = 2, seed: int = 0) -> np.ndarray:
+        """Posterior draws of the effect by NUTS (PyMC), all chains joined.
+
+        The NUTS step is built once per compiled model; its step size and mass matrix are
+        reset before each trial, so a trial's draws depend on its data and seed only.
+        """
+        import pymc as pm
+
+        if data is not None:
+            self.set_data(data)
+        with _quiet_pymc(), self.pm_model:
+            if self._step is None:
+                self._step = pm.NUTS()
+            self._step.reset_tuning()
+            trace = pm.sample(draws=draws, tune=tune, chains=chains, cores=1, step=self._step,
+                              random_seed=int(seed), progressbar=False,
+                              compute_convergence_checks=False, return_inferencedata=False)
+        return np.asarray(trace.get_values(self.model.effect, combine=True), dtype=float)
+
+
+def _cho_solve(chol: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """Solve ``(L L') x = b`` for a lower-triangular ``L`` (small systems)."""
+    if chol.shape[0] == 1:
+        return b / (chol[0, 0] ** 2)
+    y = np.linalg.solve(chol, b)
+    return np.linalg.solve(chol.T, y)
+
+
+def hdi_width(draws: np.ndarray, coverage: float) -> float:
+    """Width of the highest-density interval of posterior draws (``arviz.hdi``)."""
+    import arviz as az
+
+    low, high = az.hdi(np.asarray(draws, dtype=float), hdi_prob=coverage)
+    return float(high - low)
