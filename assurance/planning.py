@@ -312,25 +312,31 @@ def _dataset_direct(data_vars: dict[str, tuple[tuple[str, ...], Any]],
         if value.shape != tuple(sizes.get(d, -1) for d in dims):  # never expected
             raise TypeError(f"{name}: dimensions {dims} do not match shape {value.shape}")
         if dims == (name,):  # a dimension coordinate carries a pandas index
-            # small grids (the usual case) share a cached index; large ones are not kept
-            index = (_index(name, value.tobytes(), value.dtype.str) if value.size <= 4096
-                     else _index.__wrapped__(name, value.tobytes(), value.dtype.str))
+            # small grids (the usual case) share a cached index and its coordinate variable
+            # (a shallow copy each time: own attrs and encoding, the same immutable data);
+            # large ones are not kept
+            index, made = (_index(name, value.tobytes(), value.dtype.str) if value.size <= 4096
+                           else _index.__wrapped__(name, value.tobytes(), value.dtype.str))
             indexes[name] = index
-            variables.update(index.create_variables())
+            for key, var in made.items():
+                variables[key] = var.copy(deep=False)
         else:
             variables[name] = xr.Variable(dims, value, fastpath=True)
     return xr.Dataset._construct_direct(variables, set(coords), sizes, dict(attrs), indexes)
 
 
 @lru_cache(maxsize=16)
-def _index(name: str, data: bytes, dtype: str) -> Any:
-    """A pandas index of a dimension coordinate; immutable, so shared by Datasets on the same
-    sizes (an evaluation asked again on the same grid, as solving and planning do)."""
+def _index(name: str, data: bytes, dtype: str) -> tuple[Any, dict[str, Any]]:
+    """A pandas index of a dimension coordinate and the coordinate variables it makes;
+    immutable, so shared by Datasets on the same sizes (an evaluation asked again on the
+    same grid, as solving and planning do). Callers copy the variables (shallow) before use."""
     import pandas as pd
     from xarray.indexes import PandasIndex
 
     value = np.frombuffer(data, dtype=np.dtype(dtype)).copy()
-    return PandasIndex(pd.Index(value, name=name), name, coord_dtype=value.dtype, fastpath=True)
+    index = PandasIndex(pd.Index(value, name=name), name, coord_dtype=value.dtype,
+                        fastpath=True)
+    return index, index.create_variables()
 
 
 # ------------------------------------------------------------------------------------------

@@ -199,8 +199,12 @@ def prob_estimate_above_cuts(prior: Prior, threshold: np.ndarray, se: np.ndarray
             and 0.0 < _smallest(s) and _largest(s) < math.inf:
         m, sd = prior.mu, prior.sigma
         tau, h = _normal_scale(m, sd, c, s)
+        values = [a for a, _ in cuts]
+        together = _normal_cuts_together(m, sd, s, values, tau, h) if values else None
+        if together is not None:
+            return [np.minimum(np.maximum(special.ndtr(-h), 0.0), 1.0), *together]
         return [np.minimum(np.maximum(_normal_from(m, sd, c, s, cut, tau, h), 0.0), 1.0)
-                for cut in [None, *(a for a, _ in cuts)]]
+                for cut in [None, *values]]
     return [prob_estimate_above(prior, c, s, effect_above=None if cut is None else cut[0],
                                 inclusive=bool(cut and cut[1])) for cut in [None, *cuts]]
 
@@ -253,6 +257,26 @@ def _normal_scale(m, sd, c, s):
         tau = np.where(fix, np.hypot(sd, s), tau)
         h = _scaled_gap(c, m, tau)
     return tau, h
+
+
+def _normal_cuts_together(m, sd, s, cuts, tau, h):
+    """Every cut of :func:`_normal_from` in one array ``(cuts, sizes)``, the same numbers
+    (the same elementwise operations, one row per cut); None where one of them needs the
+    careful route (a cut at the prior mean, tiny or non-finite arguments)."""
+    k = (np.array(cuts, dtype=float) - m) / sd
+    if not (np.isfinite(k).all() and (np.abs(k) > _TINY_ARGUMENT).all()):
+        return None
+    x, y, r = -h, -k[:, None], sd / tau
+    root = s / tau
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        ax = (y - r * x) / (x * root)
+        ay = (x - r * y) / (y * root)
+        usual = _all_finite(ax + ay) and _smallest(np.abs(x)) > _TINY_ARGUMENT
+    if not usual:
+        return None
+    val = 0.5 * (special.ndtr(x) + special.ndtr(y)) - special.owens_t(x, ax) \
+        - special.owens_t(y, ay) - 0.5 * ((x > 0) != (y > 0))
+    return list(np.minimum(np.maximum(val, 0.0), 1.0))
 
 
 def _normal_from(m, sd, c, s, cut, tau, h):
