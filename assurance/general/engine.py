@@ -511,7 +511,7 @@ def _dataset(model: GeneralModel, rule: Any, grid: list[int], groups: dict,
     problems = []
     agreement = np.abs(ds["nuts_agreement"].values)
     bad = [int(n) for n, a in zip(grid, agreement, strict=True)
-           if math.isfinite(a) and a > AGREEMENT_LIMIT]
+           if not math.isnan(a) and a > AGREEMENT_LIMIT]
     if bad:
         problems.append(
             f"NUTS and the Laplace approximation disagree by more than {AGREEMENT_LIMIT:g} "
