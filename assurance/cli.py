@@ -181,7 +181,7 @@ def _check(args: argparse.Namespace) -> int:
 
     spec = read_design_file(args.design)
     _say_notes(spec.notes)
-    _say(f"{args.design}: ok - {spec.design.title}")
+    _say(f"{args.design}: ok - {spec.title}")
     return 0
 
 

@@ -240,9 +240,17 @@ class Problems:
 
                 prefix = str(ctx.get("tag", "")).split(":")[0]
                 tags = [tuple(t.split(":")) for t in TAGGED if t.startswith(prefix + ":")]
-            field = {"prior": "family", "part": "family", "endpoint": "type",
-                     "rule": "rule"}.get(tags[0][0] if tags else "", "family")
+            if isinstance(value, dict) and value.get("type") == "model":
+                # an analysis model: the model's name chooses the table
+                tags = [tuple(t.split(":")) for t in _tagged() if t.startswith("model:")]
+                field = "model"
+            else:
+                tags = [t for t in tags if t[0] != "model"] or tags
+                field = {"prior": "family", "part": "family", "endpoint": "type",
+                         "rule": "rule"}.get(tags[0][0] if tags else "", "family")
             names = [name for _, name in tags]
+            if field == "type":
+                names.append("model")
             given = value.get(field) if isinstance(value, dict) else None
             if not isinstance(value, dict):
                 return f"'{path}' must be a table. Got {_shown(value)}."
@@ -388,3 +396,9 @@ def _range_text(f: Any) -> str:
             if bound is not None:
                 parts.append(f"{sign} {_num(bound)}")
     return " and ".join(dict.fromkeys(parts))
+
+
+def _tagged() -> dict[str, Any]:
+    from .schema import TAGGED
+
+    return TAGGED

@@ -107,6 +107,12 @@ class DesignFile:
         ``[sizes] planned``: the total size the decision is taken at, or None.
     sensitivity
         How to vary the design prior (``[sensitivity]``), or None when ``show = false``.
+    model, rule, simulation
+        For an analysis model (``[endpoint] type = "model"``): the
+        :class:`~assurance.general.GeneralModel`, the success rule and the
+        ``[simulation]`` settings; ``design`` is then None.
+    title
+        The design's title.
     """
 
     design: Any
@@ -123,6 +129,14 @@ class DesignFile:
     content: bytes | None = field(default=None, repr=False, compare=False)
     planned: int | None = None
     sensitivity: Any = None
+    model: Any = None
+    rule: Any = None
+    simulation: Any = None
+    title: str = ""
+
+    def __post_init__(self) -> None:
+        if not self.title and self.design is not None:
+            object.__setattr__(self, "title", self.design.title)
 
 
 def read_design_file(path: str | Path) -> DesignFile:
@@ -315,6 +329,12 @@ class _Builder:
 
     def build(self) -> DesignFile:
         t = self.t
+        if t["endpoint"] is not _FAILED and getattr(t["endpoint"], "type", None) == "model":
+            return self.build_model()
+        if t["simulation"] is not None and t["simulation"] is not _FAILED and \
+                t["endpoint"] is not _FAILED:
+            self.problems.add("simulation", "[simulation] is for analysis models ([endpoint] "
+                              "type = \"model\"); the built-in endpoints use [monte_carlo].")
         effect = t["effect"]
         endpoint = _FAILED
         if _ok(t["endpoint"], effect):
@@ -418,6 +438,68 @@ class _Builder:
                           source=self.source, zones=zones, prior_origin=origin,
                           precision=precision, record=record, notes=tuple(notes),
                           planned=planned, sensitivity=sensitivity)
+
+    def build_model(self) -> DesignFile:
+        """An analysis model fitted to simulated trials: the model, the rule, the settings."""
+        t = self.t
+        table, effect = t["endpoint"], t["effect"]
+        for name in ("analysis_prior", "sd_prior", "zones", "precision"):
+            if t[name] is not None:
+                self.problems.add(name, f"[{name}] is for the built-in endpoints; an analysis "
+                                  "model ([endpoint] type = \"model\") carries its own analysis "
+                                  "priors and reports interval widths itself.")
+        stand_in = _RatioStandIn(False)
+        design_prior = _FAILED
+        if t["design_prior"] is not _FAILED:
+            design_prior = self.attempt("design_prior", lambda: _prior_and_origin(
+                t["design_prior"], "design_prior", self, stand_in)[0])
+        rule = _FAILED if t["success"] is _FAILED else self.attempt(
+            "success", lambda: _rule(t["success"]))
+        if effect is not _FAILED and effect.assumed is None:
+            self.problems.add("effect.assumed", "is required for an analysis model: classical "
+                              "power is simulated with the true effect at this value.")
+        model = _FAILED
+        if _ok(design_prior, effect) and effect.assumed is not None:
+            model = self.attempt("endpoint", lambda: _general_model(
+                table, design_prior, effect.assumed, self))
+        title = t["title"] if t["title"] is not _FAILED else None
+        if title is None:
+            from .schema import MAX_TITLE
+
+            title = printable(Path(self.source).stem).strip()[:MAX_TITLE] or "Untitled trial"
+        sizes = None
+        planned = None
+        if t["sizes"] is not None and t["sizes"] is not _FAILED:
+            sizes = _sizes(t["sizes"])
+            planned = t["sizes"].planned
+            smallest = getattr(model, "smallest_total", 4) if model is not _FAILED else 4
+            if sizes is not None and sizes.min() < smallest:
+                self.problems.add("sizes", f"every size must be >= {smallest} (the fewest "
+                                  f"patients this model allows). Got {int(sizes.min())}.")
+        if sizes is None:
+            self.problems.add("sizes", "an analysis model needs its sizes ('from'/'to'/'step' "
+                              "or 'list'): each size costs simulated trials, so they are "
+                              "not chosen automatically.")
+        targets: dict[str, float] = {}
+        if t["targets"] is not _FAILED:
+            targets = {k: float(v) for k, v in t["targets"].model_dump().items()
+                       if v is not None}
+            if "conditional_assurance" in targets:
+                self.problems.add("targets.conditional_assurance", "is not available for an "
+                                  "analysis model (use 'assurance' or 'power').")
+        mc = t["monte_carlo"]
+        seed = 20260101 if mc is _FAILED else mc.seed
+        simulation = t["simulation"]
+        if simulation is None:
+            from .schema import SimulationTable
+
+            simulation = SimulationTable()
+        if self.problems:
+            return None  # type: ignore[return-value]  # raised by the caller
+        record = _record(t, title, None)
+        return DesignFile(design=None, sizes=sizes, targets=targets, draws=0, seed=seed,
+                          source=self.source, record=record, planned=planned, model=model,
+                          rule=rule, simulation=simulation, title=title)
 
     def preflight(self, design: Any, zones: Any, precision: Any, draws: int, seed: int
                   ) -> None:
@@ -542,6 +624,40 @@ def _trial_design(endpoint: Any, design_prior: Any, rule: Any, effect: Any, sd_p
                        power_effects=tuple(effect.also_power_at), title=title)
 
 
+def _general_model(table: Any, effect_prior: Any, assumed: float, builder: _Builder) -> Any:
+    """The built-in analysis model an ``[endpoint] type = "model"`` table describes."""
+    from ..general import builtin
+
+    def prior_or_value(name: str) -> Any:
+        value = getattr(table, name)
+        if value is None or isinstance(value, int | float) and not isinstance(value, bool):
+            return None if value is None else float(value)
+        if not isinstance(value, dict):
+            raise DesignFileError(f"'endpoint.{name}' must be a prior table or a number. "
+                                  f"Got {value!r}.")
+        made = _prior_and_origin(_validated("design_prior", value, f"endpoint.{name}",
+                                            builder.source),
+                                 f"endpoint.{name}", builder, _RatioStandIn(False))[0]
+        return made
+
+    values = table.model_dump(exclude={"type", "model", "unit"})
+    for name in [k for k in values if k.endswith("_prior")]:
+        values[name] = prior_or_value(name)
+    values = {k: v for k, v in values.items() if v is not None}
+    kind = table.model
+    if kind == "hierarchical_regions":
+        shares = values.pop("region_shares", None)
+        regions = values.pop("regions")
+        if shares is not None:
+            if len(shares) != len(regions):
+                raise DesignFileError(f"'endpoint.region_shares' must give one share per "
+                                      f"region ({len(regions)}). Got {len(shares)}.")
+            values["regions"] = dict(zip(regions, shares, strict=True))
+        else:
+            values["regions"] = list(regions)
+    return getattr(builtin, kind)(effect_prior, assumed, **values)
+
+
 def _sensitivity(table: Any) -> Any:
     from ..sensitivity import SensitivitySettings
 
@@ -568,6 +684,13 @@ def _record(t: dict[str, Any], title: str, endpoint: Any) -> dict[str, Any]:
             continue
         record[name] = value.model_dump(by_alias=True, exclude_none=True)
     ep = record["endpoint"]
+    if ep["type"] == "model":
+        from .schema import MODEL_TABLES
+
+        order = list(MODEL_TABLES[ep["model"]].model_fields)
+        record["endpoint"] = {k: ep[k] for k in sorted(ep, key=order.index)}
+        _record_sizes(record)
+        return record
     if ep["type"] == "time_to_event":
         ep["assumed_hazard_ratio"] = endpoint.assumed_hazard_ratio
     if ep["type"] == "binary":
@@ -580,10 +703,14 @@ def _record(t: dict[str, Any], title: str, endpoint: Any) -> dict[str, Any]:
         table = record.get(name)
         if table is not None and table["family"] == "beta_rates" and "scale" not in table:
             table["scale"] = endpoint.scale
+    _record_sizes(record)
+    return record
+
+
+def _record_sizes(record: dict[str, Any]) -> None:
     sizes = record.get("sizes")
     if sizes is not None and "list" not in sizes and "from" in sizes and "step" not in sizes:
         sizes["step"] = max(1, (sizes["to"] - sizes["from"]) // 50)
-    return record
 
 
 def _binary_rate_problems(table: Any, endpoint: Any, effect: Any, zones: Any) -> list[str]:

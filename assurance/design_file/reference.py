@@ -234,6 +234,18 @@ def reference_markdown() -> str:
                        ("time_to_event", "TimeToEventTable"), ("counts", "CountsTable")):
         out += [f"### type = \"{kind}\"", "", defs[name].get("description", ""), "",
                 *_rows(defs[name]), ""]
+    out += ["### type = \"model\"", "",
+            "An analysis model fitted to simulated trials (PyMC): `model` chooses it. The "
+            "effect's design prior is `[design_prior]` (on the model's effect scale: a "
+            "difference, or a log odds ratio for `logistic`) and its assumed value "
+            "`[effect] assumed`; `[sizes]` must list the sizes; `[simulation]` sets the "
+            "trials. Keys ending in `_prior` take a prior table (`{ family = \"uniform\", "
+            "lower = 0.3, upper = 0.7 }`) or a number (a fixed value).", ""]
+    for kind, name in (("ancova", "AncovaTable"), ("logistic", "LogisticTable"),
+                       ("hierarchical_regions", "RegionsTable"),
+                       ("borrowed_control", "BorrowedControlTable")):
+        out += [f"#### model = \"{kind}\"", "", defs[name].get("description", ""), "",
+                *_rows(defs[name]), ""]
     out += ["## [success]", "", "`rule` chooses the success rule (default "
             "`\"significance\"`).", ""]
     for kind, name in (("significance", "SignificanceTable"),
@@ -242,7 +254,8 @@ def reference_markdown() -> str:
                 *_rows(defs[name]), ""]
     for table, name in (("effect", "EffectTable"), ("sizes", "SizesTable"),
                         ("targets", "TargetsTable"), ("zones", "ZonesTable"),
-                        ("precision", "PrecisionTable"), ("monte_carlo", "MonteCarloTable")):
+                        ("precision", "PrecisionTable"), ("sensitivity", "SensitivityTable"),
+                        ("monte_carlo", "MonteCarloTable"), ("simulation", "SimulationTable")):
         out += [f"## [{table}]", "", defs[name].get("description", ""), "",
                 *_rows(defs[name]), ""]
     out += [

@@ -38,6 +38,7 @@ from .._validation import MAX_DRAWS, MAX_TOTAL
 __all__ = [
     "DesignFileModel",
     "ENDPOINT_TABLES",
+    "MODEL_TABLES",
     "PRIOR_TABLES",
     "RULE_TABLES",
     "TAGGED",
@@ -579,12 +580,132 @@ ENDPOINT_TABLES: dict[str, type[Table]] = {
     "counts": CountsTable,
 }
 
+# general analysis models (simulated trials fitted by a PyMC model): [endpoint] type = "model"
+_MODEL_COMMON = "Treatment patients per control patient, > 0."
+PriorOrNumber = Annotated[Any, Field(json_schema_extra={
+    "description": "a prior table (written like [design_prior]) or a number (a fixed value)"})]
+
+
+class _ModelTable(Table):
+    type: Literal["model"] = key("model", "An analysis model fitted to simulated trials "
+                                 "(PyMC).")
+    better: Literal["higher", "lower"] = key("higher", "Which direction of the effect is good.")
+    allocation: Positive = key(1.0, _MODEL_COMMON)
+
+
+class AncovaTable(_ModelTable):
+    """ANCOVA of the outcome on treatment with the baseline value as covariate."""
+
+    model: Literal["ancova"] = key("ancova", "ANCOVA with a baseline covariate.")
+    sd: Positive = key(help="SD of the outcome within an arm.", scale="outcome unit")
+    correlation: Annotated[float, Field(gt=-1, lt=1)] = key(
+        help="Assumed correlation of baseline and outcome within an arm (classical power).")
+    correlation_prior: PriorOrNumber | None = key(
+        None, "Design prior of that correlation (support inside (-1, 1)); none: fixed.")
+    control_mean: float = key(0.0, "Mean outcome on control.", scale="outcome unit")
+    baseline_mean: float = key(0.0, "Mean of the baseline value.", scale="baseline unit")
+    baseline_sd: Positive | None = key(None, "SD of the baseline value (none: 'sd').",
+                                       scale="baseline unit")
+    unit: Unit | None = key(None, "The outcome's unit for the memo (labels only).")
+
+
+class LogisticTable(_ModelTable):
+    """Logistic regression of a response on treatment and a binary covariate."""
+
+    model: Literal["logistic"] = key("logistic", "Logistic regression with a binary covariate.")
+    control_rate: Annotated[float, Field(gt=0, lt=1)] = key(
+        help="Assumed response rate on control over both strata (classical power).")
+    control_rate_prior: PriorOrNumber | None = key(
+        None, "Design prior of the control rate (support inside [0, 1]); none: fixed.")
+    covariate_share: Annotated[float, Field(gt=0, lt=1)] = key(
+        0.5, "Share of patients in the covariate's stratum.")
+    covariate_log_odds: float = key(0.0, "Log odds ratio of a response in the covariate's "
+                                    "stratum.", scale="log odds ratio")
+    analysis_sd: Positive = key(2.5, "SD of the analysis model's normal priors on the "
+                                "log-odds scale.", scale="log odds")
+
+
+class RegionsTable(_ModelTable):
+    """Regional effects around an overall effect; the overall effect is the target."""
+
+    model: Literal["hierarchical_regions"] = key("hierarchical_regions",
+                                                 "Hierarchical model over regions.")
+    sd: Positive = key(help="SD of the outcome within a region and arm.", scale="outcome unit")
+    regions: list[Unit] = key(help="Names of the regions (at least 2).", min_length=2,
+                              max_length=50)
+    region_shares: list[Positive] | None = key(
+        None, "Share of patients from each region (normalised; none: equal).", max_length=50)
+    region_sd: Annotated[float, Field(ge=0)] = key(
+        0.0, "Assumed SD of the true regional effects around the overall effect.",
+        scale="outcome unit")
+    region_sd_prior: PriorOrNumber | None = key(
+        None, "Design prior of that SD (support inside [0, inf)); none: fixed.")
+    control_mean: float = key(0.0, "Mean outcome on control.", scale="outcome unit")
+    region_mean_sd: Annotated[float, Field(ge=0)] = key(
+        0.0, "SD of the regions' control means around control_mean.", scale="outcome unit")
+    region_sd_scale: Positive | None = key(
+        None, "Scale of the analysis prior (half-normal) on the between-region SD (none: "
+        "sd / 4).", scale="outcome unit")
+    unit: Unit | None = key(None, "The outcome's unit for the memo (labels only).")
+
+
+class BorrowedControlTable(_ModelTable):
+    """Two-arm normal outcome whose control mean borrows from a historical control arm."""
+
+    model: Literal["borrowed_control"] = key("borrowed_control",
+                                             "Borrowing from a historical control arm.")
+    sd: Positive = key(help="SD of the outcome within an arm (known to the analysis).",
+                       scale="outcome unit")
+    historical_mean: float = key(help="Mean outcome of the historical control arm.",
+                                 scale="outcome unit")
+    historical_n: Annotated[int, Field(ge=1, le=10**7)] = key(
+        help="Patients in the historical control arm.", scale="patients")
+    historical_sd: Positive | None = key(None, "SD in the historical arm (none: 'sd').",
+                                         scale="outcome unit")
+    method: Literal["robust_mixture", "power_prior"] = key(
+        "robust_mixture", "How the historical arm is borrowed.")
+    weight: Annotated[float, Field(ge=0, le=1)] = key(
+        0.5, "Robust mixture: weight of the historical part; power prior: the power on the "
+        "historical likelihood (0: no borrowing).")
+    vague_sd: Positive | None = key(None, "SD of the vague prior on the control mean (none: "
+                                    "'sd').", scale="outcome unit")
+    control_mean: float | None = key(None, "Assumed true control mean in the new trial "
+                                     "(none: historical_mean).", scale="outcome unit")
+    control_mean_prior: PriorOrNumber | None = key(
+        None, "Design prior of the new control mean (drift from the historical arm); none: "
+        "fixed.")
+    unit: Unit | None = key(None, "The outcome's unit for the memo (labels only).")
+
+
+MODEL_TABLES: dict[str, type[Table]] = {
+    "ancova": AncovaTable,
+    "logistic": LogisticTable,
+    "hierarchical_regions": RegionsTable,
+    "borrowed_control": BorrowedControlTable,
+}
+
+
+def _endpoint_tag(value: Any) -> str | None:
+    kind = value.get("type", "continuous") if isinstance(value, dict) else getattr(
+        value, "type", "continuous")
+    if kind != "model":
+        return _tag("type", "endpoint", "continuous").discriminator(value)
+    model = value.get("model") if isinstance(value, dict) else getattr(value, "model", None)
+    if model is None:
+        return "model:"
+    return f"model:{model}" if isinstance(model, str) else None
+
+
 EndpointTable = Annotated[
     Annotated[ContinuousTable, Tag("endpoint:continuous")]
     | Annotated[BinaryTable, Tag("endpoint:binary")]
     | Annotated[TimeToEventTable, Tag("endpoint:time_to_event")]
-    | Annotated[CountsTable, Tag("endpoint:counts")],
-    _tag("type", "endpoint", "continuous"),
+    | Annotated[CountsTable, Tag("endpoint:counts")]
+    | Annotated[AncovaTable, Tag("model:ancova")]
+    | Annotated[LogisticTable, Tag("model:logistic")]
+    | Annotated[RegionsTable, Tag("model:hierarchical_regions")]
+    | Annotated[BorrowedControlTable, Tag("model:borrowed_control")],
+    Discriminator(_endpoint_tag),
 ]
 
 # ------------------------------------------------------------------------------------------
@@ -741,6 +862,26 @@ class SensitivityTable(Table):
         15, "Grid points along the prior spread in the sensitivity map.")
 
 
+class SimulationTable(Table):
+    """How the trials of an analysis model ([endpoint] type = "model") are simulated."""
+
+    trials: Annotated[int, Field(ge=50, le=1_000_000)] = key(
+        1000, "Simulated trials per size (and as many again for classical power).")
+    nuts_check: Annotated[int, Field(ge=0, le=10_000)] = key(
+        20, "Trials per size also fitted by NUTS to check the fast (Laplace) fit.")
+    nuts_every: bool = key(False, "Fit every trial by NUTS (slow; the fast fit is not used).")
+    coverage: Probability = key(0.95, "Probability content of the posterior intervals whose "
+                                "widths are reported.")
+    chunk: Annotated[int, Field(ge=1, le=100_000)] = key(
+        50, "Trials per task: the unit of work given to a worker (numbers do not depend on "
+        "the number of workers).")
+    workers: Annotated[int, Field(ge=0, le=256)] = key(
+        0, "Local worker processes (0: run in this process).")
+    scheduler: Annotated[str, Field(min_length=1, max_length=300)] | None = key(
+        None, "Address of a Dask scheduler (e.g. 'tcp://10.0.0.5:8786') to spread the trials "
+        "over a cluster.")
+
+
 class MonteCarloTable(Table):
     """Monte Carlo settings (used where no exact route exists)."""
 
@@ -773,6 +914,8 @@ class DesignFileModel(Table):
                                         help="Sensitivity of the answer to the design prior.")
     monte_carlo: MonteCarloTable = key(default_factory=MonteCarloTable,
                                        help="Monte Carlo settings.")
+    simulation: SimulationTable | None = key(
+        None, "Simulation settings of an analysis model (endpoint type 'model').")
 
 
 #: tag of a discriminated table -> its model (used to find the keys a table allows)
@@ -780,5 +923,6 @@ TAGGED: dict[str, type[Table]] = {
     **{f"prior:{k}": v for k, v in PRIOR_TABLES.items()},
     **{f"part:{k}": v for k, v in _PARTS.items()},
     **{f"endpoint:{k}": v for k, v in ENDPOINT_TABLES.items()},
+    **{f"model:{k}": v for k, v in MODEL_TABLES.items()},
     **{f"rule:{k}": v for k, v in RULE_TABLES.items()},
 }
