@@ -306,7 +306,7 @@ def _dataset_direct(data_vars: dict[str, tuple[tuple[str, ...], Any]],
         if value.shape != tuple(sizes.get(d, -1) for d in dims):  # never expected
             raise TypeError(f"{name}: dimensions {dims} do not match shape {value.shape}")
         variables[name] = xr.Variable(dims, value, {"long_name": _long_name(name)},
-                                      fastpath=value.ndim > 0)
+                                      fastpath=True)
     for name, (dims, value) in coords.items():
         value = np.asarray(value)
         if value.shape != tuple(sizes.get(d, -1) for d in dims):  # never expected
