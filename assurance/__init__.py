@@ -83,6 +83,10 @@ _PUBLIC = {
     "precision_model_for": "precision.for_design",
     "Plan": "planner",
     "plan": "planner",
+    "ModelPlan": "model_plan",
+    "plan_model": "model_plan",
+    "GeneralModel": "general.model",
+    "simulate_general": "general.engine",
     "SensitivitySettings": "sensitivity",
     "prior_sensitivity": "sensitivity",
     "prior_variations": "sensitivity",
@@ -151,6 +155,10 @@ __all__ = [
     "precision_model_for",
     "Plan",
     "plan",
+    "ModelPlan",
+    "plan_model",
+    "GeneralModel",
+    "simulate_general",
     "SensitivitySettings",
     "prior_sensitivity",
     "prior_variations",
@@ -165,7 +173,10 @@ if TYPE_CHECKING:  # pragma: no cover - for type checkers and editors only
     from .endpoints.counts import CountEndpoint, sample_size_for_rate_ratio, simulate_rejection_rate
     from .endpoints.survival import SurvivalEndpoint, events_needed
     from .errors import AssuranceInputError, AssuranceWarning, DesignFileError
+    from .general.engine import simulate_general
+    from .general.model import GeneralModel
     from .joint import evaluate_joint
+    from .model_plan import ModelPlan, plan_model
     from .planner import Plan, plan
     from .planning import SampleSizeAnswer, evaluate, solve_sample_size
     from .precision.for_design import PrecisionPlan, precision_model_for

@@ -13,6 +13,7 @@ characters shown escaped.
 from __future__ import annotations
 
 import argparse
+import shutil
 import signal
 import sys
 import time
@@ -236,14 +237,26 @@ def _plan(args: argparse.Namespace) -> int:
         with claim_output_folder(out, overwrite=args.overwrite, keep=[design_path]) as claim:
             progress(f"reading {design_path}")
 
+            from .design_file import read_design_file
             from .planner import Plan
 
-            plan = Plan.from_file(design_path, progress=progress)
+            spec = read_design_file(design_path)
+            if spec.model is not None:  # an analysis model: simulated trials
+                from .model_plan import ModelPlan
+
+                store = out.parent / f".{out.name}.finished-sizes"
+                progress("simulating trials (an interrupted run resumes from "
+                         f"{store.name})")
+                plan = ModelPlan.from_spec(spec, progress=not args.quiet, store=store)
+            else:
+                plan = Plan.from_spec(spec, progress=progress)
             plan = replace(plan, made_by=_command_line(args))
             _say_notes(plan.source.notes if plan.source is not None else ())
             progress("writing results, figures and memo")
             write_outputs(out, plan, formats=("png", "svg") if args.svg else ("png",),
                           claim=claim)
+            if getattr(plan, "store", None) is not None:  # kept in the folder: no longer needed
+                shutil.rmtree(plan.store, ignore_errors=True)
         if not args.quiet:
             _say(plan.summary())
             _say(f"\nWritten to {out}/ (memo.html, results.csv, results.nc, sample_sizes.csv, "

@@ -256,8 +256,16 @@ class Plan:
             raise AssuranceInputError(
                 "The 'path' parameter of Plan.from_file must be a file path (str or "
                 f"pathlib.Path). Got {path!r} instead.")
-        path = Path(path)
-        spec = read_design_file(path)
+        return cls.from_spec(read_design_file(Path(path)), progress=progress)
+
+    @classmethod
+    def from_spec(cls, spec: Any, *, progress: ProgressCallback | None = None) -> Plan:
+        """The plan of an already read design file (:func:`assurance.read_design`)."""
+        if spec.design is None:
+            raise AssuranceInputError(
+                f"The design file {spec.source} describes an analysis model ([endpoint] type "
+                "= \"model\"): use assurance.ModelPlan.from_file.")
+        path = Path(spec.source)
         made = plan(spec.design, targets=spec.targets, sizes=spec.sizes, zones=spec.zones,
                     precision=spec.precision, draws=spec.draws, seed=spec.seed,
                     prior_origin=spec.prior_origin, progress=progress, planned=spec.planned,

@@ -32,7 +32,7 @@ LAYERS: list[tuple[str, ...]] = [
     ("assurance.workflow",),                                              # the plan's steps
     ("assurance.design_file",),                                           # the file format
     ("assurance.report",),                                                # memo, figures, folder
-    ("assurance.planner",),                                               # the Plan
+    ("assurance.planner", "assurance.model_plan"),                        # the Plan
     ("assurance.cli",),                                                   # the shell
 ]
 

@@ -627,6 +627,9 @@ def _write_files(tmp: Path, plan: Plan, formats: Sequence[str]) -> None:
     from .memo import write_plan_memo
     from .plan_figures import render_figures
 
+    if hasattr(plan, "model"):  # a general analysis model: simulated trials
+        _write_model_files(tmp, plan, formats)
+        return
     ds, answers = plan.results, plan.sample_sizes
     write_results_csv(ds, tmp / "results.csv")
     write_sample_sizes_csv(answers, tmp / "sample_sizes.csv")
@@ -656,6 +659,49 @@ def _write_files(tmp: Path, plan: Plan, formats: Sequence[str]) -> None:
         for fmt in formats:
             (figures / f"{name}.{fmt}").write_bytes(by_format[fmt])
     write_plan_memo(plan, tmp / "memo.html", rendered=rendered, design_record=record)
+
+
+def _write_model_files(tmp: Path, plan: Any, formats: Sequence[str]) -> None:
+    """The folder of a model plan: the same files, from the simulated results."""
+    from .model_figures import model_figure_makers
+    from .model_memo import write_model_memo
+    from .plan_figures import render_figures
+
+    ds = plan.results
+    per_n = [name for name, var in ds.data_vars.items() if var.dims == ("n",)]
+    with open(tmp / "results.csv", "w", newline="", encoding="utf-8") as fh:
+        writer = csv.writer(fh)
+        writer.writerow(["n", "n_treatment", "n_control", *per_n])
+        for i in range(ds.sizes["n"]):
+            writer.writerow([int(ds.n[i]), int(ds.n_treatment[i]), int(ds.n_control[i]),
+                             *[_fmt(ds[name].values[i]) for name in per_n]])
+    with open(tmp / "sample_sizes.csv", "w", newline="", encoding="utf-8") as fh:
+        writer = csv.writer(fh)
+        writer.writerow(["quantity", "target", "reached", "n_total", "achieved",
+                         "achieved_mcse", "note"])
+        for a in plan.sample_sizes:
+            writer.writerow([a.quantity, _fmt(a.target), a.n is not None,
+                             "" if a.n is None else a.n, _fmt(a.value), _fmt(a.mcse), a.note])
+    record = plan.design_record()
+    saved = ds.copy()
+    if record is not None:
+        saved.attrs["design_toml"] = record
+        (tmp / "design.toml").write_text(record, encoding="utf-8")
+    saved.to_netcdf(tmp / "results.nc", engine="scipy")
+    if plan.source is not None:
+        (tmp / "design_as_given.toml").write_bytes(plan.source.content)
+    figures = tmp / "figures"
+    figures.mkdir()
+    images = render_figures(plan, tuple(dict.fromkeys(("png", *formats))),
+                            makers=model_figure_makers)
+    rendered = {}
+    for name, by_format in images.items():
+        rendered[name] = by_format["png"]
+        for fmt in formats:
+            (figures / f"{name}.{fmt}").write_bytes(by_format[fmt])
+    write_model_memo(plan, tmp / "memo.html", rendered=rendered)
+    if plan.store is not None and Path(plan.store).is_dir():  # for a later run to resume from
+        shutil.copytree(plan.store, tmp / "finished_sizes")
 
 
 def write_results_csv(ds: Any, path: str | Path) -> None:

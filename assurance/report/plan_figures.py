@@ -63,8 +63,10 @@ def figure_makers(plan: Any) -> dict[str, Callable[[], Figure]]:
     return makers
 
 
-#: the plan a forked worker draws from (set in the parent just before forking)
+#: the plan a forked worker draws from, and the list of its figures (set in the parent
+#: just before forking)
 _PLAN: Any = None
+_MAKERS: Any = None
 
 
 def _draw(job: tuple[str, tuple[str, ...]]) -> dict[str, bytes]:
@@ -72,7 +74,7 @@ def _draw(job: tuple[str, tuple[str, ...]]) -> dict[str, bytes]:
     from .figures import figure_bytes
 
     name, formats = job
-    fig = figure_makers(_PLAN)[name]()  # off-screen (not pyplot's): freed with the last use
+    fig = _MAKERS(_PLAN)[name]()  # off-screen (not pyplot's): freed with the last use
     return {fmt: figure_bytes(fig, fmt) for fmt in formats}
 
 
@@ -106,8 +108,9 @@ def _workers(count: int) -> int:
     return max(1, min(cores, count, 4))
 
 
-def render_figures(plan: Any, formats: Sequence[str], *,
-                   workers: int | None = None) -> dict[str, dict[str, bytes]]:
+def render_figures(plan: Any, formats: Sequence[str], *, workers: int | None = None,
+                   makers: Callable[[Any], dict[str, Callable[[], Figure]]] | None = None,
+                   ) -> dict[str, dict[str, bytes]]:
     """Every figure of ``plan`` as image bytes: name -> format -> bytes.
 
     Parameters
@@ -119,20 +122,24 @@ def render_figures(plan: Any, formats: Sequence[str], *,
     workers
         Processes to draw in; None: one per available core, at most one per figure and at
         most 4, and 1 where the platform cannot fork. The bytes do not depend on it.
+    makers
+        The list of figures (:func:`figure_makers` unless given; a model plan's list for
+        a :class:`~assurance.ModelPlan`).
 
     Returns
     -------
     dict
         In the order of :func:`figure_makers`.
     """
-    global _PLAN
+    global _PLAN, _MAKERS
 
     from . import figures  # noqa: F401 - imported once here, inherited by the workers
 
-    names = list(figure_makers(plan))
+    makers = figure_makers if makers is None else makers
+    names = list(makers(plan))
     jobs = [(name, tuple(formats)) for name in names]
     count = _workers(len(jobs)) if workers is None else max(1, min(workers, len(jobs)))
-    _PLAN = plan
+    _PLAN, _MAKERS = plan, makers
     try:
         if count == 1:
             drawn = [_draw(job) for job in jobs]
@@ -146,5 +153,5 @@ def render_figures(plan: Any, formats: Sequence[str], *,
                 pool.terminate()
                 pool.join()
     finally:
-        _PLAN = None
+        _PLAN = _MAKERS = None
     return dict(zip(names, drawn, strict=True))
