@@ -32,7 +32,7 @@ def _clear_caches() -> None:
     from assurance.endpoints import continuous
 
     sq._hermite_flat.cache_clear()
-    sq._HERMITE_CACHE.clear()
+    sq._RATIO_TABLES.clear()
     sq._bulk_log_ratio.cache_clear()
     sq._nodes_for.cache_clear()
     continuous._critical_t_cached.cache_clear()

@@ -28,6 +28,8 @@ the expectation.
 from __future__ import annotations
 
 import math
+import threading
+from collections import OrderedDict
 from functools import lru_cache
 
 import numpy as np
@@ -124,26 +126,49 @@ def ratio_log_density(u: np.ndarray, df: np.ndarray) -> np.ndarray:
     return math.log(2.0) + _log_norm_constant(h) + h * (2 * u - np.expm1(2 * u))
 
 
-#: Gauss-Hermite ratios by (nodes, df): shared by every call whatever its tiers
-_HERMITE_CACHE: dict[tuple[int, float], np.ndarray] = {}
-_HERMITE_CACHE_SIZE = 50_000
+#: Every tier's Gauss-Hermite rule, concatenated once per process: the scores, the weights,
+#: and where each rule of ``k`` nodes starts (``_RULE_START[k]``).
+_RULE_KS = np.unique(np.array([row[2] for row in _TIERS], dtype=np.int64))
+_RULE_START = np.zeros(int(_RULE_KS.max()) + 1, dtype=np.int64)
+_RULE_START[_RULE_KS] = np.cumsum(_RULE_KS) - _RULE_KS
+_RULE_Z = np.concatenate([_hermite_rule(int(k))[0] for k in _RULE_KS])
+_RULE_W = np.concatenate([_hermite_rule(int(k))[1] for k in _RULE_KS])
+#: Ratios ``q(z)`` at every rule's scores for the df values of a grid, filled as asked
+#: (NaN: not yet computed); keyed by the grid's sorted unique df, the few latest kept
+_RATIO_TABLES: OrderedDict[bytes, np.ndarray] = OrderedDict()
+_RATIO_TABLES_KEPT = 8
+_RATIO_LOCK = threading.Lock()
 
 
-def _hermite_ratios(df: np.ndarray, k: int) -> np.ndarray:
-    """Ratios ``q(z_i)`` at the ``k`` Gauss-Hermite scores for each df, shape ``(k, m)``."""
-    keys = [(k, float(d)) for d in df]
-    missing = [key[1] for key in keys if key not in _HERMITE_CACHE]
-    if missing:
-        if len(_HERMITE_CACHE) + len(missing) > _HERMITE_CACHE_SIZE:
-            _HERMITE_CACHE.clear()
-        new = np.array(missing)
-        x, _ = _hermite_rule(k)
-        ratio = np.sqrt(_chi_from_score(x[:, None], new[None, :] / 2) / new[None, :])
-        for j, d in enumerate(missing):
-            column = ratio[:, j].copy()
-            column.setflags(write=False)
-            _HERMITE_CACHE[(k, d)] = column
-    return np.stack([_HERMITE_CACHE[key] for key in keys], axis=1)
+def _ratio_table(uniq: np.ndarray) -> np.ndarray:
+    key = uniq.tobytes()
+    with _RATIO_LOCK:
+        table = _RATIO_TABLES.get(key)
+        if table is None:
+            table = np.full((_RULE_Z.size, uniq.size), np.nan)
+            _RATIO_TABLES[key] = table
+            while len(_RATIO_TABLES) > _RATIO_TABLES_KEPT:
+                _RATIO_TABLES.popitem(last=False)
+        else:
+            _RATIO_TABLES.move_to_end(key)
+    return table
+
+
+def _ratios_at(df: np.ndarray, col: np.ndarray, node: np.ndarray) -> np.ndarray:
+    """``q = sqrt(chi2_df quantile at Phi(z) / df)`` for each (column, rule score) pair:
+    one vectorised quantile call for the pairs not yet in the grid's table."""
+    uniq, inverse = np.unique(df, return_inverse=True)
+    table = _ratio_table(uniq)
+    j = inverse[col]
+    out = table[node, j]
+    missing = np.isnan(out)
+    if missing.any():
+        flat = np.unique(node[missing] * uniq.size + j[missing])
+        rows, cols = np.divmod(flat, uniq.size)
+        d = uniq[cols]
+        table[rows, cols] = np.sqrt(_chi_from_score(_RULE_Z[rows], d / 2) / d)
+        out = table[node, j]
+    return out
 
 
 @lru_cache(maxsize=64)
@@ -320,20 +345,19 @@ def hermite_part(df: np.ndarray, centres: np.ndarray, widths: np.ndarray
 @lru_cache(maxsize=128)
 def _hermite_flat(df_bytes: bytes, tier_bytes: bytes
                   ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """Gauss-Hermite nodes of every column with a tier > 0, flat (cached: a grid asks for
-    the same tiers at every call)."""
+    """Gauss-Hermite nodes of every column with a tier > 0, flat, ordered by tier, node and
+    column (cached: a grid asks for the same tiers at every call); the ratios of all tiers
+    in one quantile call."""
     df = np.frombuffer(df_bytes, dtype=float)
     tier = np.frombuffer(tier_bytes, dtype=np.int64)
-    cols_out, ratio_out, weight_out = [], [], []
+    cols_out, node_out = [], []
     for k in np.unique(tier[tier > 0]):
         cols = np.flatnonzero(tier == k)
-        uniq, inverse = np.unique(df[cols], return_inverse=True)
-        _, w = _hermite_rule(int(k))
-        ratio = _hermite_ratios(uniq, int(k))[:, inverse]
         cols_out.append(np.tile(cols, int(k)))
-        ratio_out.append(ratio.ravel())
-        weight_out.append(np.repeat(w, cols.size))
-    col, ratio, weight = (np.concatenate(v) for v in (cols_out, ratio_out, weight_out))
+        node_out.append(np.repeat(np.arange(_RULE_START[k], _RULE_START[k] + k), cols.size))
+    col, node = np.concatenate(cols_out), np.concatenate(node_out)
+    ratio = _ratios_at(df, col, node)
+    weight = _RULE_W[node]
     for v in (col, ratio, weight):
         v.setflags(write=False)
     return col, ratio, weight
