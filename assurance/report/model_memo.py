@@ -182,9 +182,10 @@ def _decision(plan: Any, ds: Any, j: int, exact: bool) -> dict[str, Any]:
     lead = []
     warning = ds.attrs.get("warning")
     if warning:
-        lead.append("Warning from the simulation: " + wd._no_code(printable(str(warning))))
+        lead.append(("warning", "Warning from the simulation: "
+                     + wd._no_code(printable(str(warning)))))
     if check["failed"]:
-        lead.append(check["sentence"])
+        lead.append(("check-failed", check["sentence"]))
     else:
         sentences.append(check["sentence"])
     return {"lead": lead, "tiles": tiles, "sentences": sentences, "n": n_shown,
@@ -330,7 +331,8 @@ def _method(plan: Any, ds: Any) -> list[str]:
     workers = _setting(settings, "workers")
     scheduler = _setting(settings, "scheduler")
     if scheduler:
-        out.append(f"The trials were spread over a cluster of workers ({printable(str(scheduler))}).")
+        out.append("The trials were spread over a cluster of workers "
+                   f"({printable(str(scheduler))}).")
     elif workers and str(workers) not in ("1", "0", "None"):
         out.append(f"The trials were spread over {printable(str(workers))} local worker "
                    "processes.")
