@@ -137,6 +137,9 @@ def test_targets_say_the_grid_bounds_the_answer():
     assert "above 80 and at most 120 patients" in text
     # |0.61 - 0.60| <= 2 * sqrt(0.61 * 0.39 / 400) = 0.049: within 2 MC SE of the target
     assert "within 2 Monte Carlo standard errors of the target" in text
+    # mean width at 80 patients: 4 / sqrt(2) = 2.828, MC SE 0.028 -> to its one figure
+    assert f"{4 / math.sqrt(2):.2f} \u00b1 {0.04 / math.sqrt(2):.2f}" in text
+    assert "Mean width of the 95% interval (points)" in text
 
 
 def test_write_never_overwrites(tmp_path):

@@ -245,14 +245,18 @@ def _sizes_table(plan: Any, ds: Any, planned_row: int) -> dict[str, Any]:
                 f"first to reach {_QUANTITY.get(answer.quantity, answer.quantity).split(' (')[0]}"
                 f" {wd.percent(answer.target)}")
     coverage = float(ds.attrs.get("coverage", 0.95))
+    unit = getattr(plan, "unit", None)
+    if "ratio" in str(getattr(plan.model, "effect_scale", "")):
+        unit = None
+    unit = unit or str(getattr(plan.model, "effect_scale", "") or "")
     head = ["Total patients", "Treatment / control", "Probability of success",
-            "Classical power", f"Mean width of the {wd.percent(coverage)} interval", "Note"]
+            "Classical power", f"Mean width of the {wd.percent(coverage)} interval"
+            + (f" ({unit})" if unit else ""), "Note"]
     rows = []
     for j in range(n.size):
         width = _at(ds, "width_mean", j)
         width_se = _at(ds, "width_mean_mcse", j)
-        width_text = _NOT_SIMULATED if not _finite(width) else wd.number(width) + (
-            f" \u00b1 {wd.number(width_se, 2)}" if _finite(width_se) else "")
+        width_text = _width_text(width, width_se)
         notes = list(marks.get(j, []))
         if j == planned_row:
             notes.insert(0, "planned")
@@ -267,6 +271,16 @@ def _sizes_table(plan: Any, ds: Any, planned_row: int) -> dict[str, Any]:
             _pct_se(_at(ds, "power", j), _at(ds, "power_mcse", j)),
             width_text, "; ".join(notes)]})
     return {"head": head, "rows": rows}
+
+
+def _width_text(width: float, se: float) -> str:
+    """``2.83 ± 0.03``: the width to the decimal place of its one-figure MC SE."""
+    if not _finite(width):
+        return _NOT_SIMULATED
+    if not _finite(se) or se <= 0:
+        return wd.number(width)
+    decimals = max(0, -math.floor(math.log10(se)))
+    return f"{width:,.{decimals}f} \u00b1 {se:.{decimals}f}"
 
 
 def _targets(plan: Any, ds: Any) -> list[dict[str, str]]:
@@ -351,7 +365,7 @@ def _provenance(plan: Any, ds: Any, date: str) -> list[tuple[str, str]]:
         rows.append(("SHA-256 of the design file", hashlib.sha256(source.content).hexdigest()))
     else:
         rows.append(("Design file", "none (the plan was made in Python)"))
-    rows.append(("Made by", str(getattr(plan, "made_by", "") or "not recorded")))
+    rows.append(("Command (made by)", str(getattr(plan, "made_by", "") or "not recorded")))
     rows.append(("Computed (UTC)", str(getattr(plan, "created", "") or "not recorded")))
     rows.append(("Memo written", date))
     seed = ds.attrs.get("seed", _setting(getattr(plan, "settings", None), "seed"))
