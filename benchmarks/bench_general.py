@@ -105,6 +105,8 @@ def main() -> None:
 
     model, rule = _setting()
     cores = os.cpu_count() or 1
+    print(f"   (load average before: {os.getloadavg()[0]:.1f} on {cores} cores; the ratios "
+          "below assume an otherwise idle machine)")
 
     per_fast, per_nuts = _fast_and_nuts(model)
     ratio = per_nuts / per_fast
@@ -132,6 +134,7 @@ def main() -> None:
           f"{verdict(speed_cold >= CLUSTER_SPEEDUP)}")
     print(f"   second run (compiled models cached on the workers): 1 worker {one_warm:.1f} s "
           f"| 2 workers {two_warm:.1f} s | ratio {speed_warm:.2f}x")
+    print(f"   (load average after: {os.getloadavg()[0]:.1f})")
 
 
 if __name__ == "__main__":
