@@ -95,8 +95,8 @@ def test_binomial_model_against_exact_enumeration():
 
 
 def test_same_seed_same_numbers_whatever_the_executor():
-    kwargs = dict(rule=asr.PosteriorProbability(0.975), trials=40, chunk=10, nuts_check=2,
-                  seed=3, progress=False, nuts_draws=100, nuts_tune=100)
+    kwargs = dict(rule=asr.PosteriorProbability(0.975), trials=40, chunk=10, nuts_check=1,
+                  seed=3, progress=False, nuts_draws=50, nuts_tune=50)
     first = simulate_general(normal_model(), [20], **kwargs)
     again = simulate_general(normal_model(), [20], **kwargs)
     xr.testing.assert_identical(first, again)
@@ -108,7 +108,9 @@ def test_same_seed_same_numbers_whatever_the_executor():
         (other.power.values != first.power.values).any()
 
 
-def test_a_size_does_not_depend_on_the_rest_of_the_grid(normal_run):
+def test_a_size_does_not_depend_on_the_rest_of_the_grid(normal_run, monkeypatch):
+    # compiled afresh at n = 60 (the grid's run compiled at n = 20 and reused it)
+    monkeypatch.setattr(engine_module, "_COMPILED", {})
     alone = simulate_general(normal_model(), [60], rule=asr.PosteriorProbability(0.975),
                              trials=800, nuts_check=0, chunk=200, seed=11, progress=False)
     xr.testing.assert_identical(alone.drop_attrs(), normal_run.sel(n=[60]).drop_attrs())
@@ -225,3 +227,15 @@ def test_solve_reads_the_first_size_reaching_the_target(normal_run):
     assert "above 20" in answer.note
     none = solve_general_n(normal_run, 0.99)
     assert none.n is None and "extend the grid" in none.note
+
+
+def test_nuts_on_every_trial_reports_nuts():
+    ds = simulate_general(normal_model(), [20], rule=asr.PosteriorProbability(0.975),
+                          trials=3, chunk=3, nuts_every=True, power=False, seed=2,
+                          nuts_draws=50, nuts_tune=50, progress=False)
+    assert ds.attrs["method"] == "NUTS on every trial"
+    assert int(ds.nuts_trials[0]) == 3
+    assert float(ds.assurance[0]) == float(ds.nuts_assurance_subset[0])
+    # NUTS widths (arviz.hdi of 100 draws) near the exact 2 z_0.975 sigma sqrt(1/10 + 1/10)
+    exact = 2 * stats.norm.ppf(0.975) * SIGMA * math.sqrt(0.2)
+    assert abs(float(ds.width_mean[0]) / exact - 1) < 0.35

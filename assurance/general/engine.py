@@ -98,27 +98,37 @@ _ARRAYS = ("success", "width", "laplace_success", "laplace_mean", "laplace_sd",
            "laplace_width", "truth_effect", "converged", "nuts_success", "nuts_width",
            "nuts_mean", "nuts_sd", "laplace_on_nuts")
 
-#: Compiled models of this process, by (model, arm sizes): each worker compiles a model
-#: once per size.
+#: Compiled models of this process, by (model, arm sizes). A model compiles once per size
+#: per worker at most, and once in all when its graph does not depend on the size.
 _COMPILED: dict[tuple, Any] = {}
 
 
 def _compiled(model: GeneralModel, n_t: int, n_c: int, data: dict) -> Any:
     from .fit import CompiledModel
 
-    key = (model.name, repr(model.build), n_t, n_c)
+    family = (model.name, repr(model.build))
+    key = (*family, n_t, n_c)
     found = _COMPILED.get(key)
     if found is None:
-        found = _COMPILED[key] = CompiledModel(model, data)
+        seen = {id(v): v for k, v in _COMPILED.items() if k[:2] == family}
+        for other in seen.values():
+            if other.serves(data):
+                found = other
+                break
+        else:
+            found = CompiledModel(model, data)
+        _COMPILED[key] = found
     return found
 
 
 def run_chunk(spec: ChunkSpec) -> ChunkResult:
     """Simulate and fit one chunk of trials (the task function of :func:`simulate_general`).
 
-    Examples
-    --------
-    >>> # see simulate_general; a chunk needs PyMC and compiles the model
+    The chunk's seed is ``SeedSequence(entropy, spawn_key=key)`` for ``spec.seed =
+    (entropy, key)``, split into three streams: the truths, the data, and the NUTS seeds.
+    The Laplace fits start from the model's initial point at the chunk's first trial, so a
+    chunk's numbers do not depend on what the worker ran before. See
+    :func:`simulate_general` for an example.
     """
     from .fit import hdi_width
 
@@ -367,7 +377,25 @@ def simulate_general(
 
     Examples
     --------
-    >>> # needs PyMC; see tests/test_general_engine.py for complete runs
+    >>> import numpy as np
+    >>> from assurance.priors import Normal
+    >>> from assurance.rules.posterior import PosteriorProbability
+    >>> def simulate(rng, n_t, n_c, truth):  # invented: a change from baseline, SD 1
+    ...     treated = np.r_[np.ones(n_t), np.zeros(n_c)]
+    ...     return {"y": rng.normal(truth["effect"] * treated, 1.0), "treated": treated}
+    >>> def build(data):
+    ...     import pymc as pm
+    ...     with pm.Model() as model:
+    ...         y, treated = pm.Data("y", data["y"]), pm.Data("treated", data["treated"])
+    ...         mu, effect = pm.Normal("mu", 0, 100), pm.Normal("effect", 0, 100)
+    ...         pm.Normal("obs", mu + effect * treated, 1.0, observed=y)
+    ...     return model
+    >>> model = GeneralModel("invented: change from baseline", simulate, build,
+    ...                      design_prior={"effect": Normal(0.5, 0.2)}, assumed={"effect": 0.5})
+    >>> ds = simulate_general(model, [40, 80], rule=PosteriorProbability(0.975), trials=100,
+    ...                       nuts_check=0, progress=False)
+    >>> bool(ds.assurance[1] > ds.assurance[0]), ds.assurance.dims
+    (True, ('n',))
     """
     if not isinstance(model, GeneralModel):
         raise AssuranceInputError(

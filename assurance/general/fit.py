@@ -70,7 +70,24 @@ class CompiledModel:
 
     Examples
     --------
-    >>> from assurance.general.builtin import logistic  # doctest: +SKIP
+    >>> import numpy as np
+    >>> from assurance.general import GeneralModel
+    >>> from assurance.priors import Normal
+    >>> def simulate(rng, n_t, n_c, truth):
+    ...     return {"y": rng.normal(truth["effect"], 1.0, n_t + n_c)}
+    >>> def build(data):
+    ...     import pymc as pm
+    ...     with pm.Model() as model:
+    ...         y = pm.Data("y", data["y"])
+    ...         effect = pm.Normal("effect", 0.0, 100.0)
+    ...         pm.Normal("obs", effect, 1.0, observed=y)
+    ...     return model
+    >>> model = GeneralModel("invented: one mean", simulate, build,
+    ...                      design_prior={"effect": Normal(0.3, 0.1)}, assumed={"effect": 0.3})
+    >>> data = {"y": np.array([0.5, 1.5, 1.0, 1.0])}
+    >>> mean, sd, converged = CompiledModel(model, data).laplace(data)
+    >>> round(mean, 3), round(sd, 3), converged  # about the sample mean and 1 / sqrt(4)
+    (1.0, 0.5, True)
     """
 
     def __init__(self, model: GeneralModel, data: Mapping[str, np.ndarray]) -> None:
@@ -107,6 +124,7 @@ class CompiledModel:
                 "pm.Data container.")
         self._shared = {k: built[k] for k in data}
         effect_var = built[model.effect]
+        self._graph = _graph(built, model.effect, data)
         point = built.initial_point()
         value_vars = built.value_vars
         effect_expr = built.replace_rvs_by_values([effect_var])[0]
@@ -125,6 +143,31 @@ class CompiledModel:
             [np.ravel(point[v.name]) for v in value_vars]).astype(flat.dtype)
         self._warm: np.ndarray | None = None
         self._step: Any = None
+
+    def serves(self, data: Mapping[str, np.ndarray]) -> bool:
+        """Whether this compiled model also fits ``data`` of another size.
+
+        The model is built on ``data`` (cheap) and its log density and effect are compared,
+        node by node, with those compiled here (``pytensor.graph.basic.equal_computations``,
+        data containers and parameters matched by name). They are equal when the builder
+        does not write the trial size into the model (``pm.Data`` shapes stay open); then
+        the compiled functions are reused with the new data, giving the same numbers as a
+        fresh compilation.
+        """
+        from pytensor.graph.basic import equal_computations
+
+        if set(data) != set(self._shared):
+            return False
+        with _quiet_pymc():
+            built = self.model.build(dict(data))
+        try:
+            outs, ins = _graph(built, self.model.effect, data)
+        except Exception:
+            return False
+        mine_outs, mine_ins = self._graph
+        if len(ins) != len(mine_ins):
+            return False
+        return bool(equal_computations(outs, mine_outs, in_xs=ins, in_ys=mine_ins))
 
     # -- data ------------------------------------------------------------------------------
     def set_data(self, data: Mapping[str, np.ndarray]) -> None:
@@ -226,6 +269,14 @@ class CompiledModel:
         return np.asarray(trace.get_values(self.model.effect, combine=True), dtype=float)
 
 
+def _graph(built: Any, effect: str, names: Any) -> tuple[list, list]:
+    """The log density and the effect of a PyMC model, and its inputs in a fixed order: the
+    value variables, then the simulated data containers by name (any other container stays
+    unmatched, so a model holding one never counts as the same across sizes)."""
+    outs = [built.logp(), built.replace_rvs_by_values([built[effect]])[0]]
+    return outs, list(built.value_vars) + [built[k] for k in sorted(names)]
+
+
 def _cho_solve(chol: np.ndarray, b: np.ndarray) -> np.ndarray:
     """Solve ``(L L') x = b`` for a lower-triangular ``L`` (small systems)."""
     if chol.shape[0] == 1:
@@ -235,7 +286,13 @@ def _cho_solve(chol: np.ndarray, b: np.ndarray) -> np.ndarray:
 
 
 def hdi_width(draws: np.ndarray, coverage: float) -> float:
-    """Width of the highest-density interval of posterior draws (``arviz.hdi``)."""
+    """Width of the highest-density interval of posterior draws (``arviz.hdi``).
+
+    Examples
+    --------
+    >>> round(hdi_width(np.linspace(0.0, 1.0, 1001), 0.5), 2)
+    0.5
+    """
     import arviz as az
 
     low, high = az.hdi(np.asarray(draws, dtype=float), hdi_prob=coverage)
