@@ -217,18 +217,21 @@ class CompiledModel:
         lp, g, h, eff, ge = full(x)
         if not math.isfinite(lp):
             return LaplaceFit(math.nan, math.nan, False)
+        from scipy.linalg.lapack import dpotrf
+
         eye = np.eye(x.size)
         for _ in range(MAX_STEPS):
+            if not (np.isfinite(h).all() and np.isfinite(g).all()):
+                return LaplaceFit(float(eff), math.nan, False)
             a = -h
             lam = 0.0
-            while True:
-                try:
-                    chol = np.linalg.cholesky(a + lam * eye if lam else a)
+            while True:  # Cholesky of -H (+ lam I until positive definite)
+                chol, info = dpotrf(a + lam * eye if lam else a, lower=1, clean=0)
+                if info == 0:
                     break
-                except np.linalg.LinAlgError:
-                    lam = max(1e-6, 10.0 * lam) if lam else 1e-6 * max(1.0, np.abs(a).max())
-                    if lam > 1e12:
-                        return LaplaceFit(float(eff), math.nan, False)
+                lam = 10.0 * lam if lam else 1e-6 * max(1.0, float(np.abs(a).max()))
+                if lam > 1e12 or not math.isfinite(lam):
+                    return LaplaceFit(float(eff), math.nan, False)
             step = _cho_solve(chol, g)
             dec = float(g @ step)
             if lam == 0.0 and dec < TOLERANCE:
@@ -278,11 +281,10 @@ def _graph(built: Any, effect: str, names: Any) -> tuple[list, list]:
 
 
 def _cho_solve(chol: np.ndarray, b: np.ndarray) -> np.ndarray:
-    """Solve ``(L L') x = b`` for a lower-triangular ``L`` (small systems)."""
-    if chol.shape[0] == 1:
-        return b / (chol[0, 0] ** 2)
-    y = np.linalg.solve(chol, b)
-    return np.linalg.solve(chol.T, y)
+    """Solve ``(L L') x = b`` for the lower Cholesky factor ``L`` (LAPACK dpotrs)."""
+    from scipy.linalg.lapack import dpotrs
+
+    return dpotrs(chol, b, lower=1)[0]
 
 
 def hdi_width(draws: np.ndarray, coverage: float) -> float:
