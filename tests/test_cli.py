@@ -262,11 +262,11 @@ def test_warnings_print_as_one_plain_line_without_source(tmp_path):
     script.write_text(
         "import sys, warnings\n"
         "from assurance.planner import Plan\n"
-        "real = Plan.from_file.__func__\n"
+        "real = Plan.from_spec.__func__\n"
         "def noisy(cls, *args, **kwargs):\n"
         "    warnings.warn('first part\\n  second part', UserWarning)  # SOURCE-LINE-MARK\n"
         "    return real(cls, *args, **kwargs)\n"
-        "Plan.from_file = classmethod(noisy)\n"
+        "Plan.from_spec = classmethod(noisy)\n"
         "from assurance.cli import main\n"
         "sys.exit(main(sys.argv[1:]))\n", encoding="utf-8")
     proc = subprocess.run([sys.executable, str(script), "plan", str(design), "--out",

@@ -36,6 +36,8 @@ from .memo import (
     write_memo,
     write_plan_memo,
 )
+from .model_figures import model_figure_makers, plot_model_success, plot_model_widths
+from .model_memo import model_memo_html, write_model_memo
 from .notebook import overview_html
 
 __all__ = [
@@ -56,5 +58,10 @@ __all__ = [
     "write_plan_memo",
     "memo_text_summary",
     "overview_html",
+    "model_memo_html",
+    "write_model_memo",
+    "model_figure_makers",
+    "plot_model_success",
+    "plot_model_widths",
     "DEFAULT_CAUTIONS",
 ]
