@@ -115,3 +115,23 @@ def logistic_model() -> GeneralModel:
                                       "intercept": PointMass(-0.4)},
                         assumed={"effect": 0.5, "intercept": -0.4},
                         effect_scale="log odds ratio")
+
+
+# -- a model without a posterior mode (a log density rising without bound) ----------------------
+def all_respond_simulate(rng, n_t, n_c, truth):
+    return {"y": np.ones(n_t + n_c)}
+
+
+def runaway_build(data):
+    import pymc as pm
+
+    with pm.Model() as model:
+        y = pm.Data("y", data["y"])
+        effect = pm.Flat("effect")
+        pm.Potential("runaway", effect**2 + 0.0 * y.sum())
+    return model
+
+
+def no_mode_model() -> GeneralModel:
+    return GeneralModel("invented: no posterior mode", all_respond_simulate, runaway_build,
+                        design_prior={"effect": PointMass(1.0)}, assumed={"effect": 1.0})

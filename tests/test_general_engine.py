@@ -227,6 +227,11 @@ def test_solve_reads_the_first_size_reaching_the_target(normal_run):
     assert "above 20" in answer.note
     none = solve_general_n(normal_run, 0.99)
     assert none.n is None and "extend the grid" in none.note
+    # widths: the exact 95% interval width 2 z sigma sqrt(4 / n) is 1.753 at n = 80 (by hand)
+    alc = solve_general_n(normal_run, 1.753, "width_mean")
+    assert alc.n == 120 and alc.value <= 1.753
+    with pytest.raises(AssuranceInputError, match="'quantity'"):
+        solve_general_n(normal_run, 0.8, "ceiling")
 
 
 def test_nuts_on_every_trial_reports_nuts():

@@ -12,8 +12,8 @@ import pytest
 from scipy import stats
 
 import assurance as asr
-from assurance.errors import AssuranceInputError
-from assurance.general import GeneralModel
+from assurance.errors import AssuranceInputError, AssuranceWarning
+from assurance.general import GeneralModel, simulate_general
 from assurance.general.engine import ChunkSpec, _compiled, run_chunk
 
 pytest.importorskip("pymc")
@@ -27,6 +27,7 @@ from _general_models import (  # noqa: E402
     arm_means_build,
     binomial_model,
     logistic_model,
+    no_mode_model,
     normal_model,
 )
 
@@ -128,3 +129,12 @@ def test_data_must_match_the_containers():
         fit.set_data({"y": data["y"]})
     with pytest.raises(AssuranceInputError, match="dimension"):
         fit.set_data({"y": data["y"][None, :], "treated": data["treated"]})
+
+
+def test_a_fit_without_a_mode_is_counted_and_warned():
+    # log density effect^2: no maximum (the Hessian is never negative definite)
+    with pytest.warns(AssuranceWarning, match="found no posterior mode"):
+        ds = simulate_general(no_mode_model(), [10], rule=asr.PosteriorProbability(0.9),
+                              trials=2, chunk=2, nuts_check=0, power=False, progress=False)
+    assert int(ds.not_converged[0]) == 2
+    assert float(ds.assurance[0]) == 0.0  # a failed fit never counts as a success

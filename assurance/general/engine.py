@@ -582,8 +582,8 @@ class GeneralSizeAnswer:
 
 
 def solve_general_n(dataset: xr.Dataset, target: float,
-                    quantity: Literal["assurance", "power"] = "assurance"
-                    ) -> GeneralSizeAnswer:
+                    quantity: Literal["assurance", "power", "width_mean", "width_median",
+                                      "width_q90"] = "assurance") -> GeneralSizeAnswer:
     """The smallest total size of the grid whose simulated ``quantity`` reaches ``target``.
 
     Parameters
@@ -591,17 +591,22 @@ def solve_general_n(dataset: xr.Dataset, target: float,
     dataset
         The result of :func:`simulate_general`.
     target
-        The probability to reach, in (0, 1).
+        For ``"assurance"`` / ``"power"``: the probability to reach, in (0, 1). For the
+        widths: the largest acceptable width (> 0) of the posterior interval, on average
+        (``"width_mean"``, the average-length criterion), at the median, or in 90% of trials
+        (``"width_q90"``, a worst-outcome criterion).
     quantity
-        ``"assurance"`` or ``"power"``.
+        ``"assurance"``, ``"power"``, ``"width_mean"``, ``"width_median"`` or
+        ``"width_q90"``.
 
     Returns
     -------
     GeneralSizeAnswer
         ``n`` (None when no size reaches the target), the estimate there with its Monte
-        Carlo SE, and a note: the grid bounds the answer (the true smallest size lies between
-        the previous grid size and this one), and whether the estimate is within 2 MC SE of
-        the target (then a neighbouring size may be the true answer).
+        Carlo SE (NaN for the median and quantile widths), and a note: the grid bounds the
+        answer (the true smallest size lies between the previous grid size and this one),
+        and whether the estimate is within 2 MC SE of the target (then a neighbouring size
+        may be the true answer).
 
     Examples
     --------
@@ -611,25 +616,36 @@ def solve_general_n(dataset: xr.Dataset, target: float,
     >>> solve_general_n(ds, 0.65).n
     20
     """
-    quantity = check_choice(quantity, "quantity", "solve_general_n", ["assurance", "power"])
-    target = check_real(target, "target", "solve_general_n", low=0, high=1, low_open=True,
-                        high_open=True)
+    owner = "solve_general_n"
+    quantity = check_choice(quantity, "quantity", owner, ["assurance", "power", "width_mean",
+                                                           "width_median", "width_q90"])
+    width = quantity.startswith("width")
+    if width:
+        target = check_real(target, "target", owner, low=0, low_open=True)
+    else:
+        target = check_real(target, "target", owner, low=0, high=1, low_open=True,
+                            high_open=True)
     values = np.asarray(dataset[quantity].values, float)
-    mcse = np.asarray(dataset[f"{quantity}_mcse"].values, float)
+    name = f"{quantity}_mcse"
+    mcse = (np.asarray(dataset[name].values, float) if name in dataset
+            else np.full(values.shape, np.nan))
     sizes = np.asarray(dataset["n"].values)
-    hits = np.flatnonzero(values >= target)
+    reached = values <= target if width else values >= target
+    hits = np.flatnonzero(reached)
+    words = {"width_mean": "mean interval width", "width_median": "median interval width",
+             "width_q90": "90th percentile of the interval width"}.get(quantity, quantity)
     if hits.size == 0:
-        best = int(np.nanargmax(values))
+        best = int(np.nanargmin(values) if width else np.nanargmax(values))
         return GeneralSizeAnswer(
             None, float(values[best]), float(mcse[best]), quantity, target,
-            f"no size up to {int(sizes[-1])} reaches {quantity} {target:g} (highest "
-            f"{values[best]:.3f} at n = {int(sizes[best])}); extend the grid")
+            f"no size up to {int(sizes[-1])} reaches {words} {target:g} (best "
+            f"{values[best]:.3g} at n = {int(sizes[best])}); extend the grid")
     i = int(hits[0])
     low = "the smallest size simulated" if i == 0 else f"above {int(sizes[i - 1])}"
-    note = (f"first size of the grid reaching {quantity} {target:g}: the answer lies "
+    note = (f"first size of the grid reaching {words} {target:g}: the answer lies "
             f"{low} and at most {int(sizes[i])}")
     if abs(values[i] - target) <= 2 * mcse[i]:
-        note += (f"; the estimate {values[i]:.3f} is within 2 Monte Carlo SE "
-                 f"({mcse[i]:.3f}) of the target, so more trials may move the answer")
+        note += (f"; the estimate {values[i]:.3g} is within 2 Monte Carlo SE "
+                 f"({mcse[i]:.2g}) of the target, so more trials may move the answer")
     return GeneralSizeAnswer(int(sizes[i]), float(values[i]), float(mcse[i]), quantity,
                              target, note)
