@@ -340,7 +340,10 @@ def simulate_general(
     chunk
         Trials per task. Part of the seed layout: changing it changes the numbers.
     store
-        A folder keeping finished sizes; a new run with the same settings reads them.
+        A folder keeping finished sizes; a new run with the same settings reads them, and
+        one with other settings is refused. The model's functions are recognised by module
+        and name (a callable object by its ``repr``): after changing a function's body or
+        the values a closure captures, use a new folder.
     executor
         Where the tasks run: None (this process), ``"processes"`` or a number of local
         worker processes, a Dask scheduler address or client.
