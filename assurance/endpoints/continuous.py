@@ -179,12 +179,34 @@ class _ContinuousCalculator(SuccessCalculator):
         effects = np.asarray(effects_benefit, dtype=float)
         geo = self._geometry(n_t, n_c)
         if geo["analysis"] != "z":
-            return np.vstack([self.power(float(e), n_t, n_c) for e in effects])
+            rule = self.rule
+            kinked = rule.min_estimate is not None and rule.min_estimate > rule.null_value
+            if not isinstance(rule, Significance) or kinked:
+                return np.vstack([self.power(float(e), n_t, n_c) for e in effects])
+            return self._t_powers(effects, geo)
         from ..compute.prior_predictive import prob_above_at_points
 
         se = self.endpoint.sigma * np.asarray(geo["se_factor"], dtype=float)
         return prob_above_at_points(effects, self.rule.threshold(se, self.rule.critical_z()),
                                     se)
+
+    def _t_powers(self, effects: np.ndarray, geo: dict[str, Any]) -> np.ndarray:
+        """A significance test's t power at several effects: one non-central t call for
+        all of them (the same numbers as :meth:`power`: ``nct_sf(t, df, (delta - A) / se)``,
+        the test's level at the null value itself)."""
+        from ..compute.normal_outcome import nct_sf
+
+        rule = self.rule
+        low = rule.null_value
+        se = self.endpoint.sigma * np.asarray(geo["se_factor"], dtype=float)
+        crit = np.broadcast_to(np.asarray(geo["critical"], dtype=float), se.shape)
+        df = np.asarray(geo["df"], dtype=float)
+        out = np.full((effects.size, se.size), float(rule.one_sided_alpha))
+        away = effects != low
+        if away.any():
+            rows = effects[away]
+            out[away] = nct_sf(crit[None, :], df[None, :], (rows[:, None] - low) / se[None, :])
+        return out
 
     def method(self) -> str:
         if self.monte_carlo:
