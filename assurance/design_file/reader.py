@@ -403,9 +403,9 @@ class _Builder:
             planned = t["sizes"].planned
             if endpoint is not _FAILED and planned is not None and \
                     planned < endpoint.smallest_total:
-                self.problems.add("sizes.planned", f"must be >= {endpoint.smallest_total} "
-                                  "(the fewest patients this analysis allows). Got "
-                                  f"{planned}.")
+                self.problems.add("", f"'sizes.planned' must be >= "
+                                  f"{endpoint.smallest_total} (the fewest patients this "
+                                  f"analysis allows). Got {planned}.")
         sensitivity = None
         if t["sensitivity"] is not _FAILED and t["sensitivity"].show:
             sensitivity = self.attempt("sensitivity", lambda: _sensitivity(t["sensitivity"]))
@@ -456,8 +456,8 @@ class _Builder:
         rule = _FAILED if t["success"] is _FAILED else self.attempt(
             "success", lambda: _rule(t["success"]))
         if effect is not _FAILED and effect.assumed is None:
-            self.problems.add("effect.assumed", "is required for an analysis model: classical "
-                              "power is simulated with the true effect at this value.")
+            self.problems.add("", "'effect.assumed' is required for an analysis model: "
+                              "classical power is simulated with the true effect at this value.")
         model = _FAILED
         if _ok(design_prior, effect) and effect.assumed is not None:
             model = self.attempt("endpoint", lambda: _general_model(
@@ -485,8 +485,8 @@ class _Builder:
             targets = {k: float(v) for k, v in t["targets"].model_dump().items()
                        if v is not None}
             if "conditional_assurance" in targets:
-                self.problems.add("targets.conditional_assurance", "is not available for an "
-                                  "analysis model (use 'assurance' or 'power').")
+                self.problems.add("", "'targets.conditional_assurance' is not available for "
+                                  "an analysis model (use 'assurance' or 'power').")
         mc = t["monte_carlo"]
         seed = 20260101 if mc is _FAILED else mc.seed
         simulation = t["simulation"]
