@@ -180,8 +180,8 @@ class _ContinuousCalculator(SuccessCalculator):
         geo = self._geometry(n_t, n_c)
         if geo["analysis"] != "z":
             rule = self.rule
-            kinked = rule.min_estimate is not None and rule.min_estimate > rule.null_value
-            if not isinstance(rule, Significance) or kinked:
+            if not isinstance(rule, Significance) or (
+                    rule.min_estimate is not None and rule.min_estimate > rule.null_value):
                 return np.vstack([self.power(float(e), n_t, n_c) for e in effects])
             return self._t_powers(effects, geo)
         from ..compute.prior_predictive import prob_above_at_points
