@@ -87,6 +87,8 @@ _PUBLIC = {
     "plan_model": "model_plan",
     "GeneralModel": "general.model",
     "simulate_general": "general.engine",
+    "solve_general_n": "general.engine",
+    "GeneralSizeAnswer": "general.engine",
     "SensitivitySettings": "sensitivity",
     "prior_sensitivity": "sensitivity",
     "prior_variations": "sensitivity",
@@ -159,6 +161,8 @@ __all__ = [
     "plan_model",
     "GeneralModel",
     "simulate_general",
+    "solve_general_n",
+    "GeneralSizeAnswer",
     "SensitivitySettings",
     "prior_sensitivity",
     "prior_variations",
@@ -173,7 +177,7 @@ if TYPE_CHECKING:  # pragma: no cover - for type checkers and editors only
     from .endpoints.counts import CountEndpoint, sample_size_for_rate_ratio, simulate_rejection_rate
     from .endpoints.survival import SurvivalEndpoint, events_needed
     from .errors import AssuranceInputError, AssuranceWarning, DesignFileError
-    from .general.engine import simulate_general
+    from .general.engine import GeneralSizeAnswer, simulate_general, solve_general_n
     from .general.model import GeneralModel
     from .joint import evaluate_joint
     from .model_plan import ModelPlan, plan_model

@@ -138,3 +138,22 @@ def test_a_fit_without_a_mode_is_counted_and_warned():
                               trials=2, chunk=2, nuts_check=0, power=False, progress=False)
     assert int(ds.not_converged[0]) == 2
     assert float(ds.assurance[0]) == 0.0  # a failed fit never counts as a success
+
+
+def test_a_step_outside_the_support_is_stepped_back_not_raised():
+    # A scale parameter far below its typical value underflows to 0 on a long Newton step;
+    # PyMC raises there (ParameterValueError). The fit must read it as log density -inf,
+    # step back and still reach the mode of the ANCOVA model (invented scenario).
+    from assurance.general.builtin import ancova
+
+    model = ancova(asr.Normal(4.0, 2.0), 4.0, sd=10.0, correlation=0.5)
+    data = model.simulate(np.random.default_rng(3), 50, 50, model.assumed)
+    fit = _compiled(model, 50, 50, data)
+    mean, sd, ok = fit.laplace(data)
+    assert ok and np.isfinite(mean) and sd > 0
+    x = fit._warm.copy()
+    x[:] = -800.0  # every unconstrained value far out: exp(-800) is 0 in double precision
+    lp = fit._guarded(x)[0]
+    assert lp == -np.inf
+    again_mean, _, again_ok = fit._newton(fit._warm.copy())
+    assert again_ok and again_mean == pytest.approx(mean, abs=1e-6)

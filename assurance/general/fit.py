@@ -213,7 +213,7 @@ class CompiledModel:
         return fit
 
     def _newton(self, x: np.ndarray) -> LaplaceFit:
-        full = self._full
+        full = self._guarded
         lp, g, h, eff, ge = full(x)
         if not math.isfinite(lp):
             return LaplaceFit(math.nan, math.nan, False)
@@ -249,6 +249,16 @@ class CompiledModel:
                 return LaplaceFit(float(eff), math.nan, False)
             x, lp, g, h, eff, ge = x_new, lp_new, g_new, h_new, eff_new, ge_new
         return LaplaceFit(float(eff), math.nan, False)
+
+    def _guarded(self, x: np.ndarray) -> tuple[Any, ...]:
+        """The compiled log density and its derivatives, with a point outside the model's
+        support (a scale that underflows to 0 on a long step, say) read as log density
+        minus infinity, so the line search steps back instead of failing the trial."""
+        try:
+            return self._full(x)
+        except (ValueError, FloatingPointError, ArithmeticError):  # pymc ParameterValueError
+            nan = np.full(x.size, math.nan)
+            return -math.inf, nan, np.full((x.size, x.size), math.nan), math.nan, nan
 
     # -- NUTS --------------------------------------------------------------------------------
     def nuts(self, data: Mapping[str, np.ndarray] | None = None, *, draws: int = 500,
