@@ -199,7 +199,8 @@ def evaluate(
         if calc.monte_carlo else [np.arange(n.size)]
     parts: list[dict[str, np.ndarray]] = []
     for done, idx in enumerate(chunks, start=1):
-        parts.append(calc.assurance(n_t[idx], n_c[idx]))
+        parts.append(calc.assurance(n_t[idx], n_c[idx]) if len(chunks) > 1
+                     else calc.assurance(n_t, n_c))
         if progress is not None:
             progress(done, len(chunks))
     per_n = parts[0] if len(parts) == 1 else \
@@ -674,7 +675,10 @@ def _require_finite(design: TrialDesign, values: dict[str, Any], n_total: np.nda
     """Raise :class:`AssuranceInputError` if any value is not finite (never expected once
     :func:`_check_scale` passed; a last guard so that NaN is never reported or compared)."""
     # probabilities lie in [0, 1], so their sum is finite exactly when every one is
-    if math.isfinite(np.add.reduce(np.concatenate([np.ravel(v) for v in values.values()]))):
+    total = 0.0
+    for v in values.values():
+        total += np.add.reduce(v, axis=None) if isinstance(v, np.ndarray) else v
+    if math.isfinite(total):
         return
     for name, value in values.items():
         arr = np.atleast_1d(np.asarray(value, dtype=float))
