@@ -53,6 +53,12 @@ def _parser() -> argparse.ArgumentParser:
     plan.add_argument("--svg", action="store_true",
                       help="also write each figure as SVG (PNG only by default)")
     plan.add_argument("-q", "--quiet", action="store_true", help="print nothing but errors")
+    plan.add_argument("--scheduler", metavar="ADDRESS",
+                      help="analysis models: spread the simulated trials over the Dask cluster "
+                           "at this scheduler address (overrides [simulation] scheduler)")
+    plan.add_argument("--workers", type=int, metavar="N",
+                      help="analysis models: simulate in N local worker processes "
+                           "(overrides [simulation] workers; 0: in this process)")
 
     check = sub.add_parser("check", help="read a design file and report problems only")
     check.add_argument("design", help="TOML design file")
@@ -241,8 +247,17 @@ def _plan(args: argparse.Namespace) -> int:
             from .planner import Plan
 
             spec = read_design_file(design_path)
+            if spec.model is None and (args.scheduler is not None or args.workers is not None):
+                raise AssuranceInputError(
+                    "The --scheduler and --workers options are for analysis models ([endpoint] "
+                    f"type = \"model\"); {design_path} describes a built-in endpoint, which "
+                    "needs no simulation cluster.")
             if spec.model is not None:  # an analysis model: simulated trials
+                from dataclasses import replace as _with
+
                 from .model_plan import ModelPlan
+
+                spec = _with(spec, simulation=_simulation(spec.simulation, args))
 
                 store = out.parent / f".{out.name}.finished-sizes"
                 progress("simulating trials (an interrupted run resumes from "
@@ -270,6 +285,28 @@ def _plan(args: argparse.Namespace) -> int:
     return 0
 
 
+def _simulation(table: Any, args: argparse.Namespace) -> Any:
+    """The [simulation] settings with the command line's --scheduler / --workers in force."""
+    from .errors import AssuranceInputError
+
+    changes: dict[str, Any] = {}
+    if args.scheduler is not None:
+        address = args.scheduler.strip()
+        if not address or len(address) > 300 or not address.isprintable():
+            raise AssuranceInputError(
+                "The --scheduler option must be a Dask scheduler address such as "
+                f"tcp://10.0.0.5:8786 (one line, at most 300 characters). Got "
+                f"{_visible(args.scheduler)!r:.80} instead.")
+        changes["scheduler"] = address
+    if args.workers is not None:
+        if not 0 <= args.workers <= 256:
+            raise AssuranceInputError(
+                "The --workers option must be a whole number from 0 to 256. Got "
+                f"{args.workers} instead.")
+        changes["workers"] = args.workers
+    return table.model_copy(update=changes) if changes else table
+
+
 def _command_line(args: argparse.Namespace) -> str:
     """The command as a user would type it again (quoted where needed)."""
     import shlex
@@ -279,6 +316,10 @@ def _command_line(args: argparse.Namespace) -> str:
         words += ["--out", args.out]
     words += [flag for flag, on in (("--overwrite", args.overwrite), ("--svg", args.svg),
                                     ("--quiet", args.quiet)) if on]
+    if getattr(args, "scheduler", None) is not None:
+        words += ["--scheduler", args.scheduler]
+    if getattr(args, "workers", None) is not None:
+        words += ["--workers", str(args.workers)]
     return " ".join(shlex.quote(_visible(w)) for w in words)
 
 

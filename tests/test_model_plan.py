@@ -146,3 +146,31 @@ def test_a_model_file_needs_its_sizes_and_an_assumed_effect(tmp_path):
 def test_plan_from_file_points_to_the_model_plan(design_file):
     with pytest.raises(asr.AssuranceInputError, match="ModelPlan.from_file"):
         asr.Plan.from_file(design_file)
+
+
+def test_command_line_workers_give_the_same_numbers(design_file, tmp_path, from_file):
+    out = tmp_path / "out"
+    assert main(["plan", str(design_file), "--out", str(out), "--quiet", "--workers", "2"]) == 0
+    rows = list(csv.DictReader((out / "results.csv").open(encoding="utf-8")))
+    assert [r["assurance"] for r in rows] == \
+        [f"{float(v):.6g}" for v in from_file.results.assurance.values]
+    assert "--workers 2" in (out / "memo.html").read_text(encoding="utf-8")
+
+
+@pytest.mark.parametrize("argv, words", [
+    (["--workers", "-1"], "--workers option must be a whole number from 0 to 256"),
+    (["--scheduler", " "], "--scheduler option must be a Dask scheduler address"),
+])
+def test_command_line_cluster_options_are_checked(design_file, tmp_path, capsys, argv,
+                                                   words):
+    out = tmp_path / "out"
+    assert main(["plan", str(design_file), "--out", str(out), "--quiet", *argv]) == 2
+    assert words in capsys.readouterr().err
+    assert not out.exists()
+
+
+def test_cluster_options_are_refused_for_built_in_endpoints(tmp_path, capsys):
+    root = Path(__file__).resolve().parents[1]
+    code = main(["plan", str(root / "case_studies" / "knee_pain" / "design.toml"), "--out",
+                 str(tmp_path / "out"), "--quiet", "--workers", "2"])
+    assert code == 2 and "are for analysis models" in capsys.readouterr().err

@@ -231,15 +231,20 @@ def _open_store(store: str | os.PathLike, settings: dict, fingerprint: str) -> P
             raise AssuranceInputError(
                 f"The 'store' folder {str(folder)!r} of {_OWNER} has an unreadable "
                 f"fingerprint.json ({exc}); use another folder.") from exc
-        if found.get("fingerprint") != fingerprint:
+        finished = [p for p in folder.iterdir() if p.name != marker.name]
+        if found.get("fingerprint") != fingerprint and not finished:
+            # nothing was finished under the other settings: nothing to keep
+            _atomic_write(marker, json.dumps({"fingerprint": fingerprint, "settings": settings},
+                                             sort_keys=True, indent=1, default=repr).encode())
+        elif found.get("fingerprint") != fingerprint:
             old = found.get("settings", {})
             changed = sorted(k for k in set(old) | set(settings)
                              if json.dumps(old.get(k), sort_keys=True, default=repr)
                              != json.dumps(settings.get(k), sort_keys=True, default=repr))
             raise AssuranceInputError(
-                f"The 'store' folder {str(folder)!r} of {_OWNER} holds results of other "
-                f"settings (different: {', '.join(changed) or 'layout'}); they are kept. Use "
-                "another folder, or delete this one to start again.")
+                f"The folder {str(folder)!r} keeps the finished sizes of an earlier run with "
+                f"other settings (different: {', '.join(changed) or 'layout'}); they are kept. "
+                "Run with those settings to resume it, or delete the folder to start again.")
     else:
         _atomic_write(marker, json.dumps({"fingerprint": fingerprint, "settings": settings},
                                          sort_keys=True, indent=1, default=repr).encode())
