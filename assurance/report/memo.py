@@ -889,8 +889,9 @@ def _date_text(date: _dt.date | str | None) -> str:
     )
 
 
-@functools.lru_cache(maxsize=1)
-def _template() -> Any:
+@functools.lru_cache(maxsize=4)
+def _template(name: str = "memo.html") -> Any:
+    """A memo template (``templates/``), autoescaped, strict about missing values."""
     import jinja2
 
     env = jinja2.Environment(
@@ -899,7 +900,7 @@ def _template() -> Any:
         undefined=jinja2.StrictUndefined,
         # control characters, line separators and direction overrides become visible escapes
         finalize=lambda v: printable(v, line_breaks=True) if isinstance(v, str) else v)
-    return env.get_template("memo.html")
+    return env.get_template(name)
 
 
 def _render(parts: _Parts, *, cautions: Sequence[str], versions: str | None,

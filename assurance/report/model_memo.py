@@ -10,7 +10,6 @@ quantities that were not simulated read "not simulated", never as a missing numb
 from __future__ import annotations
 
 import datetime as _dt
-import functools
 import hashlib
 import math
 import os
@@ -24,7 +23,15 @@ import numpy as np
 from ..errors import AssuranceInputError
 from . import wording as wd
 from ._files import check_target, printable, write_atomic
-from .memo import DEFAULT_CAUTIONS, _date_text, _figure, _nearest, _seed_text, _versions_text
+from .memo import (
+    DEFAULT_CAUTIONS,
+    _date_text,
+    _figure,
+    _nearest,
+    _seed_text,
+    _template,
+    _versions_text,
+)
 
 __all__ = ["model_memo_html", "write_model_memo"]
 
@@ -377,18 +384,6 @@ def _provenance(plan: Any, ds: Any, date: str) -> list[tuple[str, str]]:
 # ------------------------------------------------------------------------------------------
 # the page
 # ------------------------------------------------------------------------------------------
-@functools.lru_cache(maxsize=1)
-def _template() -> Any:
-    import jinja2
-
-    env = jinja2.Environment(
-        loader=jinja2.FileSystemLoader(str(Path(__file__).with_name("templates"))),
-        autoescape=True, trim_blocks=True, lstrip_blocks=True,
-        undefined=jinja2.StrictUndefined,
-        finalize=lambda v: printable(v, line_breaks=True) if isinstance(v, str) else v)
-    return env.get_template("model_memo.html")
-
-
 def _check_plan(plan: Any, owner: str) -> None:
     needed = ("model", "rule", "results", "sample_sizes")
     ds = getattr(plan, "results", None)
@@ -510,7 +505,7 @@ def model_memo_html(
         "recorded": None if record is None else str(record),
         "cautions": cautions,
     }
-    return _template().render(**context)
+    return _template("model_memo.html").render(**context)
 
 
 def _package_version() -> str:
