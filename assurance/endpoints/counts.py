@@ -41,6 +41,7 @@ __all__ = [
 Layout = Literal["two_arm", "single_arm"]
 VarianceAt = Literal["true_effect", "planning_ratio"]
 TestVariance = Literal["observed_rates", "pooled_null"]
+CountTest = Literal["wald", "exact_conditional"]
 
 #: Gauss-Legendre rule on [-1, 1] for the average over follow-up times cut by dropout.
 _GL_X, _GL_W = np.polynomial.legendre.leggauss(64)
@@ -93,6 +94,14 @@ class CountEndpoint(Endpoint):
         ``"pooled_null"``: variance with both arms at the rates expected under the null
         hypothesis, estimated by pooling the events (their approach 2); needs
         ``variance_at="true_effect"``.
+    test
+        ``"wald"`` (default): the Wald test on the log rate ratio described below.
+        ``"exact_conditional"``: the conditional exact test for Poisson counts -- given the
+        total number of events, the treatment arm's count is binomial, and the trial
+        succeeds when its one-sided binomial tail under the null rate ratio is at most the
+        level; power is then exact (enumeration, :mod:`assurance.compute.poisson_exact`).
+        Needs two arms, Poisson counts (``overdispersion=0``), no dropout, no control-rate
+        prior and the default variance settings (which it does not use).
     control_rate_prior
         Optional prior on the control rate (all mass on rates > 0, e.g.
         ``FromScipy(scipy.stats.gamma(a=40, scale=0.02))``). Assurance then averages over
@@ -128,6 +137,18 @@ class CountEndpoint(Endpoint):
     with ``"planning_ratio"`` the standard error is frozen, which gives the closed form
     ``Phi((m - c) / sqrt(v + se^2))`` for a normal prior (O'Hagan, Stevens & Campbell 2005).
 
+    With ``test="exact_conditional"`` (Poisson counts, every patient followed for
+    ``follow_up``), the totals are ``X_t ~ Poisson(n_t mu_t)`` and ``X_c ~ Poisson(n_c mu_c)``,
+    ``mu = lambda * follow_up``; given ``S = X_t + X_c``, ``X_t ~ Binomial(S, p)`` with
+    ``p = n_t mu_t / (n_t mu_t + n_c mu_c)``, and under the null rate ratio ``RR_0`` (1, or
+    the non-inferiority margin) ``p_0 = n_t RR_0 / (n_t RR_0 + n_c)``. With lower rates
+    better the trial succeeds when ``P(Binomial(S, p_0) <= X_t) <= alpha`` (mirrored with
+    higher rates better), and also, with a minimum estimate, when the observed rate ratio
+    passes it. Power is ``sum_S Poisson(S; n_t mu_t + n_c mu_c) P(success | S)``, summed
+    over all totals but a Poisson mass below 1e-13 (Przyborowski & Wilenski 1940); the
+    test never exceeds its level and is conservative, by a saw-toothed amount. Assurance
+    averages this power over the design prior by the same adaptive quadrature.
+
     The normal approximation is good for two arms with some tens of events per arm
     (simulated Wald tests agree within about a percentage point at 80-100 expected events
     per arm). For one arm against a fixed rate, the Wald statistic's own standard error
@@ -139,6 +160,8 @@ class CountEndpoint(Endpoint):
     ----------
     Zhu H, Lakkis H (2014). Sample size calculation for comparing two negative binomial
     rates. Statistics in Medicine 33(3):376-387.
+    Przyborowski J, Wilenski H (1940). Homogeneity of results in testing samples from
+    Poisson series. Biometrika 31:313-323.
     Lawless JF (1987). Negative binomial and mixed Poisson regression. Canadian Journal of
     Statistics 15(3):209-225.
     O'Hagan A, Stevens JW, Campbell MJ (2005). Assurance in clinical trial design.
@@ -165,6 +188,7 @@ class CountEndpoint(Endpoint):
     variance_at: VarianceAt = "true_effect"
     planning_rate_ratio: float | None = None
     test_variance: TestVariance = "observed_rates"
+    test: CountTest = "wald"
     control_rate_prior: Prior | None = None
     time_unit: Literal["days", "weeks", "months", "years"] | None = None
 
@@ -194,11 +218,42 @@ class CountEndpoint(Endpoint):
                 "variance_at='true_effect': with both standard errors frozen at one planning "
                 "ratio, the test would not keep its level where the treatment does nothing. "
                 "Got 'pooled_null' with variance_at='planning_ratio'.")
+        check_choice(self.test, "test", _OWNER, ["wald", "exact_conditional"])
+        if self.test == "exact_conditional":
+            self._check_exact()
         if self.control_rate_prior is not None:
             _check_rate_prior(self.control_rate_prior)
         if self.time_unit is not None:
             check_choice(self.time_unit, "time_unit", _OWNER,
                          ["days", "weeks", "months", "years"])
+
+    def _check_exact(self) -> None:
+        """The settings under which the conditional test's power is exact."""
+        needs = [
+            (self.layout == "two_arm", f"layout={self.layout!r}",
+             "it compares two arms (one arm against a fixed rate has no total to condition "
+             "on)"),
+            (self.overdispersion == 0, f"overdispersion={self.overdispersion!r}",
+             "given the total, the treatment count is binomial only for Poisson counts "
+             "(overdispersion 0)"),
+            (self.dropout_rate == 0, f"dropout_rate={self.dropout_rate!r}",
+             "with dropout each patient's follow-up is random, so the null share of events "
+             "depends on the observed follow-up times and the power is no longer a finite "
+             "sum (dropout 0 gives every patient the planned follow-up)"),
+            (self.variance_at == "true_effect" and self.planning_rate_ratio is None
+             and self.test_variance == "observed_rates",
+             f"variance_at={self.variance_at!r}, planning_rate_ratio="
+             f"{self.planning_rate_ratio!r}, test_variance={self.test_variance!r}",
+             "the exact test uses no variance, so these settings must keep their defaults "
+             "('true_effect', None, 'observed_rates')"),
+            (self.control_rate_prior is None, "a control_rate_prior",
+             "the exact power is computed at the planning control rate only"),
+        ]
+        for ok, got, why in needs:
+            if not ok:
+                raise AssuranceInputError(
+                    f"The 'test' parameter of {_OWNER} can be 'exact_conditional' only when "
+                    f"{why}. Got test='exact_conditional' with {got}.")
 
     # ---- geometry ----------------------------------------------------------------------
     @property
@@ -276,6 +331,16 @@ class CountEndpoint(Endpoint):
         rate_prior = self.control_rate_prior if nuisance is None else nuisance
         if rate_prior is not None:
             _check_rate_prior(rate_prior)
+            if self.test == "exact_conditional":
+                raise AssuranceInputError(
+                    f"A prior on the control rate cannot be used with test="
+                    f"'exact_conditional' of {_OWNER}: the exact power is computed at the "
+                    "planning control rate only. Use test='wald' or drop the prior.")
+        if self.test == "exact_conditional" and not isinstance(rule_benefit, Significance):
+            raise AssuranceInputError(
+                f"The exact conditional test of {_OWNER} decides by significance; the rule "
+                f"{rule_benefit.describe()!r} is not a Significance rule. Use test='wald' "
+                "for posterior-probability rules.")
         return _CountCalculator(self, prior_benefit, rule_benefit, rate_prior, draws, seed)
 
     def extra_coords(self, n_t: np.ndarray, n_c: np.ndarray) -> dict[str, np.ndarray]:
@@ -293,7 +358,7 @@ class CountEndpoint(Endpoint):
                      f"(mean exposure {self.mean_exposure:.3g})")
         rate = ("control rate" if self.layout == "two_arm" else "fixed reference rate")
         text = (f"event counts, {model}; {rate} {self.control_rate:g} per unit time, {time}; "
-                f"{self.layout_text()}; Wald test on the log rate ratio")
+                f"{self.layout_text()}; {_TEST_TEXT[self.test]}")
         if self.test_variance == "pooled_null":
             text += " (variance at the pooled null rates)"
         if self.control_rate_prior is not None:
@@ -307,11 +372,18 @@ class CountEndpoint(Endpoint):
             "mean_exposure": self.mean_exposure, "layout": self.layout,
             "allocation": self.allocation, "better": self.better,
             "variance_at": self.variance_at, "planning_rate_ratio": self.planning_rate_ratio,
-            "test_variance": self.test_variance,
+            "test_variance": self.test_variance, "test": self.test,
             "control_rate_prior": (None if self.control_rate_prior is None
                                    else self.control_rate_prior.to_dict()),
             "time_unit": self.time_unit,
         }
+
+
+_TEST_TEXT = {
+    "wald": "Wald test on the log rate ratio",
+    "exact_conditional": ("exact conditional test (binomial split of the total events, "
+                          "power by exact enumeration)"),
+}
 
 
 def _check_rate_prior(prior: Any) -> None:
@@ -353,6 +425,8 @@ class _CountCalculator(SuccessCalculator):
     # P(success | true benefit delta, control rate), broadcasting over draws and sizes
     def _conditional(self, delta, lam_c, n_t, n_c):
         ep = self.endpoint
+        if ep.test == "exact_conditional":
+            return self._exact(delta, n_t, n_c)
         if ep.variance_at == "true_effect":
             log_rr = ep.sign * np.asarray(delta, dtype=float)
         else:
@@ -361,6 +435,35 @@ class _CountCalculator(SuccessCalculator):
         se1, se0 = np.sqrt(var1), np.sqrt(var0)
         c = self.rule.threshold(se0, self.crit)
         return special.ndtr((delta - c) / se1)
+
+    def _exact(self, delta, n_t, n_c):
+        """Exact power of the conditional test at benefit ``delta`` (sizes broadcast)."""
+        from ..compute.poisson_exact import CriticalTable, conditional_power
+
+        ep, rule = self.endpoint, self.rule
+        n_t, n_c = np.broadcast_arrays(np.asarray(n_t, float), np.asarray(n_c, float))
+        log_rr = ep.sign * float(delta)
+        mu_c = ep.control_rate * ep.follow_up
+        lam_t = n_t * mu_c * math.exp(min(max(log_rr, -_LOG_RR_LIMIT), _LOG_RR_LIMIT))
+        lam_c = n_c * mu_c
+        ratio0 = math.exp(self.null_log_rr)
+        # the arm whose count is small when the treatment works, and its null share
+        if ep.sign < 0:
+            n_y, n_o, lam_y, lam_o = n_t * ratio0, n_c, lam_t, lam_c
+        else:
+            n_y, n_o, lam_y, lam_o = n_c, n_t * ratio0, lam_c, lam_t
+        q0 = n_y / (n_y + n_o)
+        share = None
+        if rule.min_estimate is not None:
+            # benefit estimate log((S - y) / n_other) - log(y / n_y) > m  <=>  y < b S
+            n_ys, n_os = (n_t, n_c) if ep.sign < 0 else (n_c, n_t)
+            share = n_ys / (n_ys + n_os * math.exp(rule.min_estimate))
+        key = (n_t.tobytes(), n_c.tobytes())
+        if getattr(self, "_critical_key", None) != key:
+            self._critical_key = key
+            self._critical = CriticalTable(q0, rule.one_sided_alpha, share)
+        return conditional_power(lam_y, lam_o, q0, rule.one_sided_alpha, share,
+                                 critical=self._critical).reshape(n_t.shape)
 
     def success(self, n_t, n_c, cuts):
         from ..compute.normal_outcome import exact_success
@@ -442,6 +545,8 @@ class _CountCalculator(SuccessCalculator):
         ep = self.endpoint
         n_t = np.asarray(n_t, dtype=float)
         n_c = np.asarray(n_c, dtype=float)
+        if ep.test == "exact_conditional":
+            return self._exact(delta, n_t, n_c)
         var1, var0 = ep._variances(np.full(n_t.shape, ep.sign * delta), ep.control_rate,
                                    n_t, n_c, self.null_log_rr)
         c = self.rule.threshold(np.sqrt(var0), self.crit)
@@ -457,6 +562,9 @@ class _CountCalculator(SuccessCalculator):
             kinds = {type(part).__name__ for _, part in self.prior.parts()}
             base = ("closed form" if kinds <= {"Normal", "PointMass"}
                     else "adaptive quadrature over the prior")
+        if ep.test == "exact_conditional":
+            return (f"{base}; exact conditional test on the split of the total events, "
+                    "power by exact enumeration (Poisson tail below 1e-13 left out)")
         where = ("at each true rate ratio" if ep.variance_at == "true_effect"
                  else "at the planning rate ratio")
         test = ("Wald test" if ep.test_variance == "observed_rates"
@@ -605,7 +713,9 @@ def simulate_rejection_rate(
     * ``"poisson"``: rates = events / exposure, ``Var(log rate) = 1 / events``.
 
     The test follows ``endpoint.test_variance`` (for ``"pooled_null"`` the null rates are
-    the pooled events over the pooled exposure) and ``rule`` (natural scale, one-sided 0.025
+    the pooled events over the pooled exposure); with ``endpoint.test="exact_conditional"``
+    each trial is decided by the conditional exact test on its two event totals instead
+    (``analysis`` is then not used). The rule is ``rule`` (natural scale, one-sided 0.025
     by default, margins and minimum estimates as in :class:`~assurance.rules.Significance`).
 
     Parameters
@@ -663,6 +773,9 @@ def simulate_rejection_rate(
     for start in range(0, trials, chunk):
         m = min(chunk, trials - start)
         data = [_simulate_arm(endpoint, rng, m, n, lam) for n, lam in arm_specs]
+        if endpoint.test == "exact_conditional":
+            successes += int(_exact_decisions(endpoint, rule_b, data, n_t, n_c).sum())
+            continue
         ok, d, _var1, var0 = _analyse(endpoint, data, analysis, null_log_rr, lam_c)
         se0 = np.sqrt(np.where(ok, var0, 1.0))
         passed = ok & (endpoint.sign * d > rule_b.threshold(se0, crit))
@@ -674,6 +787,22 @@ def simulate_rejection_rate(
                                  np.array([n_c]))[0])
     return SimulatedPower(rejection_rate=p, mcse=math.sqrt(max(p * (1 - p), 0.0) / trials),
                           trials=trials, undefined=undefined, predicted_power=predicted)
+
+
+def _exact_decisions(ep: CountEndpoint, rule: Significance, data, n_t: int, n_c: int
+                     ) -> np.ndarray:
+    """Decisions of the conditional exact test on simulated event totals (two arms)."""
+    from ..compute.poisson_exact import critical_counts
+
+    x_t, x_c = (y.sum(axis=1).astype(float) for y, _ in data)
+    ratio0 = math.exp(ep.sign * rule.null_value)
+    if ep.sign < 0:
+        y, q0, n_y, n_o = x_t, n_t * ratio0 / (n_t * ratio0 + n_c), n_t, n_c
+    else:
+        y, q0, n_y, n_o = x_c, n_c / (n_c + n_t * ratio0), n_c, n_t
+    share = (None if rule.min_estimate is None
+             else n_y / (n_y + n_o * math.exp(rule.min_estimate)))
+    return y <= critical_counts(x_t + x_c, q0, rule.one_sided_alpha, share)
 
 
 def _simulate_arm(ep: CountEndpoint, rng: np.random.Generator, m: int, n: int, lam: float
