@@ -1114,6 +1114,11 @@ def plot_sensitivity_map(ds: Any, design: TrialDesign | None = None, ax: Axes | 
                 markeredgecolor=_BLACK, linestyle="none", zorder=5)
         labels.append(Label("elicited prior", (float(m), float(sd)), around(),
                             style={"fontsize": 9, "bbox": _TEXT_BOX}))
+    holes = bool(np.ma.count_masked(grid))  # beta priors: not every centre and spread exists
+    if holes:
+        ax.patch.set_facecolor("white")
+        ax.patch.set_hatch("////")
+        ax.patch.set_edgecolor("#b8bec4")
     lo, hi = float(centres.min()), float(centres.max())
     ax.set_xlim(lo, hi)
     ax.set_ylim(float(spreads.min()), float(spreads.max()))
@@ -1130,6 +1135,9 @@ def plot_sensitivity_map(ds: Any, design: TrialDesign | None = None, ax: Axes | 
         ax.set_xlabel(f"Prior centre: {name}{where} ({unit})", fontsize=10.5,
                       parse_math=False)
         ax.set_ylabel(f"Prior spread: SD ({unit})", fontsize=10.5, parse_math=False)
+    if holes:
+        ax.set_xlabel(ax.get_xlabel() + "\nhatched: no beta prior on the treatment rate has "
+                      "this centre and spread", fontsize=10.5, parse_math=False)
     ax.set_title(_title(ds.attrs.get("title", ""),
                         "how the chance of success moves with the prior"),
                  fontsize=11.5, loc="left", parse_math=False)
