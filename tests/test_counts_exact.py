@@ -274,3 +274,20 @@ def test_bad_test_name_and_posterior_rule_are_refused():
     with pytest.raises(AssuranceInputError, match="not a Significance rule"):
         evaluate(TrialDesign(ep, PointMass(math.log(0.7)),
                              rule=PosteriorProbability(0.975)), [100])
+
+
+def test_design_file_key_test():
+    from assurance.design_file import endpoint_from_table
+    from assurance.errors import DesignFileError
+
+    table = {"type": "counts", "control_rate": 0.6, "follow_up": 2.0,
+             "test": "exact_conditional"}
+    ep = endpoint_from_table(table, "trial.toml")
+    assert ep.test == "exact_conditional"
+    assert endpoint_from_table(table | {"test": "wald"}, "trial.toml").test == "wald"
+    assert endpoint_from_table({k: v for k, v in table.items() if k != "test"},
+                               "trial.toml").test == "wald"
+    with pytest.raises(DesignFileError, match="'endpoint.test'"):
+        endpoint_from_table(table | {"test": "score"}, "trial.toml")
+    with pytest.raises(DesignFileError, match="'endpoint.test'.*overdispersion"):
+        endpoint_from_table(table | {"overdispersion": 0.5}, "trial.toml")

@@ -582,7 +582,7 @@ def _endpoint(table: Any, effect: Any, builder: _Builder | None) -> Any:
                          **{k: getattr(table, k) for k in (
                              "overdispersion", "dropout_rate", "layout", "allocation",
                              "better", "variance_at", "planning_rate_ratio",
-                             "test_variance", "time_unit")})
+                             "test_variance", "test", "time_unit")})
 
 
 def _rule(table: Any) -> Any:

@@ -566,6 +566,9 @@ class CountsTable(Table):
     test_variance: Literal["observed_rates", "pooled_null"] = key(
         "observed_rates", "Variance in the test statistic: at the observed rates or at the "
         "pooled rates under no effect.")
+    test: Literal["wald", "exact_conditional"] = key(
+        "wald", "Wald test on the log rate ratio, or the exact conditional test (two arms, "
+        "Poisson counts, no dropout; exact power).")
     control_rate_prior: PriorTable | None = key(
         None, "Prior on the control rate (a table written like any prior).",
         scale="events per patient-time unit")
