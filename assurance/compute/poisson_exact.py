@@ -14,8 +14,9 @@ Power at true expected counts is
 
 ``sum_S Poisson(S; lam_y + lam_o) * P(Binomial(S, q) <= k(S))``,
 
-summed over ``S`` from the ``5e-14`` quantile to the ``1 - 5e-14`` quantile of the
-Poisson total, so that the omitted Poisson mass is below ``1e-13``; vectorised over any
+summed over ``S`` between bounds outside which the Poisson total has mass below ``1e-13``
+(sub-gamma tail bounds for the Poisson distribution, Boucheron, Lugosi & Massart 2013,
+section 2.4); vectorised over any
 broadcast shape of ``lam_y, lam_o, q0``. Above :data:`ENUMERATION_LIMIT` expected events the
 normal limit of the same test is used instead (only far prior tails reach it in practice).
 
@@ -23,10 +24,13 @@ References
 ----------
 Przyborowski J, Wilenski H (1940). Homogeneity of results in testing samples from Poisson
 series. Biometrika 31:313-323 (the conditional binomial test of two Poisson means).
+Boucheron S, Lugosi G, Massart P (2013). Concentration Inequalities. Oxford University
+Press (Poisson tail bounds).
 """
 
 from __future__ import annotations
 
+import math
 from typing import Any
 
 import numpy as np
@@ -156,8 +160,6 @@ def conditional_power(lam_y: Any, lam_o: Any, q0: Any, alpha: float,
     >>> round(float(conditional_power(20.0, 40.0, 0.5, 0.025)), 4)
     0.702
     """
-    from scipy import stats
-
     lam_y, lam_o, q0 = np.broadcast_arrays(*(np.asarray(a, dtype=float)
                                              for a in (lam_y, lam_o, q0)))
     shape = lam_y.shape
@@ -174,8 +176,12 @@ def conditional_power(lam_y: Any, lam_o: Any, q0: Any, alpha: float,
     small = ~big
     if small.any():
         lam, qs, q0s = total[small], q[small], q0[small]
-        lo = stats.poisson.ppf(TAIL / 2, lam)
-        hi = stats.poisson.isf(TAIL / 2, lam)
+        # Poisson tails (Boucheron, Lugosi & Massart 2013, sub-gamma bounds): with
+        # u = log(2 / TAIL), P(S >= L + sqrt(2 L u) + u / 3) <= TAIL / 2 and
+        # P(S <= L - sqrt(2 L u)) <= TAIL / 2
+        u = math.log(2.0 / TAIL)
+        lo = np.maximum(np.ceil(lam - np.sqrt(2 * lam * u)), 0.0)
+        hi = np.floor(lam + np.sqrt(2 * lam * u) + u / 3)
         width = int(np.max(hi - lo)) + 1
         s = lo[:, None] + np.arange(width)[None, :]
         keep = s <= hi[:, None]
