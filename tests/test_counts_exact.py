@@ -27,6 +27,8 @@ from fractions import Fraction
 
 import numpy as np
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 from scipy import integrate, stats
 from statsmodels.stats import rates as sm_rates
 
@@ -291,3 +293,27 @@ def test_design_file_key_test():
         endpoint_from_table(table | {"test": "score"}, "trial.toml")
     with pytest.raises(DesignFileError, match="'endpoint.test'.*overdispersion"):
         endpoint_from_table(table | {"overdispersion": 0.5}, "trial.toml")
+
+
+@settings(max_examples=60, deadline=None)
+@given(s=st.integers(0, 3000), q0=st.floats(0.02, 0.98), alpha=st.floats(0.001, 0.2))
+def test_critical_count_is_the_largest_passing_count(s, q0, alpha):
+    # definition, checked with scipy.stats.binom.cdf: P(<= k) <= alpha < P(<= k + 1)
+    k = int(critical_counts(s, q0, alpha))
+    assert -1 <= k <= s
+    if k >= 0:
+        assert stats.binom.cdf(k, s, q0) <= alpha
+    if k < s:
+        assert stats.binom.cdf(k + 1, s, q0) > alpha
+
+
+def test_normal_limit_beyond_enumeration_is_close_to_it():
+    # above ENUMERATION_LIMIT expected events the normal limit of the test is used; just
+    # either side of the switch the two agree within 0.002 (and the limit has level alpha)
+    from assurance.compute.poisson_exact import ENUMERATION_LIMIT, conditional_power
+
+    for ratio in (0.985, 0.99, 1.0):
+        total = ENUMERATION_LIMIT * np.array([1 - 1e-6, 1 + 1e-6])
+        p = conditional_power(total * ratio / (1 + ratio), total / (1 + ratio), 0.5, ALPHA)
+        assert abs(p[1] - p[0]) < 0.002
+    assert p[1] == pytest.approx(ALPHA, abs=1e-12)

@@ -146,8 +146,11 @@ class CountEndpoint(Endpoint):
     higher rates better), and also, with a minimum estimate, when the observed rate ratio
     passes it. Power is ``sum_S Poisson(S; n_t mu_t + n_c mu_c) P(success | S)``, summed
     over all totals but a Poisson mass below 1e-13 (Przyborowski & Wilenski 1940); the
-    test never exceeds its level and is conservative, by a saw-toothed amount. Assurance
-    averages this power over the design prior by the same adaptive quadrature.
+    test never exceeds its level given any total, so not overall either (it is
+    conservative). Beyond 100,000 expected events in all (in practice only far tails of a
+    prior) the normal limit of the same test replaces the enumeration, within about 0.001
+    of it there. Assurance averages this power over the design prior by the same adaptive
+    quadrature.
 
     The normal approximation is good for two arms with some tens of events per arm
     (simulated Wald tests agree within about a percentage point at 80-100 expected events
