@@ -157,9 +157,9 @@ class CountEndpoint(Endpoint):
     in either direction, at 80-100 expected events per arm (e.g. 0.9052 by the formula
     against 0.9122 +/- 0.0020 simulated); where that matters, use the exact conditional test
     (Poisson) or check with :func:`simulate_rejection_rate`. For one arm against a fixed
-    rate, the Wald statistic's own standard error varies with the data and the true power can exceed the formula by a few points
-    (about 0.94 against 0.90 at 84 expected events); check with
-    :func:`simulate_rejection_rate`.
+    rate, the Wald statistic's own standard error varies with the data and the true power
+    can exceed the formula by a few points (about 0.94 against 0.90 at 84 expected events);
+    check with :func:`simulate_rejection_rate`.
 
     References
     ----------
