@@ -893,13 +893,16 @@ def _date_text(date: _dt.date | str | None) -> str:
 def _template(name: str = "memo.html") -> Any:
     """A memo template (``templates/``), autoescaped, strict about missing values."""
     import jinja2
+    import markupsafe
 
     env = jinja2.Environment(
         loader=jinja2.FileSystemLoader(str(Path(__file__).with_name("templates"))),
         autoescape=True, trim_blocks=True, lstrip_blocks=True,
         undefined=jinja2.StrictUndefined,
         # control characters, line separators and direction overrides become visible escapes
-        finalize=lambda v: printable(v, line_breaks=True) if isinstance(v, str) else v)
+        # (a macro's output is already-safe markup built from finalized values: kept as is)
+        finalize=lambda v: v if isinstance(v, markupsafe.Markup) or not isinstance(v, str)
+        else printable(v, line_breaks=True))
     return env.get_template(name)
 
 
