@@ -244,3 +244,23 @@ def test_nuts_on_every_trial_reports_nuts():
     # NUTS widths (arviz.hdi of 100 draws) near the exact 2 z_0.975 sigma sqrt(1/10 + 1/10)
     exact = 2 * stats.norm.ppf(0.975) * SIGMA * math.sqrt(0.2)
     assert abs(float(ds.width_mean[0]) / exact - 1) < 0.35
+
+
+def test_every_size_sees_the_same_truths():
+    # common random numbers: the k-th trial of each size draws the same true values (so the
+    # curves over sizes are smooth); other chunks, scenarios and seeds draw other ones
+    from assurance.general.engine import ChunkSpec, run_chunk
+
+    model = normal_model()
+    rule = asr.PosteriorProbability(0.975)
+
+    def truths(n: int, key: tuple, seed: int = 11) -> np.ndarray:
+        spec = ChunkSpec(model, rule, n, 8, (seed, (n, *key)), "prior", 0, 0.95)
+        return run_chunk(spec).truth_effect
+
+    first = truths(20, (0, 0))
+    assert np.array_equal(first, truths(120, (0, 0)))
+    assert not np.array_equal(first, truths(20, (0, 1)))
+    assert not np.array_equal(first, truths(20, (0, 0), seed=12))
+    # and the draws are the design prior's: N(0.5, 0.5) (a loose check on 8 values)
+    assert abs(first.mean() - 0.5) < 4 * 0.5 / math.sqrt(8)

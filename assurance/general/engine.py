@@ -2,8 +2,12 @@
 simulation over trial sizes.
 
 At each size, trials are simulated in fixed chunks (``chunk`` trials per task), each with its
-own seed stream, ``SeedSequence(seed, spawn_key=(n, scenario, chunk index))``, so the numbers
-depend neither on how many workers run the tasks nor on which other sizes are in the grid.
+own seed streams, so the numbers depend neither on how many workers run the tasks nor on
+which other sizes are in the grid. The true values come from
+``SeedSequence(seed, spawn_key=(TRUTHS, scenario, chunk index))``, the same at every size
+(common random numbers: the k-th trial of every size sees the same truth, so the curves over
+sizes are smooth and the size reaching a target is steady); the data and the NUTS seeds come
+from ``SeedSequence(seed, spawn_key=(n, scenario, chunk index))``.
 Every trial: draw the truth (from the design prior, or fixed at the assumed values for
 classical power), simulate the data, fit the analysis model by the Laplace approximation
 (NUTS on a random subset, or on every trial when asked), apply the rule, record the
@@ -45,7 +49,10 @@ _SCENARIOS = ("prior", "assumed")
 #: a run warns.
 AGREEMENT_LIMIT = 3.0
 #: Version of the stored-result layout (part of the fingerprint).
-_STORE_VERSION = 1
+_STORE_VERSION = 2  # 2: the truths are common to every size (stores of 1 are refused)
+
+#: the first spawn-key word of the truth streams (no size is this large)
+TRUTHS = 2**32 - 1
 
 
 @dataclass(frozen=True)
@@ -124,8 +131,9 @@ def _compiled(model: GeneralModel, n_t: int, n_c: int, data: dict) -> Any:
 def run_chunk(spec: ChunkSpec) -> ChunkResult:
     """Simulate and fit one chunk of trials (the task function of :func:`simulate_general`).
 
-    The chunk's seed is ``SeedSequence(entropy, spawn_key=key)`` for ``spec.seed =
-    (entropy, key)``, split into three streams: the truths, the data, and the NUTS seeds.
+    For ``spec.seed = (entropy, key)`` with ``key = (n, scenario, chunk)``, the data and the
+    NUTS seeds come from ``SeedSequence(entropy, spawn_key=key)``; the truths from
+    ``SeedSequence(entropy, spawn_key=(TRUTHS, scenario, chunk))``, the same at every size.
     The Laplace fits start from the model's initial point at the chunk's first trial, so a
     chunk's numbers do not depend on what the worker ran before. See
     :func:`simulate_general` for an example.
@@ -134,7 +142,9 @@ def run_chunk(spec: ChunkSpec) -> ChunkResult:
 
     model = spec.model
     entropy, key = spec.seed
-    truth_ss, data_ss, nuts_ss = np.random.SeedSequence(entropy, spawn_key=tuple(key)).spawn(3)
+    _, data_ss, nuts_ss = np.random.SeedSequence(entropy, spawn_key=tuple(key)).spawn(3)
+    # the same truths at every size: the size's place in the key is replaced
+    truth_ss = np.random.SeedSequence(entropy, spawn_key=(TRUTHS, *tuple(key)[1:]))
     truth_rng = np.random.default_rng(truth_ss)
     data_rng = np.random.default_rng(data_ss)
     nuts_seeds = np.random.default_rng(nuts_ss).integers(0, 2**31 - 1, size=spec.trials)
