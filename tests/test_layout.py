@@ -29,10 +29,13 @@ LAYERS: list[tuple[str, ...]] = [
     ("assurance.planning", "assurance.joint", "assurance.simulation"),    # evaluate, solve,
     ("assurance.general",),                                               # any PyMC model
     ("assurance.sensitivity",),                                           # vary the prior
+    ("assurance.program",),                                               # programs, interim
+                                                                          # looks, portfolios
     ("assurance.workflow",),                                              # the plan's steps
     ("assurance.design_file",),                                           # the file format
     ("assurance.report",),                                                # memo, figures, folder
-    ("assurance.planner", "assurance.model_plan"),                        # the Plan
+    ("assurance.planner", "assurance.model_plan", "assurance.program_plan",
+     "assurance.interim_plan", "assurance.portfolio_plan"),               # the Plan objects
     ("assurance.cli",),                                                   # the shell
 ]
 

@@ -607,7 +607,7 @@ def write_outputs(out: str | os.PathLike[str], plan: Plan, *, overwrite: bool = 
     results.csv results.nc sample_sizes.csv sensitivity.csv sensitivity_map.csv
     """
     formats = _check_formats(formats, "write_outputs")
-    keep = [plan.source.path] if plan.source is not None else []
+    keep = _inputs_of(plan)
     own = claim is None
     if claim is None:
         claim = claim_output_folder(out, overwrite=overwrite, keep=keep)
@@ -623,10 +623,21 @@ def write_outputs(out: str | os.PathLike[str], plan: Plan, *, overwrite: bool = 
             claim.release()
 
 
+def _inputs_of(plan: Any) -> list[Path]:
+    """The files a plan was read from, which an output folder must never replace."""
+    paths = getattr(plan, "input_paths", None)
+    if paths is not None:
+        return [Path(p) for p in paths]
+    return [plan.source.path] if getattr(plan, "source", None) is not None else []
+
+
 def _write_files(tmp: Path, plan: Plan, formats: Sequence[str]) -> None:
     from .memo import write_plan_memo
     from .plan_figures import render_figures
 
+    if hasattr(plan, "write_into"):  # programs, interim looks, portfolios write their own files
+        plan.write_into(tmp, tuple(formats))
+        return
     if hasattr(plan, "model"):  # a general analysis model: simulated trials
         _write_model_files(tmp, plan, formats)
         return
