@@ -86,6 +86,9 @@ class ModelPlan:
         The design file's normalised tables (for ``design.toml``), when read from one.
     store
         The folder holding the finished sizes of the simulation, when one was used.
+    precision, precision_answers
+        The :class:`~assurance.PrecisionPlan` asked for (None: none) and one
+        :class:`~assurance.general.GeneralSizeAnswer` per criterion.
     """
 
     model: Any
@@ -102,6 +105,8 @@ class ModelPlan:
     unit: str | None = None
     record: Mapping[str, Any] | None = field(default=None, compare=False)
     store: str | None = None
+    precision: Any = None
+    precision_answers: tuple[Any, ...] = ()
 
     # --------------------------------------------------------------------------------------
     @classmethod
@@ -143,7 +148,8 @@ class ModelPlan:
             trials=sim.trials, nuts_check=sim.nuts_check, nuts_every=sim.nuts_every,
             coverage=sim.coverage, chunk=sim.chunk, workers=sim.workers,
             scheduler=sim.scheduler, seed=spec.seed, planned=spec.planned,
-            progress=progress, store=store, title=spec.title, unit=unit)
+            progress=progress, store=store, title=spec.title, unit=unit,
+            precision=spec.precision)
         path = Path(spec.source)
         return replace(made, source=DesignSource(path, spec.content or b"", spec.record,
                                                  spec.notes),
@@ -221,6 +227,7 @@ def plan_model(
     store: str | os.PathLike[str] | None = None,
     title: str | None = None,
     unit: str | None = None,
+    precision: Any = None,
 ) -> ModelPlan:
     """Plan a trial analysed by a general model: simulate each size, solve the targets.
 
@@ -250,6 +257,13 @@ def plan_model(
         A progress bar on a terminal; a folder keeping finished sizes for resumption.
     title, unit
         The trial's name and the outcome's unit, for the memo.
+    precision
+        A :class:`~assurance.PrecisionPlan`: the sizes at which the posterior interval of the
+        effect is short enough, by the average length (ALC), the average coverage of an
+        interval of the target length (ACC) and the width in the ``likely_share`` most
+        favourable trials (MWOC, simulated). Its ``coverage`` and ``interval`` replace
+        ``coverage`` for the widths. The worst outcome over every data set (WOC) cannot be
+        bounded by simulation and is refused.
 
     Returns
     -------
@@ -267,11 +281,23 @@ def plan_model(
             f"The 'targets' parameter of {owner} must map 'assurance' and / or 'power' to a "
             f"probability. Got {targets!r} instead.")
     executor: Any = scheduler if scheduler is not None else (workers if workers else None)
+    width_options: dict[str, Any] = {}
+    if precision is not None:
+        precision = _check_precision(precision, owner)
+        coverage = precision.coverage
+        width_options = {"length": precision.length, "interval": precision.interval,
+                         "likely_share": precision.likely_share}
     ds = simulate_general(model, sizes, rule=rule, trials=trials, seed=seed,
                           nuts_check=nuts_check, nuts_every=nuts_every, coverage=coverage,
                           power=True, chunk=chunk, store=store, executor=executor,
-                          progress=progress)
+                          progress=progress, **width_options)
     answers = tuple(solve_general_n(ds, float(p), quantity=q) for q, p in targets.items())
+    precision_answers: tuple[Any, ...] = ()
+    if precision is not None:
+        precision_answers = tuple(
+            replace(solve_general_n(ds, precision.coverage if c == "ACC" else precision.length,
+                                    quantity=PRECISION_QUANTITY[c]), quantity=c)
+            for c in precision.criteria)
     grid = ds["n"].values
     if planned is not None and int(planned) not in set(int(n) for n in grid):
         raise AssuranceInputError(
@@ -283,7 +309,29 @@ def plan_model(
                              None if scheduler is None else str(scheduler), seed, planned)
     return ModelPlan(model, rule, ds, answers, settings, planned_n=planned_n,
                      planned_reason=reason, title=title or model.name, unit=unit,
-                     store=None if store is None else str(store))
+                     store=None if store is None else str(store), precision=precision,
+                     precision_answers=precision_answers)
+
+
+#: The simulated quantity each precision criterion reads (WOC: not available by simulation).
+PRECISION_QUANTITY = {"ALC": "width_mean", "ACC": "coverage_mean",
+                      "MWOC": "width_worst_likely"}
+
+
+def _check_precision(precision: Any, owner: str) -> Any:
+    from .precision.for_design import PrecisionPlan
+
+    if not isinstance(precision, PrecisionPlan):
+        raise AssuranceInputError(
+            f"The 'precision' parameter of {owner} must be an assurance.PrecisionPlan or "
+            f"None. Got {precision!r:.80} instead.")
+    if "WOC" in precision.criteria:
+        raise AssuranceInputError(
+            f"The 'precision' parameter of {owner} asks for the worst outcome criterion "
+            "(WOC), the widest interval over every possible data set, which simulated trials "
+            "cannot bound. Use MWOC (the widest over the most likely share of trials), ALC or "
+            "ACC.")
+    return precision
 
 
 @dataclass(frozen=True)

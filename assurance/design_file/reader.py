@@ -443,11 +443,11 @@ class _Builder:
         """An analysis model fitted to simulated trials: the model, the rule, the settings."""
         t = self.t
         table, effect = t["endpoint"], t["effect"]
-        for name in ("analysis_prior", "sd_prior", "zones", "precision"):
+        for name in ("analysis_prior", "sd_prior", "zones"):
             if t[name] is not None:
                 self.problems.add(name, f"[{name}] is for the built-in endpoints; an analysis "
                                   "model ([endpoint] type = \"model\") carries its own analysis "
-                                  "priors and reports interval widths itself.")
+                                  "priors in the model.")
         stand_in = _RatioStandIn(False)
         design_prior = _FAILED
         if t["design_prior"] is not _FAILED:
@@ -494,12 +494,16 @@ class _Builder:
             from .schema import SimulationTable
 
             simulation = SimulationTable()
+        precision = None
+        if t["precision"] is not None and t["precision"] is not _FAILED:
+            precision = self.attempt("precision", lambda: _model_precision(
+                t["precision"], simulation, self))
         if self.problems:
             return None  # type: ignore[return-value]  # raised by the caller
         record = _record(t, title, None)
         return DesignFile(design=None, sizes=sizes, targets=targets, draws=0, seed=seed,
                           source=self.source, record=record, planned=planned, model=model,
-                          rule=rule, simulation=simulation, title=title)
+                          rule=rule, simulation=simulation, title=title, precision=precision)
 
     def preflight(self, design: Any, zones: Any, precision: Any, draws: int, seed: int
                   ) -> None:
@@ -622,6 +626,29 @@ def _trial_design(endpoint: Any, design_prior: Any, rule: Any, effect: Any, sd_p
                        assumed_effect=effect.assumed, relevant_effect=effect.relevant,
                        sigma_prior=sd_prior, analysis_prior=analysis_prior,
                        power_effects=tuple(effect.also_power_at), title=title)
+
+
+def _model_precision(table: Any, simulation: Any, builder: _Builder) -> Any:
+    """The [precision] table of an analysis model: WOC is not available by simulation (left
+    out of the default criteria, refused when named), and the widths' coverage is one."""
+    given = table.model_fields_set
+    if "criteria" in given and "WOC" in table.criteria:
+        builder.problems.add("precision", "'precision.criteria' names WOC, the widest interval "
+                             "over every possible data set, which simulated trials cannot "
+                             "bound; use MWOC (the widest over the most likely share of "
+                             "trials), ALC or ACC.")
+        return None
+    if "coverage" in simulation.model_fields_set and simulation.coverage != table.coverage:
+        builder.problems.add("precision", f"'precision.coverage' ({table.coverage:g}) and "
+                             f"'simulation.coverage' ({simulation.coverage:g}) differ; the "
+                             "interval widths have one coverage: give it once, in [precision].")
+        return None
+    plan = _precision(table)
+    if "criteria" not in given:
+        from dataclasses import replace
+
+        plan = replace(plan, criteria=tuple(c for c in plan.criteria if c != "WOC"))
+    return plan
 
 
 def _general_model(table: Any, effect_prior: Any, assumed: float, builder: _Builder) -> Any:

@@ -74,6 +74,8 @@ class ChunkSpec:
     nuts_draws: int = 500
     nuts_tune: int = 500
     nuts_chains: int = 2
+    length: float | None = None
+    interval: str = "highest_density"
 
 
 @dataclass(frozen=True)
@@ -96,6 +98,8 @@ class ChunkResult:
     nuts_mean: np.ndarray = field(default_factory=lambda: np.zeros(0))
     nuts_sd: np.ndarray = field(default_factory=lambda: np.zeros(0))
     laplace_on_nuts: np.ndarray = field(default_factory=lambda: np.zeros(0, bool))
+    #: posterior probability of the best interval of the target length (NaN without one)
+    coverage_at_length: np.ndarray = field(default_factory=lambda: np.zeros(0))
 
     def arrays(self) -> dict[str, np.ndarray]:
         return {k: getattr(self, k) for k in _ARRAYS}
@@ -103,7 +107,7 @@ class ChunkResult:
 
 _ARRAYS = ("success", "width", "laplace_success", "laplace_mean", "laplace_sd",
            "laplace_width", "truth_effect", "converged", "nuts_success", "nuts_width",
-           "nuts_mean", "nuts_sd", "laplace_on_nuts")
+           "nuts_mean", "nuts_sd", "laplace_on_nuts", "coverage_at_length")
 
 #: Compiled models of this process, by (model, arm sizes). A model compiles once per size
 #: per worker at most, and once in all when its graph does not depend on the size.
@@ -138,7 +142,7 @@ def run_chunk(spec: ChunkSpec) -> ChunkResult:
     chunk's numbers do not depend on what the worker ran before. See
     :func:`simulate_general` for an example.
     """
-    from .fit import hdi_width
+    from .fit import hdi_width, interval_width, length_coverage
 
     model = spec.model
     entropy, key = spec.seed
@@ -182,7 +186,9 @@ def run_chunk(spec: ChunkSpec) -> ChunkResult:
         draws = np.vstack(nuts_draws)
         n_mean, n_sd = draws.mean(axis=1), draws.std(axis=1, ddof=1)
         n_success = decides(spec.rule, model.better, n_mean, n_sd, draws=draws)
-        n_width = np.array([hdi_width(d, spec.coverage) for d in draws])
+        n_width = (np.array([hdi_width(d, spec.coverage) for d in draws])
+                   if spec.interval == "highest_density"
+                   else np.array([interval_width(d, spec.coverage) for d in draws]))
     else:
         n_mean = n_sd = n_width = np.zeros(0)
         n_success = np.zeros(0, bool)
@@ -190,9 +196,15 @@ def run_chunk(spec: ChunkSpec) -> ChunkResult:
         success, width = n_success, n_width
     else:
         success, width = lap_success, lap_width
+    if spec.length is None:
+        covered = np.full(spec.trials, np.nan)
+    elif spec.nuts_every:
+        covered = np.array([length_coverage(d, spec.length) for d in draws])
+    else:  # a normal posterior: the best interval of a given length is centred on the mean
+        covered = 2.0 * special.ndtr(spec.length / (2.0 * sd)) - 1.0
     return ChunkResult(spec.n_total, spec.scenario, success, width, lap_success, mean, sd,
                        lap_width, truths["effect"], ok, n_success, n_width, n_mean, n_sd,
-                       lap_success[:n_success.size])
+                       lap_success[:n_success.size], covered)
 
 
 def _map_in_process(func: Callable, specs: Sequence, executor: Any = None, *,
@@ -302,7 +314,7 @@ def _load_group(folder: Path, n: int, scenario: str, fingerprint: str) -> dict |
             raise AssuranceInputError(
                 f"The stored result {str(path)!r} of {_OWNER} was made with other settings; "
                 "use another 'store' folder.")
-        return {k: stored[k] for k in _ARRAYS}
+        return {k: stored[k] for k in _ARRAYS if k in stored}  # older stores: fewer arrays
 
 
 def _join(results: list[ChunkResult]) -> dict[str, np.ndarray]:
@@ -327,6 +339,9 @@ def simulate_general(
     progress: bool = True,
     nuts_draws: int = 500,
     nuts_tune: int = 500,
+    length: float | None = None,
+    interval: Literal["highest_density", "equal_tailed"] = "highest_density",
+    likely_share: float = 0.95,
 ) -> xr.Dataset:
     """Assurance, classical power and posterior interval widths of a general model by
     simulation, at each total size.
@@ -366,6 +381,18 @@ def simulate_general(
         Show a progress bar over tasks when standard error is a terminal.
     nuts_draws, nuts_tune
         Draws kept and tuning steps per chain (two chains) for NUTS.
+    length
+        A target width of the posterior interval (precision planning): adds the average
+        posterior probability of the best interval of this length (``coverage_mean``, the
+        average coverage criterion) and the width reached by the ``likely_share`` most
+        favourable trials (``width_worst_likely``, the simulated form of the modified worst
+        outcome criterion).
+    interval
+        The kind of interval whose width is reported: ``"highest_density"`` or
+        ``"equal_tailed"`` (the same for the normal approximation; they differ for NUTS).
+    likely_share
+        The share of trials within which ``width_worst_likely`` is the widest (with a
+        length only).
 
     Returns
     -------
@@ -374,7 +401,9 @@ def simulate_general(
         ``assurance_mcse``, ``power``, ``power_mcse``, ``width_mean``,
         ``width_mean_mcse``, ``width_median``, ``width_q90``, ``nuts_assurance_subset``,
         ``laplace_assurance_subset``, ``nuts_agreement``, ``nuts_trials``,
-        ``not_converged``; attributes name the model, rule and method.
+        ``not_converged``; with a ``length`` also ``coverage_mean``,
+        ``coverage_mean_mcse`` and ``width_worst_likely``; attributes name the model, rule
+        and method.
 
     Warns
     -----
@@ -432,6 +461,11 @@ def simulate_general(
         raise AssuranceInputError(
             f"The 'nuts_every' parameter of {_OWNER} must be True or False. "
             f"Got {nuts_every!r} instead.")
+    if length is not None:
+        length = check_real(length, "length", _OWNER, low=0, low_open=True)
+    interval = check_choice(interval, "interval", _OWNER, ["highest_density", "equal_tailed"])
+    likely_share = check_real(likely_share, "likely_share", _OWNER, low=0, high=1,
+                              low_open=True, high_open=True)
     if isinstance(sizes, int | np.integer):
         sizes = [sizes]
     grid = sorted({check_int(n, "sizes", _OWNER, low=model.smallest_total) for n in sizes})
@@ -445,6 +479,13 @@ def simulate_general(
         "coverage": coverage, "nuts_check": nuts_check, "nuts_every": nuts_every,
         "nuts_draws": nuts_draws, "nuts_tune": nuts_tune,
     }
+    # only when asked for, so that stores written without them stay readable
+    if length is not None:
+        settings["length"] = length
+    if interval != "highest_density" and nuts_check + nuts_every:
+        settings["interval"] = interval
+    if length is not None:
+        settings["likely_share"] = likely_share
     fingerprint = _fingerprint(settings)
     folder = None if store is None else _open_store(store, settings, fingerprint)
 
@@ -472,7 +513,7 @@ def simulate_general(
                     k = 0
                 specs.append(ChunkSpec(
                     model, rule, n, size, (seed, (n, s_index, c)), scenario, k, coverage,
-                    nuts_every, nuts_draws, nuts_tune))
+                    nuts_every, nuts_draws, nuts_tune, length=length, interval=interval))
                 owner.append((n, scenario))
 
     pending: dict[tuple[int, str], dict[int, ChunkResult]] = {}
@@ -526,6 +567,16 @@ def _dataset(model: GeneralModel, rule: Any, grid: list[int], groups: dict,
                                        if w.size > 1 else math.nan)
         rows["width_median"].append(float(np.median(w)) if w.size else math.nan)
         rows["width_q90"].append(float(np.quantile(w, 0.9)) if w.size else math.nan)
+        if "length" in settings:
+            share = settings["likely_share"]
+            rows.setdefault("width_worst_likely", []).append(
+                float(np.quantile(w, share)) if w.size else math.nan)
+            c = np.asarray(g.get("coverage_at_length", np.zeros(0)), float)
+            c = c[np.isfinite(c)]
+            rows.setdefault("coverage_mean", []).append(float(c.mean()) if c.size
+                                                        else math.nan)
+            rows.setdefault("coverage_mean_mcse", []).append(
+                float(c.std(ddof=1) / math.sqrt(c.size)) if c.size > 1 else math.nan)
         k = g["nuts_success"].size
         rows["nuts_trials"].append(k)
         if k:
@@ -554,6 +605,11 @@ def _dataset(model: GeneralModel, rule: Any, grid: list[int], groups: dict,
         "trials": trials, "seed": settings["seed"], "chunk": settings["chunk"],
         "coverage": settings["coverage"], "effect_scale": model.effect_scale,
     })
+    if "length" in settings:
+        ds.attrs.update({"precision_length": settings["length"],
+                         "likely_share": settings["likely_share"]})
+    if settings.get("interval", "highest_density") != "highest_density":
+        ds.attrs["interval"] = settings["interval"]
     problems = []
     agreement = np.abs(ds["nuts_agreement"].values)
     bad = [int(n) for n, a in zip(grid, agreement, strict=True)
@@ -601,7 +657,8 @@ class GeneralSizeAnswer:
 
 def solve_general_n(dataset: xr.Dataset, target: float,
                     quantity: Literal["assurance", "power", "width_mean", "width_median",
-                                      "width_q90"] = "assurance") -> GeneralSizeAnswer:
+                                      "width_q90", "width_worst_likely",
+                                      "coverage_mean"] = "assurance") -> GeneralSizeAnswer:
     """The smallest total size of the grid whose simulated ``quantity`` reaches ``target``.
 
     Parameters
@@ -611,11 +668,14 @@ def solve_general_n(dataset: xr.Dataset, target: float,
     target
         For ``"assurance"`` / ``"power"``: the probability to reach, in (0, 1). For the
         widths: the largest acceptable width (> 0) of the posterior interval, on average
-        (``"width_mean"``, the average-length criterion), at the median, or in 90% of trials
-        (``"width_q90"``, a worst-outcome criterion).
+        (``"width_mean"``, the average-length criterion), at the median, in 90% of trials
+        (``"width_q90"``) or in the share of trials the simulation was given
+        (``"width_worst_likely"``, the modified worst-outcome criterion). For
+        ``"coverage_mean"`` (the average coverage criterion): the average posterior
+        probability to reach, in (0, 1), of an interval of the simulation's target length.
     quantity
-        ``"assurance"``, ``"power"``, ``"width_mean"``, ``"width_median"`` or
-        ``"width_q90"``.
+        ``"assurance"``, ``"power"``, ``"width_mean"``, ``"width_median"``,
+        ``"width_q90"``, ``"width_worst_likely"`` or ``"coverage_mean"``.
 
     Returns
     -------
@@ -635,8 +695,13 @@ def solve_general_n(dataset: xr.Dataset, target: float,
     20
     """
     owner = "solve_general_n"
-    quantity = check_choice(quantity, "quantity", owner, ["assurance", "power", "width_mean",
-                                                           "width_median", "width_q90"])
+    quantity = check_choice(quantity, "quantity", owner, [
+        "assurance", "power", "width_mean", "width_median", "width_q90", "width_worst_likely",
+        "coverage_mean"])
+    if quantity not in dataset:
+        raise AssuranceInputError(
+            f"The 'dataset' parameter of {owner} holds no {quantity!r}: simulate with a "
+            "target 'length' for the precision criteria width_worst_likely and coverage_mean.")
     width = quantity.startswith("width")
     if width:
         target = check_real(target, "target", owner, low=0, low_open=True)
@@ -650,8 +715,12 @@ def solve_general_n(dataset: xr.Dataset, target: float,
     sizes = np.asarray(dataset["n"].values)
     reached = values <= target if width else values >= target
     hits = np.flatnonzero(reached)
+    share = dataset.attrs.get("likely_share", 0.95)
     words = {"width_mean": "mean interval width", "width_median": "median interval width",
-             "width_q90": "90th percentile of the interval width"}.get(quantity, quantity)
+             "width_q90": "90th percentile of the interval width",
+             "width_worst_likely": f"{100 * share:g}th percentile of the interval width",
+             "coverage_mean": "mean coverage of an interval of the target length"
+             }.get(quantity, quantity)
     if hits.size == 0:
         best = int(np.nanargmin(values) if width else np.nanargmax(values))
         return GeneralSizeAnswer(

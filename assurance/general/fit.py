@@ -318,3 +318,30 @@ def hdi_width(draws: np.ndarray, coverage: float) -> float:
 
     low, high = az.hdi(np.asarray(draws, dtype=float), hdi_prob=coverage)
     return float(high - low)
+
+
+def interval_width(draws: np.ndarray, coverage: float) -> float:
+    """Width of the equal-tailed interval of posterior draws (their quantiles).
+
+    Examples
+    --------
+    >>> round(interval_width(np.linspace(0.0, 1.0, 1001), 0.5), 2)
+    0.5
+    """
+    low, high = np.quantile(np.asarray(draws, dtype=float), [(1 - coverage) / 2,
+                                                             (1 + coverage) / 2])
+    return float(high - low)
+
+
+def length_coverage(draws: np.ndarray, length: float) -> float:
+    """The largest share of posterior draws an interval of the given length holds (the
+    posterior probability of the best interval of that length, by the draws).
+
+    Examples
+    --------
+    >>> length_coverage(np.linspace(0.0, 1.0, 101), 0.5)  # 51 of the 101 points
+    0.504950495049505
+    """
+    d = np.sort(np.asarray(draws, dtype=float))
+    inside = np.searchsorted(d, d + length, side="right") - np.arange(d.size)
+    return float(inside.max() / d.size)

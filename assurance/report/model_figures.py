@@ -197,6 +197,14 @@ def plot_model_widths(ds: Any, ax: Axes | None = None, *, unit: str | None = Non
     _curve(ax, n, ds, "width_mean", "mean width \u00b1 2 MC SE", _ORANGE)
     _curve(ax, n, ds, "width_median", "median width", _GREY, (0, (1, 1.5)))
     _curve(ax, n, ds, "width_q90", "90th centile of the width", _BLUE, (0, (5, 3)))
+    share = float(ds.attrs.get("likely_share", 0.9))
+    if "width_worst_likely" in ds and abs(share - 0.9) > 1e-12:
+        _curve(ax, n, ds, "width_worst_likely", f"{100 * share:g}th centile of the width",
+               _BLACK, (0, (3, 1, 1, 1)))
+    length = ds.attrs.get("precision_length")
+    if length is not None:
+        ax.axhline(float(length), color="#595959", linewidth=1.0, linestyle=(0, (1, 2.5)),
+                   zorder=2, label=f"target width {float(length):.3g}")
     ax.set_ylim(bottom=0.0)
     lo, hi = float(n.min()), float(n.max())
     ax.set_xlim(lo, hi if hi > lo else lo + 1)

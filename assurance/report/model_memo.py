@@ -284,7 +284,7 @@ def _width_text(width: float, se: float) -> str:
     """``2.83 ± 0.03``: the width to the decimal place of its one-figure MC SE."""
     if not _finite(width):
         return _NOT_SIMULATED
-    if not _finite(se) or se <= 0:
+    if not _finite(se) or se <= 1e-6 * abs(width):  # no Monte Carlo error worth a digit
         return wd.number(width)
     decimals = max(0, -math.floor(math.log10(se)))
     return f"{width:,.{decimals}f} \u00b1 {se:.{decimals}f}"
@@ -315,6 +315,44 @@ def _targets(plan: Any, ds: Any) -> list[dict[str, str]]:
                             f"{int(ds['n_control'].values[i])}",
                     "value": _pct_se(answer.value, answer.mcse), "comment": comment})
     return out
+
+
+_CRITERION_WORDS = {
+    "ALC": "Average width (ALC)",
+    "ACC": "Average coverage of an interval of the target width (ACC)",
+    "MWOC": "Width in the {share} of trials with the narrowest intervals (MWOC, simulated)",
+}
+
+
+def _precision_rows(plan: Any, ds: Any) -> dict[str, Any] | None:
+    """The precision criteria of the plan: the size reaching each, or None without them."""
+    precision = getattr(plan, "precision", None)
+    answers = getattr(plan, "precision_answers", ()) or ()
+    if precision is None or not answers:
+        return None
+    n = [int(v) for v in ds["n"].values]
+    share = wd.percent(float(precision.likely_share))
+    rows = []
+    for a in answers:
+        name = _CRITERION_WORDS.get(a.quantity, a.quantity).format(share=share)
+        coverage_like = a.quantity == "ACC"
+        target = wd.percent(a.target) if coverage_like else wd.number(a.target)
+        value = (_pct_se(a.value, a.mcse) if coverage_like
+                 else _width_text(a.value, a.mcse) if _finite(a.mcse) else wd.number(a.value))
+        if a.n is None:
+            rows.append({"name": name, "target": target, "reached": False,
+                         "value": f"best {value}", "comment": "No size simulated reaches it; "
+                         "simulate larger sizes."})
+            continue
+        i = n.index(int(a.n))
+        below = ("the smallest size simulated" if i == 0
+                 else f"above {n[i - 1]:,} and at most {n[i]:,} patients")
+        rows.append({"name": name, "target": target, "reached": True, "n": f"{int(a.n):,}",
+                     "value": value, "comment": f"The grid bounds the answer: {below}."})
+    interval = ("highest-density" if precision.interval == "highest_density"
+                else "equal-tailed")
+    return {"rows": rows, "length": wd.number(precision.length),
+            "coverage": wd.percent(precision.coverage), "interval": interval}
 
 
 def _method(plan: Any, ds: Any) -> list[str]:
@@ -498,6 +536,7 @@ def model_memo_html(
         "sizes": _sizes_table(plan, ds, j),
         "targets": _targets(plan, ds),
         "width_figure": widths,
+        "precision": _precision_rows(plan, ds),
         "method": _method(plan, ds),
         "warning": wd._no_code(printable(str(ds.attrs.get("warning", "") or ""))),
         "provenance": _provenance(plan, ds, date_text),
