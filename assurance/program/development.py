@@ -676,15 +676,16 @@ def program_grid(program: ProgramDesign, phase2_sizes: Sequence[int] | None = No
     phase2_sizes
         Total phase 2 sizes (default: the program's ``n2``).
     go_thresholds
-        Go thresholds on the phase 2 estimate (natural scale); default: the program's go
-        rule alone.
+        Go thresholds on the phase 2 estimate (natural scale), compared with the program's
+        own go rule (labelled ``"as designed"`` when it is phase 2's success rule).
 
     Returns
     -------
     xarray.Dataset
         Dimensions ``phase2_n`` and ``go_rule`` (labels; a numeric ``go_threshold``
-        coordinate when thresholds were given), one variable per quantity of
-        :class:`ProgramResult` (``p_go``, ``pos``, ``false_go``, ``expected_patients``...).
+        coordinate when every rule is a threshold), one variable per quantity of
+        :class:`ProgramResult` (``p_go``, ``pos``, ``false_go``, ``expected_patients``...),
+        with phase 3 at its fixed size ``n3`` (re-planning is left out of the grid).
 
     Examples
     --------
@@ -693,8 +694,8 @@ def program_grid(program: ProgramDesign, phase2_sizes: Sequence[int] | None = No
     >>> p3 = asr.TrialDesign(ep, asr.Normal(3.0, 2.0))
     >>> program = ProgramDesign(p3, p3, n2=100, n3=400)
     >>> ds = program_grid(program, [50, 100], [0.0, 2.0])
-    >>> dict(ds.sizes)
-    {'phase2_n': 2, 'go_rule': 2}
+    >>> dict(ds.sizes), [str(g) for g in ds.go_rule.values]
+    ({'phase2_n': 2, 'go_rule': 3}, ['as designed', '0', '2'])
     >>> bool((ds.p_go.sel(go_rule="2") <= ds.p_go.sel(go_rule="0")).all())
     True
     """
@@ -709,17 +710,17 @@ def program_grid(program: ProgramDesign, phase2_sizes: Sequence[int] | None = No
             f"The 'phase2_sizes' parameter of {owner} must hold at least one size. Got "
             f"{phase2_sizes!r} instead.")
     sizes = sorted(set(sizes))
-    thresholds: list[float | None]
-    if go_thresholds is None or len(go_thresholds) == 0:
-        thresholds = [program.go_threshold]
-    else:
+    thresholds: list[float | None] = [program.go_threshold]
+    if go_thresholds is not None and len(go_thresholds) > 0:
         low = 0 if program.phase2.endpoint.ratio_scale else None
-        thresholds = sorted({check_real(g, "go_thresholds", owner, low=low, low_open=True)
-                             for g in go_thresholds})
+        given = {check_real(g, "go_thresholds", owner, low=low, low_open=True)
+                 for g in go_thresholds}
+        thresholds = ([None] if program.go_threshold is None else []) + sorted(
+            given | ({program.go_threshold} if program.go_threshold is not None else set()))
     values = {q: np.zeros((len(sizes), len(thresholds))) for q in GRID_QUANTITIES}
     for i, n2 in enumerate(sizes):
         for j, g in enumerate(thresholds):
-            r = program_result(program, n2=n2, go_threshold=g)
+            r = program_result(program, n2=n2, go_threshold=g, replanned=False)
             for q in GRID_QUANTITIES:
                 values[q][i, j] = getattr(r, q)
     labels = ["as designed" if g is None else f"{g:g}" for g in thresholds]
