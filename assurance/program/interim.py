@@ -45,7 +45,7 @@ from .._validation import check_choice, check_int, check_real
 from ..errors import AssuranceInputError
 from ..priors.families import Normal, PointMass, Prior
 
-__all__ = ["InterimData", "InterimLook", "OperatingRow", "interim_look",
+__all__ = ["InterimData", "InterimLook", "OperatingRow", "evaluate_interim",
            "final_standard_error", "conditional_power", "predictive_probability",
            "bivariate_normal_upper"]
 
@@ -563,7 +563,7 @@ class OperatingRow:
 
 @dataclass(frozen=True, eq=False)
 class InterimLook:
-    """What an interim look predicts: see :func:`interim_look` for how it is computed.
+    """What an interim look predicts: see :func:`evaluate_interim` for how it is computed.
 
     Attributes (benefit scale unless named ``*_natural``)
     ---------------------------------------------------------
@@ -748,7 +748,7 @@ def _effect_grid(design: Any, estimate: float, se1: float, se_n: float, c: float
 # ------------------------------------------------------------------------------------------
 # the entry point
 # ------------------------------------------------------------------------------------------
-def interim_look(design: Any, data: InterimData, *, planned_total: int | None = None,
+def evaluate_interim(design: Any, data: InterimData, *, planned_total: int | None = None,
                  final_se: float | None = None, futility: float = 0.1,
                  efficacy: float = 0.99, prediction_prior: PredictionPrior = "analysis",
                  ) -> InterimLook:
@@ -803,11 +803,11 @@ def interim_look(design: Any, data: InterimData, *, planned_total: int | None = 
     --------
     >>> from assurance import ContinuousEndpoint, Normal, TrialDesign
     >>> design = TrialDesign(ContinuousEndpoint(sigma=10.0, analysis="z"), Normal(4.0, 2.0))
-    >>> look = interim_look(design, InterimData(3.0, standard_error=2.0), planned_total=200)
+    >>> look = evaluate_interim(design, InterimData(3.0, standard_error=2.0), planned_total=200)
     >>> round(look.fraction, 3), look.decision
     (0.5, 'continue')
     """
-    owner = "interim_look"
+    owner = "evaluate_interim"
     if not isinstance(data, InterimData):
         raise AssuranceInputError(
             f"The 'data' parameter of {owner} must be an InterimData. Got {data!r} instead.")
@@ -923,7 +923,7 @@ def interim_look(design: Any, data: InterimData, *, planned_total: int | None = 
         truths.append(("relevant effect", float(ep.to_benefit(design.relevant_effect))))
     for name, delta in truths:
         fixed = _fixed_oc(np.array([delta]), f, e, se1, se_n, c)
-        rows.append(row(name, float(ep.from_benefit(delta)),
+        rows.append(row(name, float(ep.from_benefit(delta)) + 0.0,
                         {k: float(v[0]) for k, v in fixed.items()}))
     grid = _effect_grid(design, d1, se1, se_n, c)
     curve = {"effect": grid, **_fixed_oc(grid, f, e, se1, se_n, c)}
