@@ -55,8 +55,8 @@ from ..priors.evidence import DiscountedEstimate, Estimate
 from ..priors.families import PointMass, Prior
 from ..rules.posterior import MinimumEstimate
 
-__all__ = ["Surrogate", "Replanning", "ProgramDesign", "ProgramResult", "program_result",
-           "program_grid", "replan_table", "simulate_program", "effect_curves"]
+__all__ = ["CHECK_LIMIT", "Surrogate", "Replanning", "ProgramDesign", "ProgramResult",
+           "program_result", "program_grid", "replan_table", "simulate_program", "effect_curves"]
 
 #: Gauss-Legendre nodes per panel of the prior quadrature
 _PANEL_NODES = 16
@@ -64,6 +64,9 @@ _PANEL_NODES = 16
 _HERMITE_NODES = 24
 #: the seed used when none is given (the same as the single-trial plans')
 DEFAULT_SEED = 20260101
+#: a simulated figure checks a computed one when within this many Monte Carlo standard
+#: errors of it (a false alarm about once in 16,000 checks of one figure)
+CHECK_LIMIT = 4.0
 
 
 # ------------------------------------------------------------------------------------------
@@ -615,14 +618,24 @@ def replan_table(program: ProgramDesign, *, n2: int | None = None,
     >>> bool((t["n3"] >= 100).all() and (t["n3"] <= 2000).all())
     True
     """
-    from ..planning import solve_sample_size
-
     if program.replan is None:
         raise AssuranceInputError(
             "The 'program' parameter of replan_table must have re-planning settings "
             "(ProgramDesign(..., replan=Replanning(...))). Got replan=None.")
-    plan = program.replan
     n2 = program.n2 if n2 is None else int(n2)
+    key = (n2, program.go_threshold if go_threshold is None else float(go_threshold))
+    kept = program.__dict__.setdefault("_replan_tables", {})  # frozen, so computed once
+    if key not in kept:
+        kept[key] = _replan_table(program, n2, key[1])
+    return {name: np.copy(value) for name, value in kept[key].items()}
+
+
+def _replan_table(program: ProgramDesign, n2: int, go_threshold: float | None
+                  ) -> dict[str, np.ndarray]:
+    from ..planning import solve_sample_size
+
+    plan = program.replan
+    assert plan is not None
     c2, se2, tau = _phase2_geometry(program, n2, go_threshold)
     lower = c2 + np.linspace(0.0, plan.span * tau, plan.steps)
     ep2, sur = program.phase2.endpoint, program.surrogate
