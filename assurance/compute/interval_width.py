@@ -38,6 +38,9 @@ __all__ = [
     "binomial_enumeration",
     "NormalGammaParams",
     "normal_gamma_width",
+    "EFFECT_SCALES",
+    "effect_interval_widths",
+    "effect_window_coverage",
     "widths_from_draws",
     "coverage_from_draws",
     "summarise_simulated",
@@ -2019,6 +2022,430 @@ def _ng_rate_quantiles(qs: np.ndarray, ni: int, an, de, c: float, delta: float
         if np.all((hi - lo < 1e-11) | (np.abs(f_mid) < 1e-13)):
             break
     return an.rate + np.exp(mid)
+
+
+# ------------------------------------------------------------------------------------------
+# two independent beta posteriors: their difference, log odds ratio or log risk ratio
+# ------------------------------------------------------------------------------------------
+# D = g(P_t) - g(P_c), P_t ~ Beta(a_t, b_t) and P_c ~ Beta(a_c, b_c) independent, g the
+# identity, logit or log. With Y = g(P) for each arm, F_D(d) = E[F_t(d + Y_c)] =
+# E[S_c(Y_t - d)]: the expectation is taken over the arm with the smaller spread (the
+# "outer" arm), so that the other arm's distribution function varies slowly across it. Each
+# arm is cut to its effective support [Q(1e-15), Q(1 - 1e-15)]; the outer integral runs
+# over the part of the outer support where the inner argument lies in the inner support
+# (outside it the inner distribution function is 0 or 1, whose outer mass is added), by a
+# Gauss-Legendre rule. Kinks of a density at the end of its support (a shape of 1, e.g.
+# no responders under a uniform prior) then sit at the ends of the integration range, where
+# they cost no accuracy. Densities with an infinite peak (a shape below 1 on the scale) are
+# not integrated this way: such data sets are reported as not done (the caller falls back
+# to posterior draws).
+EFFECT_SCALES: tuple[str, ...] = ("difference", "log_odds_ratio", "log_risk_ratio")
+#: probability cut from each end of an arm's support
+_EFFECT_CUT = 1e-15
+#: Gauss-Legendre nodes for the outer integral (see the tests: 48 nodes agree with a
+#: 200-node rule to 1e-11 in probability over data sets from 0 responders to half)
+_EFFECT_K = 48
+_EFF_X, _EFF_W = np.polynomial.legendre.leggauss(_EFFECT_K)
+_EFF_X, _EFF_W = (_EFF_X + 1) / 2, _EFF_W / 2
+
+
+class _ScaledBeta:
+    """Beta(a, b) on the effect scale, Y = p, logit p or log p (arrays over rows, shape
+    (R, 1) so that points (R, K) broadcast)."""
+
+    def __init__(self, a: np.ndarray, b: np.ndarray, scale: str):
+        self.a, self.b, self.scale = a[:, None], b[:, None], scale
+        self.lbeta = special.betaln(self.a, self.b)
+        # log density = A log p + B log(1 - p) - log B(a, b) on the scale
+        shift = {"difference": (1.0, 1.0), "log_odds_ratio": (0.0, 0.0),
+                 "log_risk_ratio": (0.0, 1.0)}[scale]
+        self.A, self.B = self.a - shift[0], self.b - shift[1]
+        cut = np.full(a.shape, _EFFECT_CUT)
+        p_lo = special.betaincinv(a, b, cut)
+        q_hi = special.betaincinv(b, a, cut)          # 1 - (upper end), from its own tail
+        self.low = self._from_p(p_lo, 1.0 - p_lo)
+        self.high = self._from_p(1.0 - q_hi, q_hi)
+        if scale == "difference":
+            s = a + b
+            self.mean = a / s
+            self.var = a * b / (s * s * (s + 1))
+            k3 = 2 * (b - a) * np.sqrt(s + 1) / ((s + 2) * np.sqrt(a * b)) * self.var**1.5
+        elif scale == "log_odds_ratio":
+            self.mean = special.digamma(a) - special.digamma(b)
+            self.var = special.polygamma(1, a) + special.polygamma(1, b)
+            k3 = special.polygamma(2, a) - special.polygamma(2, b)
+        else:
+            self.mean = special.digamma(a) - special.digamma(a + b)
+            self.var = special.polygamma(1, a) - special.polygamma(1, a + b)
+            k3 = special.polygamma(2, a) - special.polygamma(2, a + b)
+        self.k3 = k3
+        #: no infinite peak: every shape on the scale >= 1 (or 0 for the logit)
+        self.smooth = ((self.A >= 0) & (self.B >= 0))[:, 0]
+        #: log-concave on the scale (the difference of two is unimodal if one is)
+        self.log_concave = self.smooth
+
+    def _from_p(self, p: np.ndarray, q: np.ndarray) -> np.ndarray:
+        if self.scale == "difference":
+            return p
+        if self.scale == "log_odds_ratio":
+            return np.log(p) - np.log(q)
+        return np.log(p)
+
+    def _logs(self, y: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """log p and log(1 - p) at points y of the scale (inside the support)."""
+        if self.scale == "difference":
+            p = np.clip(y, 0.0, 1.0)
+            return np.log(p), np.log1p(-p)
+        if self.scale == "log_odds_ratio":
+            return special.log_expit(y), special.log_expit(-y)
+        y = np.minimum(y, 0.0)
+        return y, np.log(-np.expm1(y))
+
+    def pieces(self, y: np.ndarray, rows: np.ndarray
+               ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+        """Lower tail, upper tail, log density and its derivative at y (rows ``rows``)."""
+        a, b, A, B, lb = (v[rows] for v in (self.a, self.b, self.A, self.B, self.lbeta))
+        lp, lq = self._logs(y)
+        p, q = np.exp(lp), np.exp(lq)
+        low = p <= 0.5
+        r = special.betainc(np.where(low, a, b), np.where(low, b, a), np.where(low, p, q))
+        lower = np.where(low, r, 1.0 - r)
+        upper = np.where(low, 1.0 - r, r)
+        logf = self._logpdf(lp, lq, A, B, lb)
+        if self.scale == "difference":
+            dlog = np.where(A == 0, 0.0, A / p) - np.where(B == 0, 0.0, B / q)
+        elif self.scale == "log_odds_ratio":
+            dlog = A * q - B * p
+        else:
+            dlog = A - np.where(B == 0, 0.0, B * p / q)
+        return lower, upper, logf, dlog
+
+    @staticmethod
+    def _logpdf(lp, lq, A, B, lb):
+        return np.where(A == 0, 0.0, A * lp) + np.where(B == 0, 0.0, B * lq) - lb
+
+    def logpdf(self, y: np.ndarray, rows: np.ndarray) -> np.ndarray:
+        """Log density at y (rows ``rows``)."""
+        lp, lq = self._logs(y)
+        return self._logpdf(lp, lq, self.A[rows], self.B[rows], self.lbeta[rows])
+
+    def tails(self, y: np.ndarray, rows: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """P(Y <= y) and P(Y > y) (rows ``rows``)."""
+        lower, upper, _, _ = self.pieces(y, rows)
+        return lower, upper
+
+
+class _EffectDistribution:
+    """Distribution of D = Y_t - Y_c for many rows (data sets)."""
+
+    def __init__(self, a_t, b_t, a_c, b_c, scale: str):
+        a_t, b_t, a_c, b_c = (np.asarray(v, dtype=float).ravel()
+                              for v in (a_t, b_t, a_c, b_c))
+        t, c = _ScaledBeta(a_t, b_t, scale), _ScaledBeta(a_c, b_c, scale)
+        self.mean = t.mean - c.mean
+        self.sd = np.sqrt(t.var + c.var)
+        self.k3 = t.k3 - c.k3
+        self.low = t.low - c.high
+        self.high = t.high - c.low
+        #: rows the quadrature serves (no infinite peak) and whose density is unimodal
+        self.ok = t.smooth & c.smooth
+        self.unimodal = self.ok & (t.log_concave | c.log_concave)
+        # outer arm: the narrower; s = +1 when the outer arm is control (inner argument
+        # d + Y_c, F_D = E[F_t]), -1 when it is treatment (inner argument Y_t - d,
+        # F_D = E[S_c])
+        outer_c = c.var <= t.var
+        self.s = np.where(outer_c, 1.0, -1.0)
+        swap = ~outer_c
+        pick = np.where
+        self.outer = _ScaledBeta(pick(swap, a_t, a_c), pick(swap, b_t, b_c), scale)
+        self.inner = _ScaledBeta(pick(swap, a_c, a_t), pick(swap, b_c, b_t), scale)
+
+    def cf_quantile(self, q: float | np.ndarray) -> np.ndarray:
+        """Cornish-Fisher start: normal quantile with a skewness correction."""
+        z = special.ndtri(q)
+        gam = self.k3 / self.sd**3
+        return self.mean + self.sd * (z + (z * z - 1) * gam / 6)
+
+    def evaluate(self, d: np.ndarray, rows: np.ndarray
+                 ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+        """F_D(d), 1 - F_D(d), log f_D(d) and d log f_D / dd at one point per row."""
+        o, i = self.outer, self.inner
+        s = self.s[rows]
+        sd_ = s * d
+        lo_o, hi_o = o.low[rows], o.high[rows]
+        lo_i, hi_i = i.low[rows], i.high[rows]
+        left = np.clip(lo_i - sd_, lo_o, hi_o)
+        right = np.clip(hi_i - sd_, lo_o, hi_o)
+        # outer mass where the inner argument is above the inner support (F_inner = 1) and
+        # below it (F_inner = 0); at the outer support's ends that mass is taken as 0 or 1
+        below_right, above_right = o.tails(right[:, None], rows)
+        below_left, _ = o.tails(left[:, None], rows)
+        above = np.where(right >= hi_o, 0.0, np.where(right <= lo_o, 1.0, above_right[:, 0]))
+        below = np.where(left <= lo_o, 0.0, np.where(left >= hi_o, 1.0, below_left[:, 0]))
+        del below_right
+        span = right - left
+        y = left[:, None] + span[:, None] * _EFF_X
+        logw = np.log(np.maximum(span, 1e-300))[:, None] + np.log(_EFF_W)
+        _, _, logf_o, _ = o.pieces(y, rows)
+        lower_i, upper_i, logf_i, dlog_i = i.pieces(y + sd_[:, None], rows)
+        w = np.exp(logw + logf_o)
+        w = np.where(span[:, None] > 0, w, 0.0)
+        e_lower = (w * lower_i).sum(axis=1)
+        e_upper = (w * upper_i).sum(axis=1)
+        pos = s > 0
+        F = np.where(pos, e_lower + above, e_upper + below)
+        S = np.where(pos, e_upper + below, e_lower + above)
+        logterm = logw + logf_o + logf_i
+        logterm = np.where(span[:, None] > 0, logterm, -np.inf)
+        top = np.max(logterm, axis=1)
+        safe = np.where(np.isfinite(top), top, 0.0)
+        ex = np.exp(logterm - safe[:, None])
+        tot = ex.sum(axis=1)
+        # the integration range moves with d: where an end is set by the inner support,
+        # the inner density there (not 0 for a shape of 1 on the scale) adds to f_D'
+        ends = np.stack([left, right], axis=1)
+        edge = np.stack([lo_i, hi_i], axis=1)
+        moving = np.stack([(lo_i - sd_ > lo_o) & (lo_i - sd_ < hi_o),
+                           (hi_i - sd_ > lo_o) & (hi_i - sd_ < hi_o)], axis=1)
+        log_end = o.logpdf(ends, rows) + i.logpdf(edge, rows) - safe[:, None]
+        end_term = np.where(moving & (span[:, None] > 0), np.exp(log_end), 0.0)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            logf = np.where(tot > 0, safe + np.log(tot), -np.inf)
+            dlog = s * ((ex * dlog_i).sum(axis=1) + end_term[:, 0] - end_term[:, 1]) / tot
+        return np.clip(F, 0.0, 1.0), np.clip(S, 0.0, 1.0), logf, dlog
+
+
+def _effect_quantile(dist: _EffectDistribution, tail: float, upper: bool,
+                     rows: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Point with ``tail`` probability below it (above it when ``upper``), per row:
+    Halley steps inside a bracket (bisection when a step leaves it). Returns the points and
+    whether each converged."""
+    n = rows.size
+    d = dist.cf_quantile(1 - tail if upper else tail)[rows]
+    lo, hi = dist.low[rows].copy(), dist.high[rows].copy()
+    d = np.clip(d, lo + 1e-3 * (hi - lo), hi - 1e-3 * (hi - lo))
+    out = d.copy()
+    done = np.zeros(n, dtype=bool)
+    act = np.arange(n)
+    tol = 1e-11 * dist.sd[rows]
+    for _ in range(_MAX_ITER):
+        r = rows[act]
+        F, S, logf, dlog = dist.evaluate(d, r)
+        # residual increasing in d
+        res = (F - tail) if not upper else (tail - S)
+        lo[act] = np.where(res < 0, d, lo[act])
+        hi[act] = np.where(res < 0, hi[act], d)
+        f = np.exp(logf)
+        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+            nw = -res / f
+            step = nw / np.clip(1 - 0.5 * nw * dlog, 0.5, 2.0)
+        new = d + step
+        bad = ~np.isfinite(new) | (new <= lo[act]) | (new >= hi[act])
+        new = np.where(bad, 0.5 * (lo[act] + hi[act]), new)
+        fin = (~bad & (np.abs(step) <= tol[act])) | (hi[act] - lo[act] <= tol[act])
+        out[act] = new
+        done[act[fin]] = True
+        act, d = act[~fin], new[~fin]
+        if act.size == 0:
+            break
+    return out, done
+
+
+def _effect_shortest(dist: _EffectDistribution, coverage: float, rows: np.ndarray
+                     ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Highest-density interval per row (unimodal rows): Newton on
+    ``(1 - F(lo) - S(hi) - coverage, log f(hi) - log f(lo))``, steps halved while they do
+    not reduce the residual, from the Cornish-Fisher equal-tailed interval."""
+    tail = (1 - coverage) / 2
+    lo = dist.cf_quantile(tail)[rows]
+    hi = dist.cf_quantile(1 - tail)[rows]
+    sd = dist.sd[rows]
+    n = rows.size
+    done = np.zeros(n, dtype=bool)
+    act = np.arange(n)
+
+    def residual(lo_, hi_, r):
+        F_lo, _, lf_lo, g_lo = dist.evaluate(lo_, r)
+        _, S_hi, lf_hi, g_hi = dist.evaluate(hi_, r)
+        r1 = 1.0 - F_lo - S_hi - coverage
+        r2 = lf_hi - lf_lo
+        return r1, r2, np.exp(lf_lo), np.exp(lf_hi), g_lo, g_hi
+
+    r1, r2, f_lo, f_hi, g_lo, g_hi = residual(lo, hi, rows)
+    for _ in range(60):
+        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+            det = f_hi * g_lo - f_lo * g_hi
+            # J = [[-f_lo, f_hi], [-g_lo, g_hi]], J (dlo, dhi) = -(r1, r2)
+            dlo = (-r1 * g_hi + f_hi * r2) / det
+            dhi = (f_lo * r2 - g_lo * r1) / det
+        # relative residual: r1 in probability, r2 in log density (scaled by the steps)
+        norm = np.abs(r1) / np.maximum(f_lo, 1e-300) / sd[act] + np.abs(r2)
+        scale_step = np.ones(act.size)
+        accepted = np.zeros(act.size, dtype=bool)
+        new = None
+        for _half in range(30):
+            nlo = lo[act] + scale_step * dlo
+            nhi = hi[act] + scale_step * dhi
+            valid = np.isfinite(nlo) & np.isfinite(nhi) & (nlo < nhi)
+            nlo = np.where(valid, nlo, lo[act])
+            nhi = np.where(valid, nhi, hi[act])
+            new = residual(nlo, nhi, rows[act])
+            nnorm = np.abs(new[0]) / np.maximum(new[2], 1e-300) / sd[act] + np.abs(new[1])
+            good = valid & np.isfinite(nnorm) & (nnorm < norm)
+            tiny = (np.abs(dlo) <= 1e-11 * sd[act]) & (np.abs(dhi) <= 1e-11 * sd[act])
+            accepted = good | tiny | accepted
+            if accepted.all():
+                break
+            scale_step = np.where(accepted, scale_step, 0.5 * scale_step)
+        step_size = np.maximum(np.abs(scale_step * dlo), np.abs(scale_step * dhi))
+        moved = accepted & valid
+        lo[act] = np.where(moved, nlo, lo[act])
+        hi[act] = np.where(moved, nhi, hi[act])
+        r1 = np.where(moved, new[0], r1)
+        r2 = np.where(moved, new[1], r2)
+        f_lo = np.where(moved, new[2], f_lo)
+        f_hi = np.where(moved, new[3], f_hi)
+        g_lo = np.where(moved, new[4], g_lo)
+        g_hi = np.where(moved, new[5], g_hi)
+        fin = (step_size <= 1e-10 * sd[act]) & (np.abs(r1) <= 1e-12) & accepted
+        stuck = ~accepted
+        done[act[fin]] = True
+        keep = ~(fin | stuck)
+        act = act[keep]
+        r1, r2, f_lo, f_hi, g_lo, g_hi = (v[keep] for v in (r1, r2, f_lo, f_hi, g_lo, g_hi))
+        if act.size == 0:
+            break
+    return lo, hi, done
+
+
+def _effect_window(dist: _EffectDistribution, length: float, hd: bool, rows: np.ndarray
+                   ) -> tuple[np.ndarray, np.ndarray]:
+    """Probability of the best window of ``length`` (equal densities at its ends) or of
+    the window with equal tails, per row: safeguarded Newton on the window's start."""
+    n = rows.size
+    sd = dist.sd[rows]
+    t0 = special.ndtr(-0.5 * length / sd)
+    c = 0.5 * (dist.cf_quantile(t0)[rows] + dist.cf_quantile(1 - t0)[rows]) - 0.5 * length
+    lo = dist.low[rows] - length
+    hi = dist.high[rows].copy()
+    c = np.clip(c, lo + 1e-6 * (hi - lo), hi - 1e-6 * (hi - lo))
+    out = np.zeros(n)
+    done = np.zeros(n, dtype=bool)
+    act = np.arange(n)
+    tol = 1e-11 * sd
+    for _ in range(_MAX_ITER):
+        r = rows[act]
+        F0, _, lf0, g0 = dist.evaluate(c, r)
+        _, S1, lf1, g1 = dist.evaluate(c + length, r)
+        mass = 1.0 - F0 - S1
+        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+            if hd:
+                # h = log f(c + L) - log f(c), decreasing in c
+                h = lf1 - lf0
+                h = np.where(np.isneginf(lf1) & np.isneginf(lf0),
+                             np.where(c + 0.5 * length < dist.mean[r], 1.0, -1.0), h)
+                step = -h / (g1 - g0)
+                res_pos = h > 0
+            else:
+                h = F0 - S1                       # increasing in c
+                step = -h / (np.exp(lf0) + np.exp(lf1))
+                res_pos = h < 0
+        lo[act] = np.where(res_pos, c, lo[act])
+        hi[act] = np.where(res_pos, hi[act], c)
+        new = c + step
+        bad = ~np.isfinite(new) | (new <= lo[act]) | (new >= hi[act])
+        new = np.where(bad, 0.5 * (lo[act] + hi[act]), new)
+        fin = (~bad & (np.abs(step) <= tol[act])) | (hi[act] - lo[act] <= tol[act])
+        out[act] = mass
+        done[act[fin]] = True
+        act, c = act[~fin], new[~fin]
+        if act.size == 0:
+            break
+    return np.clip(out, 0.0, 1.0), done
+
+
+def effect_interval_widths(a_t: np.ndarray, b_t: np.ndarray, a_c: np.ndarray,
+                           b_c: np.ndarray, *, scale: str, coverage: float, interval: str
+                           ) -> tuple[np.ndarray, np.ndarray]:
+    """Width of the posterior interval of a two-arm effect, per data set, by quadrature.
+
+    The effect is ``g(p_t) - g(p_c)`` with independent ``p_t ~ Beta(a_t, b_t)`` and
+    ``p_c ~ Beta(a_c, b_c)``, ``g`` the identity (``"difference"``), logit
+    (``"log_odds_ratio"``) or log (``"log_risk_ratio"``). Its distribution function is one
+    integral over the arm with the smaller spread (see the section's comment).
+
+    Returns
+    -------
+    widths, done
+        ``done`` is False where the quadrature does not apply (a beta density with an
+        infinite peak on the scale, a shape below 1) or, for the highest-density interval,
+        where the effect's density is not known to be unimodal (neither arm log-concave on
+        the scale); the width there is NaN.
+
+    Examples
+    --------
+    >>> w, ok = effect_interval_widths(np.array([41.0]), np.array([61.0]), np.array([41.0]),
+    ...                                np.array([61.0]), scale="difference", coverage=0.95,
+    ...                                interval="equal_tailed")
+    >>> from scipy import integrate, stats  # the same two arms: D is symmetric about 0
+    >>> below = integrate.quad(lambda p: stats.beta.pdf(p, 41, 61)
+    ...                        * stats.beta.cdf(p - w[0] / 2, 41, 61), 0, 1, epsabs=1e-14)[0]
+    >>> bool(ok[0]), round(below, 9)
+    (True, 0.025)
+    """
+    return _effect_intervals(a_t, b_t, a_c, b_c, scale, coverage, interval)[:2]
+
+
+def _effect_intervals(a_t, b_t, a_c, b_c, scale, coverage, interval):
+    dist = _EffectDistribution(a_t, b_t, a_c, b_c, scale)
+    n = dist.mean.size
+    lo, hi = np.full(n, np.nan), np.full(n, np.nan)
+    done = np.zeros(n, dtype=bool)
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore", under="ignore"):
+        if interval == "highest_density":
+            rows = np.flatnonzero(dist.unimodal)
+            if rows.size:
+                lo[rows], hi[rows], done[rows] = _effect_shortest(dist, coverage, rows)
+        else:
+            rows = np.flatnonzero(dist.ok)
+            if rows.size:
+                tail = (1 - coverage) / 2
+                lo[rows], ok_lo = _effect_quantile(dist, tail, False, rows)
+                hi[rows], ok_hi = _effect_quantile(dist, tail, True, rows)
+                done[rows] = ok_lo & ok_hi
+    width = np.where(done, hi - lo, np.nan)
+    return width, done, lo, hi
+
+
+def effect_window_coverage(a_t: np.ndarray, b_t: np.ndarray, a_c: np.ndarray,
+                           b_c: np.ndarray, *, scale: str, length: float, interval: str
+                           ) -> tuple[np.ndarray, np.ndarray]:
+    """Posterior probability of the best window of ``length`` for a two-arm effect (the
+    window with equal densities at its ends; with ``"equal_tailed"``, equal tails), per
+    data set. ``done`` as in :func:`effect_interval_widths`.
+
+    Examples
+    --------
+    >>> c, ok = effect_window_coverage(np.array([51.0]), np.array([51.0]),
+    ...                                np.array([51.0]), np.array([51.0]),
+    ...                                scale="difference", length=0.2,
+    ...                                interval="highest_density")
+    >>> from scipy import integrate, stats  # the same two arms: the window is [-0.1, 0.1]
+    >>> below = integrate.quad(lambda p: stats.beta.pdf(p, 51, 51)
+    ...                        * stats.beta.cdf(p - 0.1, 51, 51), 0, 1, epsabs=1e-14)[0]
+    >>> bool(ok[0]), round(float(c[0]), 9) == round(1 - 2 * below, 9)
+    (True, True)
+    """
+    dist = _EffectDistribution(a_t, b_t, a_c, b_c, scale)
+    n = dist.mean.size
+    cov = np.full(n, np.nan)
+    done = np.zeros(n, dtype=bool)
+    hd = interval == "highest_density"
+    rows = np.flatnonzero(dist.unimodal if hd else dist.ok)
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore", under="ignore"):
+        if rows.size:
+            cov[rows], done[rows] = _effect_window(dist, length, hd, rows)
+    return np.where(done, cov, np.nan), done
 
 
 # ------------------------------------------------------------------------------------------

@@ -578,12 +578,17 @@ class OneProportion(PrecisionModel):
         rate = _draw_rates(self.design, draws, _parameter_rng(seed))
         rng = _data_rng(seed, n)
         x = rng.binomial(n, rate)
-        width, cover = _posterior_draw_stats(
-            lambda rows, r: r.beta(self.prior.a + x[rows, None],
-                                   self.prior.b + n - x[rows, None],
-                                   (rows.size, posterior_draws)),
-            draws, rng, coverage, length, interval)
-        return engine.summarise_simulated(width, cover, likely_share)
+        # each data set's posterior interval exactly (no posterior draws: their noise
+        # would widen the distribution of widths and bias its quantiles)
+        a, b = self.prior.a + x, self.prior.b + n - x
+        hd = interval == "highest_density"
+        lo, hi = (engine.beta_shortest_interval if hd
+                  else engine.beta_equal_tailed_interval)(a, b, coverage)
+        cover = None
+        if length is not None:
+            cover = (engine.beta_best_coverage if hd
+                     else engine.beta_equal_tailed_coverage)(a, b, length)
+        return engine.summarise_simulated(hi - lo, cover, likely_share)
 
     def describe(self) -> str:
         return f"one proportion; analysis prior beta({self.prior.a:g}, {self.prior.b:g})"
@@ -798,15 +803,45 @@ class TwoProportions(TwoArmSizing, PrecisionModel):
         x_c = rng.binomial(n_c, rate_c)
         x_t = rng.binomial(n_t, rate_t)
         pc, pt = self.control_prior, self.treatment_prior
+        width, cover = self._exact_per_data_set(x_t, x_c, int(n_t), int(n_c), coverage,
+                                                length, interval)
+        # data sets the quadrature does not serve (a posterior with an infinite peak on the
+        # scale: a prior shape below 1 and no responders, or all) take posterior draws
+        rest = np.flatnonzero(~np.isfinite(width) | (
+            ~np.isfinite(cover) if cover is not None else False))
+        if rest.size:
+            def sampler(rows: np.ndarray, r: np.random.Generator) -> np.ndarray:
+                k = rest[rows]
+                shape = (rows.size, posterior_draws)
+                post_t = r.beta(pt.a + x_t[k, None], pt.b + n_t - x_t[k, None], shape)
+                post_c = r.beta(pc.a + x_c[k, None], pc.b + n_c - x_c[k, None], shape)
+                return self._effect(post_t, post_c)
 
-        def sampler(rows: np.ndarray, r: np.random.Generator) -> np.ndarray:
-            shape = (rows.size, posterior_draws)
-            post_t = r.beta(pt.a + x_t[rows, None], pt.b + n_t - x_t[rows, None], shape)
-            post_c = r.beta(pc.a + x_c[rows, None], pc.b + n_c - x_c[rows, None], shape)
-            return self._effect(post_t, post_c)
-
-        width, cover = _posterior_draw_stats(sampler, draws, rng, coverage, length, interval)
+            w_rest, c_rest = _posterior_draw_stats(sampler, rest.size, rng, coverage, length,
+                                                   interval)
+            width[rest] = w_rest
+            if cover is not None:
+                cover[rest] = c_rest
         return engine.summarise_simulated(width, cover, likely_share)
+
+    def _exact_per_data_set(self, x_t: np.ndarray, x_c: np.ndarray, n_t: int, n_c: int,
+                            coverage: float, length: float | None, interval: str
+                            ) -> tuple[np.ndarray, np.ndarray | None]:
+        """Each data set's interval width (and fixed-length coverage) from its two beta
+        posteriors by quadrature (NaN where it does not apply); each distinct pair of counts
+        is computed once."""
+        pc, pt = self.control_prior, self.treatment_prior
+        pairs, back = np.unique(np.stack([x_t, x_c]), axis=1, return_inverse=True)
+        back = back.ravel()
+        a_t, b_t = pt.a + pairs[0], pt.b + n_t - pairs[0]
+        a_c, b_c = pc.a + pairs[1], pc.b + n_c - pairs[1]
+        width, _ = engine.effect_interval_widths(a_t, b_t, a_c, b_c, scale=self.scale,
+                                                 coverage=coverage, interval=interval)
+        cover = None
+        if length is not None:
+            cover = engine.effect_window_coverage(a_t, b_t, a_c, b_c, scale=self.scale,
+                                                  length=length, interval=interval)[0][back]
+        return width[back], cover
 
     def describe(self) -> str:
         what = {"difference": "difference of two proportions",
