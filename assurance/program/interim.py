@@ -103,7 +103,7 @@ def bivariate_normal_upper(h: Any, k: Any, rho: Any) -> np.ndarray:
     hh, kk, rr, ss = h[fin], k[fin], rho[fin], s[fin]
 
     def t_term(x: np.ndarray, y: np.ndarray) -> np.ndarray:
-        with np.errstate(divide="ignore", invalid="ignore"):
+        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
             a = (y - rr * x) / (x * ss)
         # at x = 0: T(0, +-inf) = +-1/4 (sign of y - rho x = y); T(0, 0) via atan
         zero = x == 0
