@@ -1,0 +1,303 @@
+"""The program plan: the program file, the output folder, the memo (also in a browser).
+
+The memo's numbers are checked against the plan's own results with the rounding the memo
+promises (one decimal of a percent), written out here; the provenance's SHA-256 against
+``hashlib``; the folder's CSV files against the plan. The invented case study
+``case_studies/programs/phase2_then_phase3`` is planned once for the module.
+"""
+
+from __future__ import annotations
+
+import csv
+import dataclasses
+import hashlib
+import re
+import shutil
+import subprocess
+from html.parser import HTMLParser
+from pathlib import Path
+
+import pytest
+
+import assurance as asr
+from assurance.design_file.program_file import read_program_file
+from assurance.errors import AssuranceInputError, DesignFileError
+from assurance.program.development import CHECK_LIMIT, ProgramDesign
+from assurance.program_plan import ProgramPlan, program_plan
+from assurance.report.output_folder import claim_output_folder, write_outputs
+
+ROOT = Path(__file__).resolve().parents[1]
+CASE = ROOT / "case_studies" / "programs" / "phase2_then_phase3"
+PROGRAM = CASE / "program.toml"
+
+DESIGN = """[endpoint]
+sd = 10
+analysis = "z"
+[success]
+alpha = 0.1
+[design_prior]
+family = "normal"
+mean = 4
+sd = 2
+"""
+
+
+class _Keys(HTMLParser):
+    """Text of every element carrying a data-key; section ids in order; all text."""
+
+    def __init__(self) -> None:
+        super().__init__()
+        self.values: dict[str, str] = {}
+        self.order: list[str] = []
+        self.text: list[str] = []
+        self._key: str | None = None
+
+    def handle_starttag(self, tag, attrs):
+        a = dict(attrs)
+        if tag == "h1":
+            self.order.append("h1")
+        if tag == "section":
+            self.order.append(a.get("id", ""))
+        if "data-key" in a:
+            self._key = a["data-key"]
+            self.values[self._key] = ""
+
+    def handle_endtag(self, tag):
+        if tag in ("div", "p"):
+            self._key = None
+
+    def handle_data(self, data):
+        self.text.append(data)
+        if self._key is not None:
+            self.values[self._key] += data.strip()
+
+
+def _parse(page: str) -> _Keys:
+    parsed = _Keys()
+    parsed.feed(page)
+    return parsed
+
+
+def _pct(p: float) -> str:
+    """One decimal of a percent (the memo's rounding for probabilities away from 0 and 1)."""
+    return f"{100 * p:.1f}%"
+
+
+@pytest.fixture(scope="module")
+def case():
+    plan = ProgramPlan.from_file(PROGRAM)
+    return dataclasses.replace(plan, made_by="assurance program program.toml --out x")
+
+
+@pytest.fixture(scope="module")
+def written(case, tmp_path_factory):
+    out = tmp_path_factory.mktemp("program") / "out"
+    with claim_output_folder(out) as claim:  # as the command line does
+        write_outputs(out, case, claim=claim, formats=("png", "svg"))
+    return out
+
+
+def _small(tmp_path: Path, program_text: str) -> Path:
+    (tmp_path / "trial.toml").write_text(DESIGN, encoding="utf-8")
+    path = tmp_path / "program.toml"
+    path.write_text(program_text, encoding="utf-8")
+    return path
+
+
+SMALL = """title = "Small program"
+[phase2]
+design = "trial.toml"
+n = 100
+[phase3]
+design = "trial.toml"
+n = 400
+[check]
+programs = 0
+"""
+
+
+# ------------------------------------------------------------------------------------------
+# the case study
+# ------------------------------------------------------------------------------------------
+def test_case_study_is_kept_out_of_the_design_glob():
+    assert not list(ROOT.glob("case_studies/programs/design.toml"))
+    assert PROGRAM.is_file() and (CASE / "phase2.toml").is_file()
+
+
+def test_case_study_plan_and_its_check(case):
+    r, q = case.result, case.replanned
+    assert q is not None and q.replanned and not r.replanned
+    assert 0 < r.pos < r.p_go < 1
+    assert case.check_passes() is True
+    rows = case.check_rows()
+    assert {row["program"] for row in rows} == {"fixed", "replanned"}
+    for row in rows:  # each computed figure within CHECK_LIMIT MC SE of the simulated one
+        assert abs(row["computed"] - row["simulated"]) <= CHECK_LIMIT * row["mcse"]
+    assert case.input_paths == (PROGRAM, CASE / "phase2.toml", CASE / "phase3.toml")
+    text = case.summary()
+    assert f"{r.pos:.3f}" in text and "passes" in text
+
+
+def test_output_folder_holds_every_file(case, written):
+    names = sorted(p.relative_to(written).as_posix() for p in written.rglob("*")
+                   if p.is_file())
+    for name in ("results.csv", "grid.csv", "replan.csv", "check.csv", "results.nc",
+                 "memo.html", "figures/by_effect.png", "figures/grid.svg",
+                 "figures/replan.png", "inputs/program.toml", "inputs/phase2.toml",
+                 "inputs/phase3.toml", ".assurance-output"):
+        assert name in names, name
+    for name in ("program.toml", "phase2.toml", "phase3.toml"):  # byte-for-byte copies
+        assert (written / "inputs" / name).read_bytes() == (CASE / name).read_bytes()
+    with open(written / "results.csv", encoding="utf-8") as fh:
+        rows = {row["quantity"]: row for row in csv.DictReader(fh)}
+    assert float(rows["pos"]["phase3_fixed"]) == pytest.approx(case.result.pos, rel=1e-5)
+    assert float(rows["pos"]["phase3_replanned"]) == pytest.approx(case.replanned.pos,
+                                                                   rel=1e-5)
+    with open(written / "grid.csv", encoding="utf-8") as fh:
+        grid = list(csv.DictReader(fh))
+    assert len(grid) == case.grid.sizes["phase2_n"] * case.grid.sizes["go_rule"]
+    import xarray as xr
+
+    with xr.open_dataset(written / "results.nc", engine="scipy") as ds:
+        assert float(ds.attrs["fixed_pos"]) == pytest.approx(case.result.pos)
+        assert ds["pos"].shape == case.grid["pos"].shape
+
+
+def test_the_folder_holding_the_inputs_is_never_replaced(case, tmp_path):
+    with pytest.raises(AssuranceInputError, match="holds the design file"):
+        case.write(CASE, overwrite=True)
+
+
+def test_memo_shows_the_plans_numbers_provenance_and_cautions(case, written):
+    page = (written / "memo.html").read_text(encoding="utf-8")
+    dom = _parse(page)
+    r = case.replanned
+    assert dom.order[:2] == ["h1", "decision"]
+    assert dom.values["pos"] == _pct(r.pos)
+    assert dom.values["p_go"] == _pct(r.p_go)
+    assert dom.values["p_success_given_go"] == _pct(r.p_success_given_go)
+    assert dom.values["false_go"] == _pct(r.false_go)
+    assert dom.values["expected_patients"] == f"{r.expected_patients:,.0f}"
+    assert dom.values["check"] == "passes"
+    text = " ".join(" ".join(dom.text).split())
+    for path in case.input_paths:  # every input file with its SHA-256
+        assert hashlib.sha256(path.read_bytes()).hexdigest() in text
+    assert "assurance program program.toml --out x" in text
+    assert case.created in text and "20260101" in text
+    assert "ICH E9" in text and "qualified statistician" in text
+    assert "<script" not in page.lower()
+    assert not re.search(r"\bnan\b", text, re.I)
+
+
+# ------------------------------------------------------------------------------------------
+# the program file
+# ------------------------------------------------------------------------------------------
+def test_a_small_program_file_reads_paths_relative_to_itself(tmp_path):
+    path = _small(tmp_path, SMALL)
+    spec = read_program_file(path)
+    assert spec.design_paths == (tmp_path / "trial.toml", tmp_path / "trial.toml")
+    plan = ProgramPlan.from_file(path)
+    assert plan.check == {} and plan.input_paths == (path, tmp_path / "trial.toml")
+    out = plan.write(tmp_path / "out")
+    assert sorted(p.name for p in (out / "inputs").iterdir()) == ["program.toml",
+                                                                   "trial.toml"]
+    page = (out / "memo.html").read_text(encoding="utf-8")
+    assert 'data-key="no-check"' in page
+
+
+@pytest.mark.parametrize("change, expected", [
+    (("n = 100", "n = 0"), r"'phase2\.n' must be >= 1\. Got 0"),
+    (("n = 400", 'n = "400"'), r"'phase3\.n' must be a whole number\. Got '400'"),
+    (("[check]", "[chek]"), r"unknown key 'chek' in the top level\. Did you mean 'check'\?"),
+    (("n = 100", "n = 100\ngo_treshold = 2.0"),
+     r"unknown key 'go_treshold' in \[phase2\]\. Did you mean 'go_threshold'\?"),
+    (('design = "trial.toml"\nn = 100', 'design = "missing.toml"\nn = 100'),
+     r"'phase2\.design' names .*missing\.toml.*not found"),
+    (("[check]", "[replan]\ntarget = 0.8\nmin_n = 500\nmax_n = 100\n[check]"),
+     r"'replan\.max_n' must be >= 'replan\.min_n'"),
+    (("[check]", "[surrogate]\nslope = 0.0\n[check]"), r"'surrogate\.slope'"),
+])
+def test_program_file_problems_name_the_key(tmp_path, change, expected):
+    path = _small(tmp_path, SMALL.replace(*change, 1))
+    with pytest.raises(DesignFileError, match=expected):
+        read_program_file(path)
+
+
+def test_missing_tables_are_all_reported(tmp_path):
+    path = _small(tmp_path, 'title = "No phases"\n')
+    with pytest.raises(DesignFileError) as info:
+        read_program_file(path)
+    assert len(info.value.problems) == 2
+    assert "'phase2' is required" in str(info.value)
+
+
+def test_program_plan_refuses_a_non_program():
+    with pytest.raises(AssuranceInputError, match="'program' parameter of program_plan"):
+        program_plan("program.toml")
+
+
+def test_made_by_is_set_by_replace_and_shown(tmp_path):
+    ep = asr.ContinuousEndpoint(sigma=10.0, analysis="z")
+    p3 = asr.TrialDesign(ep, asr.Normal(3.0, 2.0))
+    plan = program_plan(ProgramDesign(p3, p3, n2=100, n3=400), programs=0)
+    assert plan.made_by is None
+    page = dataclasses.replace(plan, made_by="shell: assurance program x").memo_html(
+        figures=False, versions="-")
+    assert "shell: assurance program x" in page
+
+
+# ------------------------------------------------------------------------------------------
+# in a browser
+# ------------------------------------------------------------------------------------------
+BROWSER = shutil.which("chromium") or shutil.which("chromium-browser")
+#: A4 width in CSS pixels at 96 per inch (210 mm / 25.4 * 96 = 793.7) and in points (595.3)
+A4_WIDTH_PX, A4_WIDTH_PT = 794, 595.3
+PROBE = """<script>
+window.addEventListener("load", function () {
+  var images = document.images, loaded = 0;
+  for (var k = 0; k < images.length; k++) {
+    if (images[k].complete && images[k].naturalWidth > 0) loaded++;
+  }
+  document.body.setAttribute("data-images", loaded + "/" + images.length);
+  document.body.setAttribute("data-overflow",
+    String(document.documentElement.scrollWidth - document.documentElement.clientWidth));
+});
+</script>"""
+
+
+def _chromium(*args: str) -> subprocess.CompletedProcess:
+    return subprocess.run(
+        [BROWSER, "--headless", "--no-sandbox", "--disable-gpu", "--no-first-run",
+         "--disable-extensions", *args], capture_output=True, text=True, timeout=60)
+
+
+@pytest.mark.skipif(BROWSER is None,
+                    reason="headless Chromium (Debian package chromium) is not installed")
+def test_memo_in_a_browser(case, written, tmp_path):
+    page = (written / "memo.html").read_text(encoding="utf-8")
+    probe = tmp_path / "probe.html"
+    probe.write_text(page.replace("</body>", PROBE + "</body>"), encoding="utf-8")
+    shown = _chromium("--enable-logging=stderr", "--v=0", "--virtual-time-budget=5000",
+                      f"--window-size={A4_WIDTH_PX},1123", "--dump-dom", probe.as_uri())
+    assert shown.returncode == 0, shown.stderr[-2000:]
+    dom = _parse(shown.stdout)
+    assert dom.values["pos"] == _pct(case.replanned.pos)
+    images = re.search(r'data-images="(\d+)/(\d+)"', shown.stdout)
+    assert images, "the probe did not run"
+    assert int(images.group(2)) == page.count("<img ") == 3
+    assert images.group(1) == images.group(2)  # every image loaded
+    overflow = re.search(r'data-overflow="(-?\d+)"', shown.stdout)
+    assert int(overflow.group(1)) <= 0  # nothing wider than an A4-wide window
+    pdf = tmp_path / "memo.pdf"
+    printed = _chromium("--enable-logging=stderr", "--v=0", "--no-pdf-header-footer",
+                        f"--print-to-pdf={pdf}", (written / "memo.html").as_uri())
+    assert printed.returncode == 0, printed.stderr[-2000:]
+    for run in (shown, printed):
+        for line in run.stderr.splitlines():
+            if "CONSOLE" in line or "console" in line:
+                assert "Uncaught" not in line and "rror" not in line, line
+    boxes = re.findall(rb"/MediaBox\s*\[\s*([-\d.]+)\s+([-\d.]+)\s+([-\d.]+)\s+([-\d.]+)\s*\]",
+                       pdf.read_bytes())
+    assert boxes
+    for x0, _, x1, _ in boxes:
+        assert float(x1) - float(x0) == pytest.approx(A4_WIDTH_PT, abs=1.0)
