@@ -286,7 +286,8 @@ class InterimPlan:
 def _fmt(value: Any) -> str:
     if isinstance(value, str):
         return value
-    return f"{float(value):.6g}"
+    number = float(value)
+    return f"{number:.6g}" if number == number else ""  # NaN (size unknown): empty
 
 
 def interim_look(design: Any, data: InterimData, *, planned_total: int | None = None,

@@ -78,6 +78,13 @@ def test_bivariate_upper_matches_scipy(rho):
             assert float(bivariate_normal_upper(h, k, rho)) == pytest.approx(want, abs=2e-7)
 
 
+def test_bivariate_upper_tiny_arguments():
+    # a product of tiny limits underflows to 0; independence gives the product of tails
+    for h, k in ((5e-324, -0.5), (-5e-324, 0.5), (1e-300, 1e-300)):
+        want = stats.norm.sf(h) * stats.norm.sf(k)
+        assert float(bivariate_normal_upper(h, k, 0.0)) == pytest.approx(want, abs=1e-12)
+
+
 def test_bivariate_upper_infinite_limits():
     assert float(bivariate_normal_upper(-np.inf, 0.3, 0.5)) == pytest.approx(
         stats.norm.sf(0.3), abs=1e-15)

@@ -105,7 +105,7 @@ def bivariate_normal_upper(h: Any, k: Any, rho: Any) -> np.ndarray:
     def t_term(x: np.ndarray, y: np.ndarray) -> np.ndarray:
         with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
             a = (y - rr * x) / (x * ss)
-        # at x = 0: T(0, +-inf) = +-1/4 (sign of y - rho x = y); T(0, 0) via atan
+        # at x = 0: T(0, +-inf) = +-1/4 (the sign of y); both 0 is handled below
         zero = x == 0
         safe = np.where(zero, 1.0, a)
         value = special.owens_t(x, safe)
@@ -113,7 +113,9 @@ def bivariate_normal_upper(h: Any, k: Any, rho: Any) -> np.ndarray:
         return np.where(zero, at_zero, value)
 
     both_zero = (hh == 0) & (kk == 0)
-    beta = np.where((hh * kk < 0) | ((hh * kk == 0) & (hh + kk < 0)), 0.5, 0.0)
+    # signs, not the product, which underflows to 0 for tiny arguments
+    sign = np.sign(hh) * np.sign(kk)
+    beta = np.where((sign < 0) | ((sign == 0) & (hh + kk < 0)), 0.5, 0.0)
     value = 0.5 * (_ndtr(hh) + _ndtr(kk)) - t_term(hh, kk) - t_term(kk, hh) - beta
     value = np.where(both_zero, 0.25 + np.arcsin(rr) / (2 * np.pi), value)
     out[fin] = value
@@ -462,7 +464,7 @@ class InterimData:
         e_c = check_real(control_exposure, "control_exposure", owner, low=0, low_open=True)
         return cls((x_t / e_t) / (x_c / e_c), math.sqrt(1 / x_t + 1 / x_c),
                    description=f"{x_t} events in {e_t:g} exposure on treatment, {x_c} in "
-                               f"{e_c:g} on control")
+                               f"{e_c:g} on control (Poisson standard error)")
 
 
 # ------------------------------------------------------------------------------------------
@@ -933,6 +935,13 @@ def evaluate_interim(design: Any, data: InterimData, *, planned_total: int | Non
     if t > 0.95:
         notes.append(f"The interim holds {100 * t:.1f}% of the final information: the "
                      "final result is nearly decided already.")
+    if getattr(ep, "test", None) not in (None, "z", "wald"):
+        notes.append(f"The final analysis uses the {ep.test.replace('_', ' ')} test; the "
+                     "interim look uses the normal approximation of the estimate.")
+    if getattr(ep, "overdispersion", 0.0) and data.description.endswith(
+            "(Poisson standard error)"):
+        notes.append("The interim standard error comes from Poisson counts; with the "
+                     "design's overdispersion the interim holds less information than this.")
     if getattr(ep, "analysis", "z") == "t":
         notes.append("The final analysis is a t test; the interim look uses its normal "
                      "approximation (z critical values).")

@@ -97,7 +97,7 @@ def _decision(look: Any) -> dict[str, Any]:
          "note": f"if it sees the interim estimate {_effect(look, look.data.estimate)}"},
         {"label": "Where the boundaries stand", "key": "decision",
          "value": look.decision, "failed": look.decision == "stop for futility",
-         "note": f"futility below {_p(look.futility)}, efficacy above {_p1(look.efficacy)}"},
+         "note": f"futility below {_p1(look.futility)}, efficacy above {_p1(look.efficacy)}"},
     ]
     sentences = [
         f"The interim estimate is {_effect(look, look.data.estimate)} with "
