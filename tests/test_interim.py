@@ -407,3 +407,19 @@ def test_ratio_endpoint_look_runs_on_the_log_scale():
     assert look.estimate == pytest.approx(-math.log(0.8))
     assert 0 < look.fraction < 1
     assert look.natural(look.futility_cut) > look.natural(look.efficacy_cut)  # lower better
+
+
+@given(est=st.floats(-4, 8), se1=st.floats(1.5, 20), fut=st.floats(0, 0.5),
+       eff=st.floats(0.6, 1.0), which=st.sampled_from(["analysis", "design"]))
+@settings(max_examples=25, deadline=None)
+def test_operating_characteristics_are_probabilities(est, se1, fut, eff, which):
+    prior = Mixture([PointMass(0.0), Normal(4.0, 2.0)], [0.2, 0.8])
+    look = evaluate_interim(_design(prior), InterimData(est, standard_error=se1),
+                            planned_total=200, futility=fut, efficacy=eff,
+                            prediction_prior=which)
+    for row in look.operating:
+        assert 0 <= row.p_futility and 0 <= row.p_efficacy
+        assert row.p_futility + row.p_efficacy <= 1 + 1e-12
+        assert row.p_efficacy - 1e-12 <= row.p_success <= 1
+        assert look.fraction - 1e-12 <= row.expected_fraction <= 1 + 1e-12
+    assert 0 <= look.predictive[which] <= 1
