@@ -77,7 +77,7 @@ class InterimPlan:
     # ---- making one ----------------------------------------------------------------------
     @classmethod
     def from_file(cls, path: str | os.PathLike[str]) -> InterimPlan:
-        """Read an interim file (and the design file it names) and compute the look.
+        r"""Read an interim file (and the design file it names) and compute the look.
 
         Parameters
         ----------
@@ -95,9 +95,17 @@ class InterimPlan:
 
         Examples
         --------
-        >>> p = InterimPlan.from_file("case_studies/programs/interim_look/interim.toml")
+        >>> import tempfile, pathlib
+        >>> design = "[endpoint]\nsd = 10\nanalysis = 'z'\n[design_prior]\nmean = 4\nsd = 2\n"
+        >>> design += "family = 'normal'\n[sizes]\nplanned = 200\n"
+        >>> look = "design = 'trial.toml'\n[interim]\nestimate = 3.0\n"
+        >>> look += "information_fraction = 0.5\n"
+        >>> with tempfile.TemporaryDirectory() as folder:
+        ...     _ = pathlib.Path(folder, "trial.toml").write_text(design)
+        ...     _ = pathlib.Path(folder, "look.toml").write_text(look)
+        ...     p = InterimPlan.from_file(pathlib.Path(folder, "look.toml"))
         >>> p.look.decision, round(p.look.fraction, 3)
-        ('continue', 0.453)
+        ('continue', 0.5)
         """
         from .design_file.interim_file import read_interim_file
         from .errors import DesignFileError
