@@ -172,8 +172,8 @@ class ProgramPlan:
                  f"  phase 3 ({r.n3} patients): P(go) {r.p_go:.3f}, P(success | go) "
                  f"{r.p_success_given_go:.3f}, program probability of success {r.pos:.3f}",
                  f"  P(go and the drug works) {r.p_go_and_works:.3f}; false-go rate "
-                 f"{r.false_go:.3f}; expected patients {r.expected_patients:,.0f}, expected "
-                 f"months {r.expected_months:.1f}"]
+                 f"{r.false_go:.3f}; expected patients {r.expected_patients:,.0f}"
+                 + (f", expected months {r.expected_months:.1f}" if r.expected_months else "")]
         if self.replanned is not None:
             q = self.replanned
             lines.append(f"  phase 3 re-planned from phase 2: program probability of success "

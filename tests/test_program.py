@@ -296,3 +296,41 @@ def test_simulation_is_repeatable_with_its_seed():
     a = simulate_program(program, programs=2000, seed=9)
     assert a == simulate_program(program, programs=2000, seed=9)
     assert a != simulate_program(program, programs=2000, seed=10)
+
+
+def test_other_endpoints_use_their_own_power_and_refuse_what_they_cannot_do():
+    # a binary phase 2 (exact test) before a time-to-event phase 3; the phase 2 response
+    # difference follows -0.3 x the log hazard ratio
+    surv = asr.SurvivalEndpoint(control_median=12.0, accrual_time=24.0, follow_up_time=12.0,
+                                assumed_hazard_ratio=0.75)
+    prior = asr.Normal(math.log(0.75), 0.1)
+    p2 = asr.TrialDesign(asr.BinaryEndpoint(control_rate=0.3), asr.Normal(0.1, 0.05),
+                         rule=asr.Significance(alpha=0.1))
+    program = ProgramDesign(p2, asr.TrialDesign(surv, prior), n2=40, n3=600,
+                            surrogate=Surrogate(0.0, -0.3, 0.0))
+    r = program_result(program)
+    assert 0 < r.pos < r.p_go < 1
+    # no effect: P(go) is the pooled two-proportion z test's rejection rate at 0.3 vs 0.3
+    # with 20 patients an arm, enumerated here with scipy.stats.binom (the z test is the
+    # endpoint's default test; identical rates give no test statistic and no go)
+    null = replace_prior(program, asr.PointMass(0.0))
+    x = np.arange(21)
+    xt, xc = np.meshgrid(x, x, indexing="ij")
+    pooled = (xt + xc) / 40
+    with np.errstate(divide="ignore", invalid="ignore"):
+        z = (xt / 20 - xc / 20) / np.sqrt(pooled * (1 - pooled) * (2 / 20))
+    reject = np.nan_to_num(z, nan=-np.inf) > Z.ppf(0.9)
+    pmf = stats.binom.pmf(x, 20, 0.3)
+    level = float((np.outer(pmf, pmf) * reject).sum())
+    assert program_result(null).p_go == pytest.approx(level, abs=1e-9)
+    with pytest.raises(AssuranceInputError, match="'go_threshold' parameter"):
+        program_result(program, go_threshold=0.05)
+    wide = replace_prior(program, asr.Normal(0.0, 2.0))  # rates far outside [0, 1]
+    with pytest.raises(AssuranceInputError, match="prior probability"):
+        program_result(wide)
+
+
+def replace_prior(program, prior):
+    from dataclasses import replace
+
+    return replace(program, phase3=replace(program.phase3, design_prior=prior))

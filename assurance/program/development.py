@@ -289,7 +289,15 @@ class ProgramDesign:
         threshold = self.go_threshold if go_threshold is None else go_threshold
         if threshold is None:
             return self.phase2
-        return replace(self.phase2, rule=MinimumEstimate(float(threshold)))
+        design = replace(self.phase2, rule=MinimumEstimate(float(threshold)))
+        try:
+            _calc(design)
+        except AssuranceInputError as exc:
+            raise AssuranceInputError(
+                f"The 'go_threshold' parameter of ProgramDesign cannot be used with this phase "
+                f"2 endpoint ({exc}). Leave the go threshold out and let phase 2's success "
+                f"rule decide. Got {threshold!r}.") from None
+        return design
 
     def go_rule_text(self, go_threshold: float | None = None) -> str:
         """The go rule in plain words."""
@@ -373,42 +381,94 @@ def _calc(design: TrialDesign) -> Any:
     return _calculator(design, DEFAULT_DRAWS, DEFAULT_SEED)
 
 
-def _power_matrix(design: TrialDesign, benefit: np.ndarray, sizes: Sequence[int]) -> np.ndarray:
-    """Power at each benefit-scale effect (rows) and total size (columns)."""
+#: prior mass allowed on effects an endpoint cannot have (a rate outside [0, 1], say)
+MAX_OUTSIDE = 1e-6
+
+
+def _power_matrix(design: TrialDesign, benefit: np.ndarray, sizes: Sequence[int],
+                  outside: list[np.ndarray] | None = None) -> np.ndarray:
+    """Power at each benefit-scale effect (rows) and total size (columns).
+
+    Effects the endpoint cannot have (far in a prior's tail: a rate outside [0, 1]) take
+    the power of the nearest effect it can have; their mask is appended to ``outside``
+    so the caller can check that the prior puts next to no mass there.
+    """
     calc = _calc(design)
     n_t, n_c = design.endpoint.arm_sizes(np.asarray(sizes, dtype=np.int64))
     values, inverse = np.unique(np.asarray(benefit, dtype=float).ravel(), return_inverse=True)
+    failed = np.zeros(values.size, dtype=bool)
     many = getattr(calc.engine, "powers", None)
+    table = None
     if many is not None:
-        table = np.asarray(many(values, n_t, n_c), dtype=float).reshape(values.size, -1)
-    else:
-        table = np.vstack([np.asarray(calc.engine.power(float(e), n_t, n_c), dtype=float)
-                           for e in values])
+        try:
+            table = np.asarray(many(values, n_t, n_c), dtype=float).reshape(values.size, -1)
+        except AssuranceInputError:
+            table = None
+    if table is None:
+        rows = []
+        for k, e in enumerate(values):
+            try:
+                rows.append(np.asarray(calc.engine.power(float(e), n_t, n_c), dtype=float))
+            except AssuranceInputError:
+                failed[k] = True
+                rows.append(np.full(len(sizes), np.nan))
+        if failed.all():
+            raise AssuranceInputError(
+                f"The power of {design.title!r} cannot be computed at any of the true effects "
+                "the design prior (through the surrogate line) gives; check both.")
+        table = np.vstack(rows)
+        if failed.any():
+            good = np.flatnonzero(~failed)
+            nearest = good[np.clip(np.searchsorted(good, np.flatnonzero(failed)), 0,
+                                   good.size - 1)]
+            low = np.flatnonzero(failed) < good[0]
+            nearest = np.where(low, good[0], nearest)
+            table[failed] = table[nearest]
     if not np.isfinite(table).all():
         raise AssuranceInputError(
             f"The power of {design.title!r} is not finite at some true effects; check the "
             "design's parameters.")
+    if outside is not None:
+        outside.append(failed[inverse.ravel()].reshape(np.shape(benefit)).astype(float))
     return np.clip(table[inverse.ravel()], 0.0, 1.0).reshape(*np.shape(benefit), len(sizes))
 
 
 def _go_given_effect(program: ProgramDesign, x3: np.ndarray, n2: int,
-                     go_threshold: float | None) -> np.ndarray:
+                     go_threshold: float | None,
+                     outside: list[np.ndarray] | None = None) -> np.ndarray:
     """P(go | phase 3 effect) at each node ``x3`` (analysis scale)."""
     design = program.go_design(n2, go_threshold)
     ep = design.endpoint
     sur = program.surrogate
     mean2 = sur.mean_effect(x3)
     if sur.sd == 0:
-        return _power_matrix(design, ep.sign * mean2, [n2])[:, 0]
+        return _power_matrix(design, ep.sign * mean2, [n2], outside)[:, 0]
     z, w = _hermite()
     effects = ep.sign * (mean2[:, None] + sur.sd * z[None, :])
-    return _power_matrix(design, effects, [n2])[..., 0] @ w
+    found: list[np.ndarray] = []
+    go = _power_matrix(design, effects, [n2], found)[..., 0] @ w
+    if outside is not None:
+        outside.append(found[0] @ w)
+    return go
 
 
 def _success_given_effect(program: ProgramDesign, x3: np.ndarray,
-                          sizes: Sequence[int]) -> np.ndarray:
+                          sizes: Sequence[int],
+                          outside: list[np.ndarray] | None = None) -> np.ndarray:
     design = program.phase3
-    return _power_matrix(design, design.endpoint.sign * x3, sizes)
+    return _power_matrix(design, design.endpoint.sign * x3, sizes, outside)
+
+
+def _check_outside(outside: list[np.ndarray], w: np.ndarray, program: ProgramDesign) -> None:
+    if not outside:
+        return
+    mass = float(w @ np.max(np.vstack(outside), axis=0))
+    if mass > MAX_OUTSIDE:
+        raise AssuranceInputError(
+            f"The program {program.title!r} gives true effects an endpoint cannot have (a "
+            f"response rate outside [0, 1], say) with prior probability {mass:.3g} (at most "
+            f"{MAX_OUTSIDE:g} is allowed): narrow the phase 3 design prior or change the "
+            "surrogate line (intercept, slope, sd).")
 
 
 def _breaks(program: ProgramDesign) -> list[float]:
@@ -562,15 +622,18 @@ def program_result(program: ProgramDesign, *, n2: int | None = None,
             "The 'replanned' parameter of program_result is True, but the program has no "
             "re-planning settings (replan=None).")
     x3, w = prior_nodes(program.prior, _breaks(program))
-    alone = _success_given_effect(program, x3, [program.n3])[:, 0]
+    outside: list[np.ndarray] = []
+    alone = _success_given_effect(program, x3, [program.n3], outside)[:, 0]
     if not replanned:
-        go = _go_given_effect(program, x3, n2, go_threshold)
+        go = _go_given_effect(program, x3, n2, go_threshold, outside)
+        _check_outside(outside, w, program)
         return _finish(program, x3, w, go, go * alone, go * program.n3, n2, go_threshold,
                        alone, False)
     table = replan_table(program, n2=n2, go_threshold=go_threshold)
     bins = _bin_probabilities(program, table, x3)
     sizes = table["n3"]
-    success = _success_given_effect(program, x3, sizes)
+    success = _success_given_effect(program, x3, sizes, outside)
+    _check_outside(outside, w, program)
     return _finish(program, x3, w, bins.sum(axis=1), (bins * success).sum(axis=1),
                    bins @ sizes.astype(float), n2, go_threshold, alone, True)
 
