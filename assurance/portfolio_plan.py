@@ -57,6 +57,14 @@ __all__ = ["PortfolioPlan", "PortfolioTrial", "PortfolioSettings", "plan_portfol
 #: how the table names an exact probability of success
 EXACT = "exact (quadrature)"
 
+#: a chosen value curve is extended (its largest size doubled) at most this many times
+#: while its best size, or the flat range around it, reaches its largest size; never beyond
+#: _LARGEST_CHOSEN patients
+_EXTEND_ROUNDS = 3
+_LARGEST_CHOSEN = 200_000
+#: sizes added each time a chosen value curve is extended
+_GRID_MORE = 101
+
 _ENDPOINT_WORDS = {"ContinuousEndpoint": "continuous", "BinaryEndpoint": "binary",
                    "SurvivalEndpoint": "time to event", "CountEndpoint": "counts"}
 
@@ -365,7 +373,7 @@ class PortfolioPlan:
             line = f"  {t.name}: {t.n} patients, probability of success {t.pos:.3f} ({how})"
             if t.best is not None:
                 b = t.best
-                line += (f"; highest expected net value{unit} {b.value_best:,.1f} at {b.n_best}"
+                line += (f"; highest expected net value {b.value_best:,.1f}{unit} at {b.n_best}"
                          f" patients (within {b.share:.0%}: {b.n_low}-{b.n_high})")
                 if not b.worth_paying:
                     line += ", no size pays for itself"
@@ -442,7 +450,8 @@ def plan_portfolio(
     largest_n
         Per trial, the largest size on the curve of expected net value (None: chosen,
         twice the larger of the counted size and the size reaching the assurance target,
-        at least the plan's largest size).
+        at least the plan's largest size, and doubled up to three times while the best
+        size or the flat range around it reaches the largest).
     flat_share
         Sizes whose expected net value is within this share of the best are reported as
         the flat range (default 5%).
@@ -540,7 +549,8 @@ def plan_portfolio(
 
     # the curves over sizes: one task per closed-form or Monte Carlo design
     targets = [_target_of(p) for p in plans]
-    jobs, grids = [], []
+    tops: dict[int, int] = {}
+    bottoms: dict[int, int] = {}
     for i, p in enumerate(plans):
         if hasattr(p, "model"):
             continue
@@ -550,16 +560,39 @@ def plan_portfolio(
         top = largest_list[i]
         if top is None:
             top = max(int(grid_sizes.max()), 2 * max(counted[i], n_t or 0))
-        top = check_int(top, "largest_n", owner, low=max(smallest + 1, counted[i]))
-        smallest = min(smallest, counted[i])
-        jobs.append(i)
-        grids.append(value_grid(smallest, top, include=[counted[i], n_t or counted[i]]))
-    curves = success_curves(
-        [plans[i].design for i in jobs], grids,
-        draws=[int(plans[i].settings.draws) for i in jobs],
-        seeds=[int(plans[i].settings.seed) for i in jobs], executor=scheduler,
-        progress=progress) if jobs else []
-    curve_of = dict(zip(jobs, zip(grids, curves, strict=True), strict=True))
+        tops[i] = check_int(top, "largest_n", owner, low=max(smallest + 1, counted[i]))
+        bottoms[i] = min(smallest, counted[i])
+    curve_of: dict[int, Any] = {}
+    jobs = list(tops)
+    grids = [value_grid(bottoms[i], tops[i], include=[counted[i], targets[i][0] or counted[i]])
+             for i in jobs]
+    for _ in range(_EXTEND_ROUNDS + 1):  # a best size at the top of a chosen grid: go on
+        curves = success_curves(
+            [plans[i].design for i in jobs], grids,
+            draws=[int(plans[i].settings.draws) for i in jobs],
+            seeds=[int(plans[i].settings.seed) for i in jobs], executor=scheduler,
+            progress=progress) if jobs else []
+        for i, grid, (c_p, c_se) in zip(jobs, grids, curves, strict=True):
+            if i in curve_of:  # sizes above the earlier grid: join them on
+                old, (o_p, o_se) = curve_of[i]
+                grid = np.concatenate([old, grid])
+                c_p = np.concatenate([o_p, c_p])
+                c_se = None if o_se is None else np.concatenate([o_se, c_se])
+            curve_of[i] = (grid, (c_p, c_se))
+        again, grids = [], []
+        for i in jobs:
+            grid, (c_p, _) = curve_of[i]
+            v = value_list[i]
+            if v is None or largest_list[i] is not None or tops[i] * 2 > _LARGEST_CHOSEN:
+                continue
+            found = size_worth_paying(grid, np.clip(c_p, 0, 1), v, share=flat_share)
+            if found.n_high == int(grid[-1]):  # the best or its flat range ends at the top
+                again.append(i)
+                grids.append(value_grid(tops[i], 2 * tops[i], points=_GRID_MORE)[1:])
+                tops[i] *= 2
+        if not again:
+            break
+        jobs = again
 
     trials = []
     for i, p in enumerate(plans):

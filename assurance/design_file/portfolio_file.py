@@ -53,6 +53,7 @@ Examples
 
 from __future__ import annotations
 
+import os
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Annotated, Any
@@ -224,7 +225,7 @@ def parse_portfolio(raw: dict[str, Any], *, source: str | Path,
         values = _values(entry, table, where, label, problems)
         design_path = Path(entry.design)
         if not design_path.is_absolute():
-            design_path = source.parent / design_path
+            design_path = Path(os.path.normpath(source.parent / design_path))
         if design_path.resolve() == source.resolve():
             problems.add("", f"'{where}.design' names the portfolio file itself ({label}); "
                          "name the trial's design file.")

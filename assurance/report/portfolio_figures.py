@@ -39,6 +39,7 @@ from .figures import (
     _style,
     _title,
 )
+from .wording import percent
 
 if TYPE_CHECKING:  # pragma: no cover
     from matplotlib.figure import Figure
@@ -112,15 +113,11 @@ def plot_portfolio(plan: Any) -> Figure:
         if not t.exact:
             left.errorbar([t.pos], [yi], xerr=[[t.pos - lo], [hi - t.pos]], color=_BLACK,
                           capsize=3, linewidth=1.2)
-        text = f"{100 * t.pos:.0f}%" + ("" if t.exact else f" \u00b1{100 * (hi - t.pos):.1f}")
-        inside = t.pos > 0.55
-        left.text(t.pos - 0.02 if inside else max(hi, t.pos) + 0.02, yi, text,
-                  va="center", ha="right" if inside else "left", fontsize=9,
-                  color="white" if inside else _BLACK, fontweight="bold")
-        left.text(0.01, yi - 0.42, f"n = {t.n:,}", va="bottom", ha="left", fontsize=7.5,
-                  color="#333333")
+        text = percent(t.pos) + ("" if t.exact else f" \u00b1{100 * (hi - t.pos):.1f}")
+        left.text(max(hi, t.pos) + 0.02, yi, f"{text}   n = {t.n:,}", va="center",
+                  ha="left", fontsize=9, color=_BLACK)
     left.set_yticks(y, [_label(t.name) for t in trials], fontsize=8.8)
-    left.set_xlim(0, 1)
+    left.set_xlim(0, 1.34)  # room for the labels right of the bars
     left.set_xticks([0, 0.25, 0.5, 0.75, 1.0], ["0%", "25%", "50%", "75%", "100%"])
     left.set_xlabel("Probability of success at the size counted")
     _style(left)
@@ -140,7 +137,7 @@ def plot_portfolio(plan: Any) -> Figure:
     right.bar(counts, q, color=_SKY, edgecolor=_BLUE, width=0.7)
     for c, v in zip(counts, q, strict=True):
         if v >= 0.005:
-            right.text(c, v + 0.01, f"{100 * v:.0f}%", ha="center", va="bottom", fontsize=8)
+            right.text(c, v + 0.01, percent(v), ha="center", va="bottom", fontsize=8)
     right.axvline(expected, color=_VERMILLION, linewidth=2.0, linestyle="--")
     top = float(q.max()) * 1.25 + 0.02
     right.set_ylim(0, top)
@@ -148,13 +145,13 @@ def plot_portfolio(plan: Any) -> Figure:
                ha="left" if expected < q.size / 2 else "right", va="top", fontsize=9,
                fontweight="bold", bbox=_TEXT_BOX)
     right.set_xticks(counts)
-    right.set_xlabel("Number of trials that succeed")
+    right.set_xlabel("Trials succeeding")
     right.set_ylabel("Probability")
     right.yaxis.set_major_formatter(lambda v, _: f"{100 * v:.0f}%")
     _style(right)
     at_least_one = 1.0 - float(q[0])
     what = (f"{expected:.1f} of {k} trials expected to succeed; at least one: "
-            f"{100 * at_least_one:.0f}%")
+            f"{percent(at_least_one, 1)}")
     fig.suptitle(_title(plan.title, what), fontsize=11)
     return fig
 

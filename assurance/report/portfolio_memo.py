@@ -110,13 +110,13 @@ def _trials_table(plan: Any) -> list[dict[str, Any]]:
     for t in plan.trials:
         lo, hi = t.interval
         note = []
-        if t.n_target is not None:
-            note.append(f"assurance {wd.percent(t.target)} first reached at {t.n_target:,}")
-        elif t.target is not None:
-            note.append(f"assurance target {wd.percent(t.target)} not reached")
-        reason = getattr(t.plan, "planned_reason", "")
+        reason = str(getattr(t.plan, "planned_reason", "") or "")
         if t.n == getattr(t.plan, "planned_n", None) and reason:
-            note.insert(0, f"planned size ({reason})")
+            note.append(f"planned size ({reason})")
+        if t.n_target is not None and t.n_target != t.n:
+            note.append(f"assurance {wd.percent(t.target)} first reached at {t.n_target:,}")
+        elif t.n_target is None and t.target is not None:
+            note.append(f"assurance target {wd.percent(t.target)} not reached")
         rows.append({
             "name": t.name, "endpoint": t.endpoint, "n": f"{t.n:,}",
             "pos": wd.percent(t.pos, 1),
@@ -161,6 +161,15 @@ def _value_table(plan: Any) -> list[dict[str, str]]:
     return rows
 
 
+def _best_text(best: Any) -> str:
+    text = f"{best.n_best:,}"
+    if best.at_edge:
+        text += f" (the {best.at_edge} size on the curve)"
+    if not best.worth_paying:
+        text += " (no size pays for itself)"
+    return text
+
+
 def _sensitivity_table(plan: Any) -> dict[str, Any] | None:
     multipliers = plan.settings.value_multipliers
     valued = [t for t in plan.trials if t.best is not None]
@@ -168,8 +177,7 @@ def _sensitivity_table(plan: Any) -> dict[str, Any] | None:
         return None
     head = ["Trial", "Best size as given",
             *[f"Value \u00d7 {m:g}" for m in multipliers]]
-    rows = [[t.name, f"{t.best.n_best:,}", *[f"{u.n_best:,}" for u in t.under]]
-            for t in valued]
+    rows = [[t.name, _best_text(t.best), *[_best_text(u) for u in t.under]] for t in valued]
     return {"head": head, "rows": rows}
 
 
