@@ -207,7 +207,8 @@ class InterimPlan:
             rows.append((f"posterior_mean_{name}_prior", k.natural(post["mean"]),
                          "natural scale" + (" (median of the ratio)" if ep.ratio_scale
                                             else "")))
-            rows.append((f"posterior_sd_{name}_prior", post["sd"], "benefit scale"))
+            rows.append((f"posterior_sd_{name}_prior", post["sd"],
+                         "analysis scale (log for ratios)"))
             rows.append((f"posterior_prob_benefit_{name}_prior", post["prob_benefit"], ""))
         return rows
 
@@ -284,6 +285,23 @@ class InterimPlan:
                      f"{_pct(prior_row.p_efficacy)}, P(success) {_pct(prior_row.p_success)} "
                      f"(without the look {_pct(prior_row.p_success_no_look)})")
         return "\n".join(lines)
+
+    def _repr_html_(self) -> str:
+        """A small static overview for a notebook: the headline numbers."""
+        import html
+
+        k = self.look
+        rows = [("Predictive probability (" + ("flat analysis prior" if
+                 k.design.analysis_prior is None else "analysis prior") + ")",
+                 _pct(k.predictive["analysis"])),
+                ("Predictive probability (design prior)", _pct(k.predictive["design"])),
+                ("Conditional power at the assumed effect", _pct(k.conditional["assumed"])),
+                ("Conditional power at the current trend", _pct(k.conditional["trend"])),
+                ("Information fraction", _pct(k.fraction)),
+                ("Where the boundaries stand", k.decision)]
+        body = "".join(f"<tr><th style='text-align:left'>{html.escape(a)}</th>"
+                       f"<td>{html.escape(b)}</td></tr>" for a, b in rows)
+        return f"<p><b>{html.escape(self.title)}</b></p><table>{body}</table>"
 
     def __repr__(self) -> str:
         k = self.look

@@ -145,6 +145,8 @@ def test_python_entry_point_checks_its_title():
     plan = interim_look(d, InterimData(3.0, standard_error=2.0), planned_total=200)
     assert plan.source is None and plan.input_paths == ()
     assert "Predictive probability of success: 56.4%" in plan.summary()
+    shown = plan._repr_html_()
+    assert "56.4%" in shown and "<script" not in shown
 
 
 # ------------------------------------------------------------------------------------------
