@@ -245,18 +245,13 @@ class ProgramPlan:
         figures = tmp / "figures"
         figures.mkdir()
         rendered = {}
-        import matplotlib.pyplot as plt
-
-        for name, fig in self.figures().items():
-            try:
-                for fmt in dict.fromkeys(("png", *formats)):
-                    data = figure_bytes(fig, fmt)
-                    if fmt == "png":
-                        rendered[name] = data
-                    if fmt in formats:
-                        (figures / f"{name}.{fmt}").write_bytes(data)
-            finally:
-                plt.close(fig)
+        for name, fig in self.figures().items():  # off-screen figures, not pyplot's
+            for fmt in dict.fromkeys(("png", *formats)):
+                data = figure_bytes(fig, fmt)
+                if fmt == "png":
+                    rendered[name] = data
+                if fmt in formats:
+                    (figures / f"{name}.{fmt}").write_bytes(data)
         write_program_memo(self, tmp / "memo.html", rendered=rendered)
         inputs = tmp / "inputs"
         inputs.mkdir()
