@@ -187,6 +187,28 @@ class ProgramPlan:
                          f"limit {CHECK_LIMIT:g})")
         return "\n".join(lines)
 
+    def _repr_html_(self) -> str:
+        """A small table of the headline figures for a notebook (no scripts)."""
+        import html
+
+        r = self.headline
+        rows = [("P(go after phase 2)", f"{r.p_go:.1%}"),
+                ("P(phase 3 success | go)", f"{r.p_success_given_go:.1%}"),
+                ("Program probability of success", f"{r.pos:.1%}"),
+                ("P(go and the drug works)", f"{r.p_go_and_works:.1%}"),
+                ("False-go rate", f"{r.false_go:.1%}"),
+                ("Expected patients", f"{r.expected_patients:,.0f}")]
+        if r.expected_months:
+            rows.append(("Expected months", f"{r.expected_months:.1f}"))
+        body = "".join(f"<tr><th style='text-align:left'>{html.escape(a)}</th>"
+                       f"<td style='text-align:right'>{html.escape(b)}</td></tr>"
+                       for a, b in rows)
+        note = "phase 3 re-planned from phase 2" if r.replanned else \
+            f"phase 3 with {r.n3:,} patients"
+        return (f"<div><strong>{html.escape(self.title)}</strong> "
+                f"<span>({r.n2:,} patients in phase 2; {html.escape(note)})</span>"
+                f"<table>{body}</table></div>")
+
     def __repr__(self) -> str:
         return (f"ProgramPlan({self.title!r}: P(go) {self.result.p_go:.3f}, program PoS "
                 f"{self.headline.pos:.3f})")

@@ -301,3 +301,12 @@ def test_memo_in_a_browser(case, written, tmp_path):
     assert boxes
     for x0, _, x1, _ in boxes:
         assert float(x1) - float(x0) == pytest.approx(A4_WIDTH_PT, abs=1.0)
+
+
+def test_notebook_view_escapes_the_title(tmp_path):
+    ep = asr.ContinuousEndpoint(sigma=10.0, analysis="z")
+    p3 = asr.TrialDesign(ep, asr.Normal(3.0, 2.0))
+    plan = program_plan(ProgramDesign(p3, p3, n2=100, n3=400, title="A <b> & C"), programs=0)
+    view = plan._repr_html_()
+    assert "A &lt;b&gt; &amp; C" in view and "<script" not in view
+    assert f"{plan.result.pos:.1%}" in view
