@@ -216,6 +216,9 @@ def test_a_small_program_file_reads_paths_relative_to_itself(tmp_path):
     (("[check]", "[replan]\ntarget = 0.8\nmin_n = 500\nmax_n = 100\n[check]"),
      r"'replan\.max_n' must be >= 'replan\.min_n'"),
     (("[check]", "[surrogate]\nslope = 0.0\n[check]"), r"'surrogate\.slope'"),
+    (("n = 100", "n = 1"), r"'phase2\.n' must be at least 2"),
+    (("[check]", "[replan]\ntarget = 0.8\nmin_n = 50\nmax_n = 900\nrobust_weight = 0.5\n"
+                 "[check]"), r"'replan\.vague_sd' is required"),
 ])
 def test_program_file_problems_name_the_key(tmp_path, change, expected):
     path = _small(tmp_path, SMALL.replace(*change, 1))

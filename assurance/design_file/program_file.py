@@ -353,6 +353,11 @@ def _build(model: ProgramFileModel, path: Path, content: bytes,
         if spec.model is not None:
             problems.add("", f"'{phase}.design' names a design file with an analysis model "
                          "([endpoint] type = \"model\"); a program needs a built-in endpoint.")
+    for phase in specs:
+        smallest = specs[phase].design.endpoint.smallest_total
+        if getattr(model, phase).n < smallest:
+            problems.add("", f"'{phase}.n' must be at least {smallest} (the smallest trial "
+                         f"its design's analysis allows). Got {getattr(model, phase).n}.")
     if model.replan is not None and model.replan.max_n < model.replan.min_n:
         problems.add("", f"'replan.max_n' must be >= 'replan.min_n' ({model.replan.min_n}). "
                      f"Got {model.replan.max_n}.")
