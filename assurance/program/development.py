@@ -56,7 +56,8 @@ from ..priors.families import PointMass, Prior
 from ..rules.posterior import MinimumEstimate
 
 __all__ = ["CHECK_LIMIT", "Surrogate", "Replanning", "ProgramDesign", "ProgramResult",
-           "program_result", "program_grid", "replan_table", "simulate_program", "effect_curves"]
+           "program_result", "program_grid", "prior_nodes", "replan_table",
+           "simulate_program", "effect_curves"]
 
 #: Gauss-Legendre nodes per panel of the prior quadrature
 _PANEL_NODES = 16
