@@ -267,6 +267,10 @@ def run_plan(
     if sensitivity is not None:
         ds = _add_sensitivity(ds, design, planned_n, targets, sensitivity, prior_origin,
                               draws=draws, seed=seed, say=say)
+    if needs_power_check(design):
+        checked = sorted({a.n_total for a in answers if a.reached} | {planned_n})
+        say(f"simulating the Wald test at {len(checked)} size(s) to check the power formula")
+        ds = add_power_check(ds, design, checked, seed=seed)
     return PlanResults(ds, tuple(answers), tuple(precision_answers), planned_n, planned_reason)
 
 
@@ -333,6 +337,64 @@ def _add_sensitivity(ds: Any, design: TrialDesign, planned_n: int, targets: Mapp
                            if name not in ds.coords})
     ds.attrs.update(attrs)
     return ds
+
+
+#: Simulated trials per size when a count plan's power formula is checked: a Monte Carlo SE
+#: of at most 0.0035 (at power 0.5; 0.0021 at 0.9), so a difference of half a percentage
+#: point shows. Overdispersed counts are fitted by maximum likelihood trial by trial, about
+#: 20 times slower: 4,000 trials (SE 0.0047 at power 0.9).
+POWER_CHECK_TRIALS = {"poisson": 20_000, "negative_binomial": 4_000}
+#: A simulated power this far from the formula (absolute) is shown beside it in the memo.
+POWER_CHECK_SHOWN = 0.005
+
+
+def needs_power_check(design: TrialDesign) -> bool:
+    """Whether the plan checks its power formula by simulating the test: count endpoints
+    analysed by the Wald test on the log rate ratio (an approximation of the test's own
+    power) with a significance rule."""
+    from .endpoints.counts import CountEndpoint
+    from .rules.significance import Significance
+
+    ep = design.endpoint
+    return (isinstance(ep, CountEndpoint) and ep.test != "exact_conditional"
+            and isinstance(design.rule, Significance))
+
+
+def add_power_check(ds: Any, design: TrialDesign, sizes: Sequence[int], *, seed: int,
+                    trials: int | None = None) -> Any:
+    """Add the simulated power of the test beside the formula's at ``sizes`` (dimension
+    ``checked_n``): ``power_check_simulated``, ``power_check_mcse``,
+    ``power_check_formula``, at the assumed effect.
+
+    Each size has its own random stream from ``seed``; the trials are analysed as the
+    formula assumes (Poisson rates without overdispersion, the negative binomial fit with
+    it; see :func:`assurance.endpoints.counts.simulate_rejection_rate`).
+    """
+    from .endpoints.counts import simulate_rejection_rate
+
+    ep = design.endpoint
+    analysis = "negative_binomial" if ep.overdispersion > 0 else "poisson"
+    trials = POWER_CHECK_TRIALS[analysis] if trials is None else trials
+    rows = []
+    for n_total in sizes:
+        n_t, n_c = ep.arm_sizes(np.array([int(n_total)]))
+        rng = np.random.default_rng(np.random.SeedSequence(seed, spawn_key=(int(n_total),)))
+        sim = simulate_rejection_rate(ep, float(design.assumed_effect), int(n_t[0]),
+                                      int(n_c[0]), rule=design.rule, trials=trials, seed=rng,
+                                      analysis=analysis)
+        rows.append((sim.rejection_rate, sim.mcse, sim.predicted_power))
+    values = np.array(rows, dtype=float).reshape(-1, 3)
+    coords = {"checked_n": np.asarray(sizes, dtype=int)}
+    out = ds.assign({
+        "power_check_simulated": ("checked_n", values[:, 0]),
+        "power_check_mcse": ("checked_n", values[:, 1]),
+        "power_check_formula": ("checked_n", values[:, 2]),
+    }).assign_coords(coords)
+    out["power_check_simulated"].attrs["long_name"] = "simulated power of the test"
+    out["power_check_formula"].attrs["long_name"] = "power by the formula"
+    out.attrs["power_check_trials"] = int(trials)
+    out.attrs["power_check_analysis"] = analysis
+    return out
 
 
 def _quiet(*_args: Any) -> None:

@@ -809,6 +809,61 @@ def _type_one(parts: _Parts) -> dict[str, Any] | None:
     return {"sentences": text}
 
 
+#: A simulated power this far from the formula's (absolute) is shown beside it.
+POWER_CHECK_SHOWN = 0.005
+
+
+def _power_check(parts: _Parts) -> dict[str, Any] | None:
+    """The power formula against a simulation of the test itself (count endpoints)."""
+    ds = parts.results
+    if "power_check_simulated" not in ds:
+        return None
+    n = [int(v) for v in ds["checked_n"].values]
+    sim = np.asarray(ds["power_check_simulated"].values, dtype=float)
+    se = np.asarray(ds["power_check_mcse"].values, dtype=float)
+    formula = np.asarray(ds["power_check_formula"].values, dtype=float)
+    trials = int(ds.attrs.get("power_check_trials", 0))
+    fitted = ("negative binomial regression" if ds.attrs.get("power_check_analysis")
+              == "negative_binomial" else "Poisson rates")
+    gap = sim - formula
+    # a difference beyond half a point and beyond Monte Carlo noise (2 SE) is flagged
+    apart = (np.abs(gap) > POWER_CHECK_SHOWN) & (np.abs(gap) > 2 * se)
+    noisy = (np.abs(gap) > POWER_CHECK_SHOWN) & ~apart
+    lead = (f"The power formula for the Wald test on the log rate ratio is an approximation. "
+            f"It was checked by simulating {trials:,} trials of the test itself ({fitted}) at "
+            f"the assumed effect at {_and_list([f'{v:,}' for v in n])} patients.")
+    rows = [{"n": f"{v:,}", "formula": wd.percent(float(f), 1),
+             "simulated": f"{wd.percent(float(q), 1)} \u00b1 {100 * float(e):.1f}",
+             "gap": _signed_points(float(d)), "apart": bool(a)}
+            for v, f, q, e, d, a in zip(n, formula, sim, se, gap, apart, strict=True)]
+    if apart.any():
+        text = (f"At {_and_list([r['n'] for r in rows if r['apart']])} patients the simulated "
+                "power differs from the formula by more than half a percentage point, beyond "
+                "Monte Carlo error; plan on the simulated figure (\u00b1 one Monte Carlo "
+                "standard error), or choose the exact conditional test where it applies.")
+    elif noisy.any():
+        text = ("The simulated and formula powers differ by more than half a percentage point "
+                f"at {_and_list([r['n'] for r, x in zip(rows, noisy, strict=True) if x])} "
+                "patients, but by less than two Monte Carlo standard errors: the simulation "
+                "does not show the formula to be off.")
+    else:
+        text = ("The simulation agrees with the formula within half a percentage point at "
+                "every size checked.")
+    return {"sentences": [lead, text], "rows": rows, "flag": bool(apart.any())}
+
+
+def _and_list(items: Sequence[str]) -> str:
+    """``a``, ``a and b``, ``a, b and c``."""
+    items = list(items)
+    return items[0] if len(items) == 1 else f"{', '.join(items[:-1])} and {items[-1]}"
+
+
+def _signed_points(difference: float) -> str:
+    """A difference of probabilities in percentage points, one decimal, no ``-0.0``."""
+    text = f"{100 * difference:+.1f}"
+    return "0.0" if text in ("+0.0", "-0.0") else text.replace("-", "\u2212")
+
+
 # ------------------------------------------------------------------------------------------
 # figures, provenance
 # ------------------------------------------------------------------------------------------
@@ -950,6 +1005,7 @@ def _render(parts: _Parts, *, cautions: Sequence[str], versions: str | None,
         "zones": _zones(parts, figures, rendered, j),
         "precision": _precision(parts, figures, rendered),
         "type_one": _type_one(parts),
+        "power_check": _power_check(parts),
         "origin": _origin(parts, figures, rendered),
         "provenance": _provenance(parts, versions, _date_text(date)),
         "recorded": recorded,

@@ -649,6 +649,13 @@ def _write_files(tmp: Path, plan: Plan, formats: Sequence[str]) -> None:
     if "sensitivity_map" in ds:
         write_long_csv(ds["sensitivity_map"].transpose("map_centre", "map_spread"),
                        tmp / "sensitivity_map.csv", ("prior_centre", "prior_spread", "assurance"))
+    if "power_check_simulated" in ds:
+        names = ("power_check_formula", "power_check_simulated", "power_check_mcse")
+        with open(tmp / "power_check.csv", "w", newline="", encoding="utf-8") as fh:
+            writer = csv.writer(fh)
+            writer.writerow(["n", "power_formula", "power_simulated", "power_simulated_mcse"])
+            for i, n_total in enumerate(ds["checked_n"].values):
+                writer.writerow([int(n_total), *[_fmt(ds[k].values[i]) for k in names]])
     if "oc_go" in ds:
         write_long_csv(ds[["oc_go", "oc_consider", "oc_stop"]].transpose("n", "zone_effect"),
                        tmp / "zones_by_effect.csv", ("n", "true_effect", "go", "consider", "stop"))
