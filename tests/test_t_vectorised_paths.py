@@ -57,14 +57,17 @@ def test_several_effects_match_scipy_noncentral_t():
 
 
 def test_hermite_ratios_are_scipy_chi_square_quantiles():
-    df = np.array([10.0, 15.0, 40.0, 300.0, 5e4])
+    # 10 to 1e5 df from the series in 1 / sqrt(df), the others from exact quantiles
+    df = np.array([3.0, 10.0, 15.0, 40.0, 300.0, 5e4, 1e5, 3e5])
     for k in sq._RULE_KS:
         tier = np.full(df.size, k, dtype=np.int64)
         sq._RATIO_TABLES.clear()
-        col, ratio, weight = sq._hermite_flat.__wrapped__(df.tobytes(), tier.tobytes())
+        col, ratio, weight = sq._hermite_nodes(df, tier)
         z, _ = sq._hermite_rule(int(k))
         # scipy.stats.chi2.ppf at scipy.stats.norm.cdf of each score, each tail from its side
-        node = np.arange(col.size) // df.size
+        # flat by column, then node
+        np.testing.assert_array_equal(col, np.repeat(np.arange(df.size), k))
+        node = np.arange(col.size) % k
         d = df[col]
         lower = z[node] < 0
         chi = np.where(lower, stats.chi2.ppf(stats.norm.cdf(z[node]), d),

@@ -115,10 +115,9 @@ def _step(t: np.ndarray, nc: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Feature of ``Phi(nc - t r)`` on the ratio scale: centre ``nc / t``, width ``1 / t``
     (none for ``t <= 0``, where the integrand is smooth)."""
     positive = t > 0
-    with np.errstate(divide="ignore", invalid="ignore"):
-        centre = np.where(positive, nc / t, np.nan)
-        width = np.where(positive, 1.0 / t, np.nan)
-    return centre[None, :], width[None, :]
+    centre = np.divide(nc, t, out=np.full((1, t.size), np.nan), where=positive)
+    width = np.divide(1.0, t, out=np.full((1, t.size), np.nan), where=positive)
+    return centre, width
 
 
 def _nct_sf_by_quadrature(t: np.ndarray, df: np.ndarray, nc: np.ndarray) -> np.ndarray:

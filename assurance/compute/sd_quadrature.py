@@ -73,8 +73,10 @@ _BROAD = 2.0
 _TIERS = ((1000.0, 10000.0, 2), (100.0, 1000.0, 3), (20.0, 100.0, 4), (8.0, 60.0, 6),
           (5.0, 30.0, 8), (3.0, 20.0, 12), (2.0, 15.0, 16), (1.5, 10.0, 20), (1.0, 20.0, 24),
           (0.8, 30.0, 32), (0.65, 40.0, 40))
-_TIER_WIDTH, _TIER_DF = (np.array([row[i] for row in _TIERS])[:, None] for i in (0, 1))
-_TIER_NODES = np.array([row[2] for row in _TIERS], dtype=np.int64)
+#: the tiers' rows, then the composite rule's (0 nodes), which every column fits
+_TIER_WIDTH, _TIER_DF = (np.array([row[i] for row in _TIERS] + [0.0])[:, None]
+                         for i in (0, 1))
+_TIER_NODES = np.array([row[2] for row in _TIERS] + [0], dtype=np.int64)
 
 
 def _chi_from_score(z: np.ndarray, half_df: np.ndarray) -> np.ndarray:
@@ -133,42 +135,109 @@ _RULE_START = np.zeros(int(_RULE_KS.max()) + 1, dtype=np.int64)
 _RULE_START[_RULE_KS] = np.cumsum(_RULE_KS) - _RULE_KS
 _RULE_Z = np.concatenate([_hermite_rule(int(k))[0] for k in _RULE_KS])
 _RULE_W = np.concatenate([_hermite_rule(int(k))[1] for k in _RULE_KS])
-#: Ratios ``q(z)`` at every rule's scores for the df values of a grid, filled as asked
-#: (NaN: not yet computed); keyed by the grid's sorted unique df, the few latest kept
-_RATIO_TABLES: OrderedDict[bytes, np.ndarray] = OrderedDict()
+
+# -- the ratios of a rule's scores as smooth functions of df ----------------------------------
+#: The series cover ``10 <= df <= 1e5`` (every tier asks for 10 df or more); beyond 1e5 df
+#: scipy's lower-tail inverse incomplete gamma function loses digits, so larger df (and df
+#: below 10) take exact quantiles.
+_SERIES_DF = (10.0, 1e5)
+_SERIES_S = (1.0 / math.sqrt(_SERIES_DF[1]), 1.0 / math.sqrt(_SERIES_DF[0]))
+#: Chebyshev terms of each series in ``s = 1 / sqrt(df)``: 32 give ``log q`` within 5e-14
+#: at every score of every tier (checked in tests/test_t_ratio_series.py).
+_SERIES_TERMS = 32
+#: Chebyshev coefficients of ``log q`` at every rule's scores (rows as ``_RULE_Z``), a
+#: tier's rows made on first use (``_SERIES_MADE[k]``), once per process
+_SERIES = np.zeros((_RULE_Z.size, _SERIES_TERMS))
+_SERIES_MADE = np.zeros(_RULE_START.size, dtype=bool)
+_SERIES_LOCK = threading.Lock()
+
+
+def _make_series(ks: np.ndarray) -> None:
+    """Make the missing rows of ``_SERIES`` for the tiers ``ks``: interpolation of ``log q``
+    at the Chebyshev points of the first kind (exact quantiles there)."""
+    with _SERIES_LOCK:
+        ks = [int(k) for k in ks if not _SERIES_MADE[k]]
+        if not ks:
+            return
+        m = _SERIES_TERMS
+        theta = np.pi * (np.arange(m) + 0.5) / m
+        low, high = _SERIES_S
+        s = low + (np.cos(theta) + 1.0) / 2.0 * (high - low)
+        df = 1.0 / (s * s)
+        rows = np.concatenate([np.arange(_RULE_START[k], _RULE_START[k] + k) for k in ks])
+        log_q = 0.5 * np.log(_chi_from_score(_RULE_Z[rows, None], df[None, :] / 2)
+                             / df[None, :])
+        coef = (2.0 / m) * (log_q @ np.cos(np.outer(np.arange(m), theta)).T)
+        coef[:, 0] /= 2.0
+        _SERIES[rows] = coef
+        _SERIES_MADE[ks] = True
+
+
+class _GridRatios:
+    """Ratios ``q(z)`` at every rule's scores (rows as ``_RULE_Z``) for the distinct df of a
+    grid (columns), NaN until asked: a tier's rows at once from the series (the Chebyshev
+    polynomials at the grid's df made once), exact quantiles for df outside the series."""
+
+    def __init__(self, df: np.ndarray):
+        self.df = df
+        self.table = np.full((_RULE_Z.size, df.size), np.nan)
+        self.filled = np.zeros(_RULE_START.size, dtype=bool)
+        self.outside = (df < _SERIES_DF[0]) | (df > _SERIES_DF[1])
+        self.inside = np.flatnonzero(~self.outside)
+        self.basis: np.ndarray | None = None
+
+    def _polynomials(self) -> np.ndarray:
+        """``T_1 .. T_{m-1}`` at the df in the series' range, ``(m - 1, columns)``:
+        ``T_m(x) = Re(w^m)``, ``w = exp(i arccos x)``, in one cumulative product."""
+        if self.basis is None:
+            low, high = _SERIES_S
+            x = (2.0 / np.sqrt(self.df[self.inside]) - low - high) / (high - low)
+            w = np.exp(1j * np.arccos(np.clip(x, -1.0, 1.0)))
+            self.basis = np.cumprod(np.broadcast_to(w, (_SERIES_TERMS - 1, w.size)),
+                                    axis=0).real
+        return self.basis
+
+    def fill(self, ks: np.ndarray, asked: np.ndarray) -> None:
+        """Rows of the tiers ``ks`` not yet filled; ``asked[j]``: the tier column ``j``
+        needs (exact quantiles are only made where asked)."""
+        todo = ks[~self.filled[ks]]
+        if todo.size and self.inside.size:
+            if not _SERIES_MADE[todo].all():
+                _make_series(todo)
+            rows = np.concatenate([np.arange(_RULE_START[k], _RULE_START[k] + k)
+                                   for k in todo])
+            coef = _SERIES[rows]
+            ratio = np.exp(coef[:, :1] + coef[:, 1:] @ self._polynomials())
+            self.table[rows[:, None], self.inside] = ratio
+        self.filled[todo] = True
+        if not self.outside.any():
+            return
+        for k in ks:
+            rows = np.arange(_RULE_START[k], _RULE_START[k] + k)
+            cols = np.flatnonzero(self.outside & (asked == k) & np.isnan(self.table[rows[0]]))
+            if cols.size:
+                d = self.df[None, cols]
+                self.table[rows[:, None], cols] = np.sqrt(
+                    _chi_from_score(_RULE_Z[rows, None], d / 2) / d)
+
+
+#: A grid's ratios, keyed by its sorted distinct df, the few latest kept
+_RATIO_TABLES: OrderedDict[bytes, _GridRatios] = OrderedDict()
 _RATIO_TABLES_KEPT = 8
 _RATIO_LOCK = threading.Lock()
 
 
-def _ratio_table(uniq: np.ndarray) -> np.ndarray:
+def _grid_ratios(uniq: np.ndarray) -> _GridRatios:
     key = uniq.tobytes()
     with _RATIO_LOCK:
-        table = _RATIO_TABLES.get(key)
-        if table is None:
-            table = np.full((_RULE_Z.size, uniq.size), np.nan)
-            _RATIO_TABLES[key] = table
+        grid = _RATIO_TABLES.get(key)
+        if grid is None:
+            grid = _RATIO_TABLES[key] = _GridRatios(uniq)
             while len(_RATIO_TABLES) > _RATIO_TABLES_KEPT:
                 _RATIO_TABLES.popitem(last=False)
         else:
             _RATIO_TABLES.move_to_end(key)
-    return table
-
-
-def _ratios_at(df: np.ndarray, col: np.ndarray, node: np.ndarray) -> np.ndarray:
-    """``q = sqrt(chi2_df quantile at Phi(z) / df)`` for each (column, rule score) pair:
-    one vectorised quantile call for the pairs not yet in the grid's table."""
-    uniq, inverse = np.unique(df, return_inverse=True)
-    table = _ratio_table(uniq)
-    j = inverse[col]
-    out = table[node, j]
-    missing = np.isnan(out)
-    if missing.any():
-        flat = np.unique(node[missing] * uniq.size + j[missing])
-        rows, cols = np.divmod(flat, uniq.size)
-        d = uniq[cols]
-        table[rows, cols] = np.sqrt(_chi_from_score(_RULE_Z[rows], d / 2) / d)
-        out = table[node, j]
-    return out
+    return grid
 
 
 @lru_cache(maxsize=64)
@@ -183,9 +252,11 @@ def _bulk_ends(df: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     pushed down to at most 3e-5, and to 0 below 5 df: never above the exact end (checked
     against scipy.stats.chi2 for df 5 to 1e4); the upper end within 10% of it."""
     a = 2.0 / (9.0 * df)
-    lo = np.where(df < 5.0, 0.0, np.maximum(1.0 - a - 9.0 * np.sqrt(a), 1e-3) ** 1.5)
-    hi = (1.0 - a + 9.0 * np.sqrt(a)) ** 1.5
-    return lo, hi
+    spread = 9.0 * np.sqrt(a)
+    lo = np.maximum(1.0 - a - spread, 1e-3)
+    lo = np.where(df < 5.0, 0.0, lo * np.sqrt(lo))  # x ** 1.5
+    hi = 1.0 - a + spread
+    return lo, hi * np.sqrt(hi)
 
 
 def _narrowest_score_width(df: np.ndarray, centres: np.ndarray, widths: np.ndarray
@@ -200,11 +271,11 @@ def _narrowest_score_width(df: np.ndarray, centres: np.ndarray, widths: np.ndarr
     """
     lo, hi = _bulk_ends(df)
     with np.errstate(invalid="ignore", divide="ignore"):
-        reach = np.isfinite(centres) & (np.abs(centres - np.clip(centres, lo, hi))
-                                        <= 12.0 * widths)
+        # NaN or infinite centres never reach (the comparison is False)
+        reach = np.abs(centres - np.clip(centres, lo, hi)) <= 12.0 * widths
         # judged where the score scale is tightest within five widths of the centre
         near = np.clip(centres + 5.0 * widths, lo, hi)
-        width = widths * np.sqrt(2.0 * df) * near ** (-1.0 / 3.0)
+        width = widths * np.sqrt(2.0 * df) / np.cbrt(near)
     return np.where(reach, width, np.inf).min(axis=0, initial=np.inf)
 
 
@@ -279,22 +350,27 @@ def ratio_rule(df: np.ndarray, centres: np.ndarray | None = None,
         has_floor = np.isfinite(floor) & (floor > 0)
     # a floor outside the bulk (scores -9 to 9) bends nothing: below it the mass is under
     # 1e-19 (the integrand is its smooth upper branch), above it all mass is constant
-    lo, hi = _bulk_ends(df)
-    above = has_floor & (floor > 1.1 * hi)
-    has_floor = has_floor & (floor >= lo) & ~above
-    tier = np.where(has_floor, 0, _tiers(df, centres, widths))
+    above = np.zeros(n, dtype=bool)
+    forced = b""  # columns on the composite rule (or one node) whatever their features
+    if has_floor.any():
+        lo, hi = _bulk_ends(df)
+        above = has_floor & (floor > 1.1 * hi)
+        has_floor = has_floor & (floor >= lo) & ~above
+        if (has_floor | above).any():
+            forced = (has_floor | above).tobytes()
+    col, ratio, weight, tier = _hermite_flat(df.tobytes(), centres.tobytes(),
+                                             widths.tobytes(), forced)
 
     parts = []
     if above.any():
         # one node at the floor carries all the mass
-        tier = np.where(above, 0, tier)
         keep = ~above
         k = np.flatnonzero(above)
         parts.append((k, floor[k].copy(), np.ones(k.size)))
     else:
         keep = np.ones(n, dtype=bool)
-    if (tier > 0).any():
-        parts.append(_hermite_flat(df.tobytes(), tier.tobytes()))
+    if col.size:
+        parts.append((col, ratio, weight))
     if ((tier == 0) & keep).any():
         cols = np.flatnonzero((tier == 0) & keep)
         parts.append(_composite(df[cols], centres[:, cols], widths[:, cols], floor[cols],
@@ -308,8 +384,10 @@ def ratio_rule(df: np.ndarray, centres: np.ndarray | None = None,
 def _tiers(df: np.ndarray, centres: np.ndarray, widths: np.ndarray) -> np.ndarray:
     """Gauss-Hermite nodes per column (0: the composite rule)."""
     narrowest = _narrowest_score_width(df, centres, widths)
-    fits = (narrowest >= _TIER_WIDTH) & (df >= _TIER_DF)  # (tiers, columns)
-    return np.where(fits.any(axis=0), _TIER_NODES[fits.argmax(axis=0)], 0)
+    # (tiers and the composite rule's row, which every column fits, columns)
+    fits = (narrowest >= _TIER_WIDTH) & (df >= _TIER_DF)
+    fits[-1] = True  # also where a width is NaN
+    return _TIER_NODES[fits.argmax(axis=0)]
 
 
 def hermite_part(df: np.ndarray, centres: np.ndarray, widths: np.ndarray
@@ -334,33 +412,54 @@ def hermite_part(df: np.ndarray, centres: np.ndarray, widths: np.ndarray
     df = np.atleast_1d(np.asarray(df, dtype=float))
     centres = np.asarray(centres, dtype=float).reshape(-1, df.size)
     widths = np.broadcast_to(np.asarray(widths, dtype=float), centres.shape)
-    tier = _tiers(df, centres, widths)
-    covered = tier > 0
-    if not covered.any():
-        empty = np.empty(0)
-        return empty.astype(np.int64), empty, empty, covered
-    return (*_hermite_flat(df.tobytes(), tier.tobytes()), covered)
+    col, ratio, weight, tier = _hermite_flat(df.tobytes(), centres.tobytes(),
+                                             widths.tobytes())
+    return col, ratio, weight, tier > 0
 
 
 @lru_cache(maxsize=128)
-def _hermite_flat(df_bytes: bytes, tier_bytes: bytes
-                  ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """Gauss-Hermite nodes of every column with a tier > 0, flat, ordered by tier, node and
-    column (cached: a grid asks for the same tiers at every call); the ratios of all tiers
-    in one quantile call."""
+def _hermite_flat(df_bytes: bytes, centres_bytes: bytes, widths_bytes: bytes,
+                  forced_bytes: bytes = b""
+                  ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """The tier of each column (:func:`_tiers`; 0 where ``forced``, a boolean mask, says so)
+    and the Gauss-Hermite nodes of the columns with a tier, as :func:`_hermite_nodes`
+    (cached: a grid asks for the same features at every call)."""
     df = np.frombuffer(df_bytes, dtype=float)
-    tier = np.frombuffer(tier_bytes, dtype=np.int64)
-    cols_out, node_out = [], []
-    for k in np.unique(tier[tier > 0]):
-        cols = np.flatnonzero(tier == k)
-        cols_out.append(np.tile(cols, int(k)))
-        node_out.append(np.repeat(np.arange(_RULE_START[k], _RULE_START[k] + k), cols.size))
-    col, node = np.concatenate(cols_out), np.concatenate(node_out)
-    ratio = _ratios_at(df, col, node)
-    weight = _RULE_W[node]
-    for v in (col, ratio, weight):
+    centres = np.frombuffer(centres_bytes, dtype=float).reshape(-1, df.size)
+    widths = np.frombuffer(widths_bytes, dtype=float).reshape(-1, df.size)
+    tier = _tiers(df, centres, widths)
+    if forced_bytes:
+        tier[np.frombuffer(forced_bytes, dtype=bool)] = 0
+    if tier.any():
+        col, ratio, weight = _hermite_nodes(df, tier)
+    else:
+        col, ratio, weight = np.empty(0, dtype=np.int64), np.empty(0), np.empty(0)
+    for v in (col, ratio, weight, tier):
         v.setflags(write=False)
-    return col, ratio, weight
+    return col, ratio, weight, tier
+
+
+def _hermite_nodes(df: np.ndarray, tier: np.ndarray
+                   ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Gauss-Hermite nodes of every column with a tier > 0, flat, ordered by column and node.
+    The ratios come from the grid's table (:class:`_GridRatios`): series in ``1 / sqrt(df)``
+    inside their range, exact quantiles outside it."""
+    if df.size < 2 or (df[1:] > df[:-1]).all():  # a grid in increasing order: as it is
+        uniq, inverse = df, None
+    else:
+        uniq, inverse = np.unique(df, return_inverse=True)
+    grid = _grid_ratios(uniq)
+    cols = np.flatnonzero(tier)
+    reps = tier[cols]
+    asked = np.zeros(uniq.size, dtype=np.int64)
+    if grid.outside.any():
+        asked[cols if inverse is None else inverse[cols]] = reps
+    grid.fill(np.flatnonzero(np.bincount(reps)), asked)
+    first = np.cumsum(reps) - reps  # where each column's nodes start in the flat arrays
+    col = np.repeat(cols, reps)
+    node = np.repeat(_RULE_START[reps] - first, reps) + np.arange(col.size)
+    ratio = grid.table[node, col if inverse is None else inverse[col]]
+    return col, ratio, _RULE_W[node]
 
 
 def _composite(df: np.ndarray, centres: np.ndarray, widths: np.ndarray, floor: np.ndarray,
