@@ -93,6 +93,12 @@ _PUBLIC = {
     "prior_sensitivity": "sensitivity",
     "prior_variations": "sensitivity",
     "read_design": "design_file:read_design_file",  # name here : name in the module
+    "ProgramPlan": "program_plan",
+    "program_plan": "program_plan",
+    "ProgramDesign": "program.development",
+    "InterimPlan": "interim_plan",
+    "interim_look": "interim_plan",
+    "InterimData": "program.interim",
 }
 
 __all__ = [
@@ -167,6 +173,12 @@ __all__ = [
     "prior_sensitivity",
     "prior_variations",
     "read_design",
+    "ProgramPlan",
+    "program_plan",
+    "ProgramDesign",
+    "InterimPlan",
+    "interim_look",
+    "InterimData",
 ]
 
 if TYPE_CHECKING:  # pragma: no cover - for type checkers and editors only
@@ -179,6 +191,7 @@ if TYPE_CHECKING:  # pragma: no cover - for type checkers and editors only
     from .errors import AssuranceInputError, AssuranceWarning, DesignFileError
     from .general.engine import GeneralSizeAnswer, simulate_general, solve_general_n
     from .general.model import GeneralModel
+    from .interim_plan import InterimPlan, interim_look
     from .joint import evaluate_joint
     from .model_plan import ModelPlan, plan_model
     from .planner import Plan, plan
@@ -218,6 +231,9 @@ if TYPE_CHECKING:  # pragma: no cover - for type checkers and editors only
         TruncatedNormal,
         Uniform,
     )
+    from .program.development import ProgramDesign
+    from .program.interim import InterimData
+    from .program_plan import ProgramPlan, program_plan
     from .report.figures import plot_fit
     from .rules.posterior import AllOf, AnyOf, MinimumEstimate, PosteriorProbability
     from .rules.significance import Significance

@@ -60,11 +60,45 @@ def _parser() -> argparse.ArgumentParser:
                       help="analysis models: simulate in N local worker processes "
                            "(overrides [simulation] workers; 0: in this process)")
 
+    for name, (what, written) in _OTHER_KINDS.items():
+        other = sub.add_parser(name, help=what, description=f"{what[0].upper()}{what[1:]}; "
+                               f"write {written} and memo.html into the output folder.")
+        other.add_argument("file", help=f"TOML {name} file")
+        other.add_argument("-o", "--out", help=f"output folder (default: <file name>-{name} in "
+                           "the current folder)")
+        other.add_argument("--overwrite", action="store_true",
+                           help="replace the output folder if it already exists (only a folder "
+                           "assurance wrote that holds nothing else)")
+        other.add_argument("--svg", action="store_true",
+                           help="also write each figure as SVG (PNG only by default)")
+        other.add_argument("-q", "--quiet", action="store_true", help="print nothing but errors")
+        if name == "portfolio":
+            other.add_argument("--scheduler", metavar="ADDRESS",
+                               help="spread the portfolio's simulated trials over the Dask "
+                                    "cluster at this scheduler address")
+
     check = sub.add_parser("check", help="read a design file and report problems only")
     check.add_argument("design", help="TOML design file")
 
     sub.add_parser("versions", help="print versions of Python and the libraries in use")
     return parser
+
+
+#: The commands beyond one trial: what each does, what it writes, and its Plan-like class.
+_OTHER_KINDS = {
+    "program": ("plan a phase 2 trial followed by a phase 3 trial that runs after a go",
+                "the program's results, the grid over phase 2 sizes and go thresholds, "
+                "figures/"),
+    "interim": ("predict the final result of a running trial from its interim data",
+                "the predictive probabilities, conditional powers, boundaries and their "
+                "operating characteristics, figures/"),
+    "portfolio": ("probability of success, expected successes and the size worth paying for "
+                  "across several trials",
+                  "the portfolio tables, the value of each size, figures/"),
+}
+_OTHER_CLASSES = {"program": ("program_plan", "ProgramPlan"),
+                  "interim": ("interim_plan", "InterimPlan"),
+                  "portfolio": ("portfolio_plan", "PortfolioPlan")}
 
 
 class _Stopped(BaseException):
@@ -164,6 +198,8 @@ def main(argv: list[str] | None = None) -> int:
         if args.command == "check":
             return _check(args)
         with _Signals():
+            if args.command in _OTHER_KINDS:
+                return _other(args)
             return _plan(args)
     except (KeyboardInterrupt, _Stopped) as stop:
         signum = stop.signum if isinstance(stop, _Stopped) else int(signal.SIGINT)
@@ -285,19 +321,67 @@ def _plan(args: argparse.Namespace) -> int:
     return 0
 
 
+def _other(args: argparse.Namespace) -> int:
+    """``assurance program | interim | portfolio FILE``: read, compute, write the folder."""
+    import importlib
+
+    from .errors import AssuranceInputError
+
+    if args.out is not None and not args.out.strip():
+        raise AssuranceInputError(
+            f"The --out option must name a folder. Got {args.out!r} instead. Leave --out out "
+            f"to write <file name>-{args.command} in the current folder.")
+    path = Path(args.file)
+    out = Path(args.out) if args.out is not None else Path(f"{path.stem}-{args.command}")
+    progress = _Progress(args.quiet)
+    module, name = _OTHER_CLASSES[args.command]
+
+    from .report.output_folder import claim_output_folder, write_outputs
+
+    claim = None
+    try:
+        with claim_output_folder(out, overwrite=args.overwrite, keep=[path]) as claim:
+            progress(f"reading {path}")
+            kind = getattr(importlib.import_module(f"assurance.{module}"), name)
+            options = {}
+            if getattr(args, "scheduler", None) is not None:
+                options["scheduler"] = _simulation_address(args.scheduler)
+            plan = kind.from_file(path, **options)
+            plan = replace(plan, made_by=_command_line(args))
+            progress("writing results, figures and memo")
+            write_outputs(out, plan, formats=("png", "svg") if args.svg else ("png",),
+                          claim=claim)
+        if not args.quiet:
+            _say(plan.summary())
+            _say(f"\nWritten to {out}/ (memo.html, the result tables as CSV, figures/ and a "
+                 "copy of every input file)")
+        progress("done")
+    except (KeyboardInterrupt, _Stopped) as stop:
+        if claim is not None and claim.committed:
+            stop.written = out  # type: ignore[union-attr]
+        raise
+    return 0
+
+
+def _simulation_address(text: str) -> str:
+    from .errors import AssuranceInputError
+
+    address = text.strip()
+    if not address or len(address) > 300 or not address.isprintable():
+        raise AssuranceInputError(
+            "The --scheduler option must be a Dask scheduler address such as "
+            f"tcp://10.0.0.5:8786 (one line, at most 300 characters). Got "
+            f"{_visible(text)!r:.80} instead.")
+    return address
+
+
 def _simulation(table: Any, args: argparse.Namespace) -> Any:
     """The [simulation] settings with the command line's --scheduler / --workers in force."""
     from .errors import AssuranceInputError
 
     changes: dict[str, Any] = {}
     if args.scheduler is not None:
-        address = args.scheduler.strip()
-        if not address or len(address) > 300 or not address.isprintable():
-            raise AssuranceInputError(
-                "The --scheduler option must be a Dask scheduler address such as "
-                f"tcp://10.0.0.5:8786 (one line, at most 300 characters). Got "
-                f"{_visible(args.scheduler)!r:.80} instead.")
-        changes["scheduler"] = address
+        changes["scheduler"] = _simulation_address(args.scheduler)
     if args.workers is not None:
         if not 0 <= args.workers <= 256:
             raise AssuranceInputError(
@@ -311,7 +395,7 @@ def _command_line(args: argparse.Namespace) -> str:
     """The command as a user would type it again (quoted where needed)."""
     import shlex
 
-    words = ["assurance", "plan", str(args.design)]
+    words = ["assurance", args.command, str(getattr(args, "design", None) or args.file)]
     if args.out is not None:
         words += ["--out", args.out]
     words += [flag for flag, on in (("--overwrite", args.overwrite), ("--svg", args.svg),

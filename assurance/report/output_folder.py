@@ -615,6 +615,8 @@ def write_outputs(out: str | os.PathLike[str], plan: Plan, *, overwrite: bool = 
         raise AssuranceInputError(
             f"The 'claim' parameter of write_outputs holds {str(claim.out)!r}, not the output "
             f"folder {str(out)!r}.")
+    else:  # files named inside the input (a portfolio's designs) are known only now
+        claim.keep = tuple(dict.fromkeys((*claim.keep, *keep)))
     try:
         _write_files(claim.staging, plan, formats)
         return claim.commit()
