@@ -151,9 +151,9 @@ def _value_table(plan: Any) -> list[dict[str, str]]:
             f"{t.n_target:,}: {_money(t.net_value_at(t.n_target), None)}"
         rows.append({
             "name": t.name,
-            "value": f"{_money(v.value_of_success, None)} \u00d7 {v.discount_factor:.3f}",
-            "costs": f"{_money(v.cost_per_patient, None)} per patient + "
-                     f"{_money(v.fixed_cost, None)}",
+            "value": f"{wd.number(v.value_of_success)} \u00d7 {v.discount_factor:.3f}",
+            "costs": f"{wd.number(v.cost_per_patient)} per patient, "
+                     f"{wd.number(v.fixed_cost)} fixed",
             "best": f"{b.n_best:,}", "best_value": _money(b.value_best, None),
             "flat": f"{b.n_low:,} to {b.n_high:,}",
             "counted": f"{t.n:,}: {_money(t.net_value_at(t.n), None)}",
