@@ -99,6 +99,8 @@ _PUBLIC = {
     "InterimPlan": "interim_plan",
     "interim_look": "interim_plan",
     "InterimData": "program.interim",
+    "PortfolioPlan": "portfolio_plan",
+    "plan_portfolio": "portfolio_plan",
 }
 
 __all__ = [
@@ -179,6 +181,8 @@ __all__ = [
     "InterimPlan",
     "interim_look",
     "InterimData",
+    "PortfolioPlan",
+    "plan_portfolio",
 ]
 
 if TYPE_CHECKING:  # pragma: no cover - for type checkers and editors only
@@ -196,6 +200,7 @@ if TYPE_CHECKING:  # pragma: no cover - for type checkers and editors only
     from .model_plan import ModelPlan, plan_model
     from .planner import Plan, plan
     from .planning import SampleSizeAnswer, evaluate, solve_sample_size
+    from .portfolio_plan import PortfolioPlan, plan_portfolio
     from .precision.for_design import PrecisionPlan, precision_model_for
     from .precision.widths import interval_width_curve, solve_precision_n
     from .priors.elicitation import (
