@@ -78,9 +78,11 @@ class PortfolioTrial:
     name
         The trial's name in the portfolio.
     plan
-        Its :class:`~assurance.Plan` (or :class:`~assurance.ModelPlan`).
+        Its :class:`~assurance.Plan` (or :class:`~assurance.ModelPlan`, or
+        :class:`~assurance.ProgramPlan` for a development program).
     n
-        The total size counted in the portfolio.
+        The total size counted in the portfolio (a program: its expected number of
+        patients over both phases).
     pos, pos_mcse
         Probability of success at ``n`` and its Monte Carlo standard error (None: exact).
     curve_n, curve_pos, curve_mcse
@@ -125,6 +127,8 @@ class PortfolioTrial:
         """The kind of endpoint, in plain words."""
         if hasattr(self.plan, "model"):
             return "analysis model (simulated)"
+        if _is_program(self.plan):
+            return "program: phase 2 then phase 3"
         return _ENDPOINT_WORDS.get(type(self.plan.design.endpoint).__name__, "other")
 
     @property
@@ -225,9 +229,7 @@ class PortfolioPlan:
         if self.source is not None:
             paths.append(Path(self.source.path))
         for trial in self.trials:
-            src = getattr(trial.plan, "source", None)
-            if src is not None:
-                paths.append(Path(src.path))
+            paths += [Path(p) for p, _ in _sources_of(trial.plan)]
         return tuple(dict.fromkeys(paths))
 
     # --------------------------------------------------------------------------------------
@@ -260,7 +262,7 @@ class PortfolioPlan:
                 "The 'path' parameter of PortfolioPlan.from_file must be a file path (str or "
                 f"pathlib.Path). Got {path!r} instead.")
         spec = read_portfolio_file(Path(path))
-        plans = [_plan_from_spec(t.spec, scheduler, progress) for t in spec.trials]
+        plans = [_plan_from_spec(t, scheduler, progress) for t in spec.trials]
         made = plan_portfolio(
             plans, values=[t.values for t in spec.trials], names=[t.name for t in spec.trials],
             sizes=[t.n for t in spec.trials], largest_n=[t.largest_n for t in spec.trials],
@@ -320,10 +322,10 @@ class PortfolioPlan:
             (tmp / "portfolio_as_given.toml").write_bytes(self.source.content)
         copies = tmp / "designs_as_given"
         for i, trial in enumerate(self.trials, start=1):
-            src = getattr(trial.plan, "source", None)
-            if src is not None and src.content:
+            for j, (path, content) in enumerate(_sources_of(trial.plan)):
                 copies.mkdir(exist_ok=True)
-                (copies / f"{i:02d}-{Path(src.path).name}").write_bytes(src.content)
+                part = "" if j == 0 else f"-{j}"
+                (copies / f"{i:02d}{part}-{Path(path).name}").write_bytes(content)
         figures = tmp / "figures"
         figures.mkdir()
         images = render_figures(self, tuple(dict.fromkeys(("png", *formats))),
@@ -370,7 +372,9 @@ class PortfolioPlan:
         unit = f" {self.settings.value_unit}" if self.settings.value_unit else ""
         for t in self.trials:
             how = EXACT if t.exact else f"\u00b1 {2 * t.pos_mcse:.3f}, 2 Monte Carlo SE"
-            line = f"  {t.name}: {t.n} patients, probability of success {t.pos:.3f} ({how})"
+            size = f"{t.n} expected patients (a program)" if _is_program(t.plan) \
+                else f"{t.n} patients"
+            line = f"  {t.name}: {size}, probability of success {t.pos:.3f} ({how})"
             if t.best is not None:
                 b = t.best
                 line += (f"; highest expected net value {b.value_best:,.1f}{unit} at {b.n_best}"
@@ -391,18 +395,36 @@ class PortfolioPlan:
 # ------------------------------------------------------------------------------------------
 # making one
 # ------------------------------------------------------------------------------------------
-def _plan_from_spec(spec: Any, scheduler: Any, progress: bool) -> Any:
+def _plan_from_spec(entry: Any, scheduler: Any, progress: bool) -> Any:
     """The plan of one design file (the prior sensitivity is left out: the portfolio does
-    not show it)."""
+    not show it), or of a program file."""
     from .model_plan import ModelPlan
     from .planner import Plan
 
+    if entry.kind == "program":
+        from .program_plan import ProgramPlan
+
+        return ProgramPlan.from_file(entry.design)
+    spec = entry.spec
     if spec.model is not None:
         if scheduler is not None:
             spec = replace(spec, simulation=spec.simulation.model_copy(
                 update={"scheduler": str(scheduler)}))
         return ModelPlan.from_spec(spec, progress=progress)
     return Plan.from_spec(replace(spec, sensitivity=None))
+
+
+def _is_program(p: Any) -> bool:
+    return hasattr(p, "program") and hasattr(p, "headline")
+
+
+def _sources_of(p: Any) -> list[tuple[Path, bytes]]:
+    """The files a trial's plan was read from (a program: its file and design files)."""
+    found = []
+    for src in [getattr(p, "source", None), *getattr(p, "design_sources", ())]:
+        if src is not None and src.content:
+            found.append((Path(src.path), bytes(src.content)))
+    return found
 
 
 def _as_list(value: Any, k: int, name: str, owner: str) -> list[Any]:
@@ -437,8 +459,10 @@ def plan_portfolio(
     Parameters
     ----------
     plans_or_designs
-        The trials: :class:`~assurance.Plan` or :class:`~assurance.ModelPlan` objects, or
-        :class:`~assurance.TrialDesign` objects (planned here without prior sensitivity).
+        The trials: :class:`~assurance.Plan` or :class:`~assurance.ModelPlan` objects,
+        :class:`~assurance.TrialDesign` objects (planned here without prior sensitivity),
+        or :class:`~assurance.ProgramPlan` objects (a development program counts as one
+        success when its phase 3 succeeds after a go; no value inputs or sizes for it).
     values
         The user's :class:`~assurance.program.portfolio.ValueInputs`: one for every trial,
         one per trial (None where there is none), or None.
@@ -505,10 +529,12 @@ def plan_portfolio(
     for i, item in enumerate(items):
         if isinstance(item, TrialDesign):
             item = plan(item, sensitivity=False)
-        if not isinstance(item, Plan) and not hasattr(item, "model"):
+        if not isinstance(item, Plan) and not hasattr(item, "model") and \
+                not _is_program(item):
             raise AssuranceInputError(
-                f"The 'plans_or_designs' parameter of {owner} must hold Plan, ModelPlan or "
-                f"TrialDesign objects. Got {type(item).__name__} at position {i} instead.")
+                f"The 'plans_or_designs' parameter of {owner} must hold Plan, ModelPlan, "
+                f"ProgramPlan or TrialDesign objects. Got {type(item).__name__} at position "
+                f"{i} instead.")
         plans.append(item)
     value_list = [values] * k if isinstance(values, ValueInputs) else \
         _as_list(values, k, "values", owner)
@@ -539,6 +565,15 @@ def plan_portfolio(
         check_text(value_unit, "value_unit", owner, max_length=MAX_UNIT)
     counted = []
     for i, (p, n) in enumerate(zip(plans, size_list, strict=True)):
+        if _is_program(p):
+            if n is not None or value_list[i] is not None or largest_list[i] is not None:
+                raise AssuranceInputError(
+                    f"The 'sizes', 'values' and 'largest_n' parameters of {owner} must be None"
+                    f" for trial {name_list[i]!r}, a development program (its sizes come "
+                    "from the program; the size worth paying for is computed for single "
+                    "trials only).")
+            counted.append(int(round(p.headline.expected_patients)))
+            continue
         n = int(p.planned_n) if n is None else check_int(n, "sizes", owner, low=1)
         if hasattr(p, "model") and n not in {int(v) for v in p.results["n"].values}:
             raise AssuranceInputError(
@@ -552,7 +587,7 @@ def plan_portfolio(
     tops: dict[int, int] = {}
     bottoms: dict[int, int] = {}
     for i, p in enumerate(plans):
-        if hasattr(p, "model"):
+        if hasattr(p, "model") or _is_program(p):
             continue
         grid_sizes = p.results["n"].values
         smallest = max(int(p.design.endpoint.smallest_total), int(grid_sizes.min()))
@@ -597,6 +632,11 @@ def plan_portfolio(
     trials = []
     for i, p in enumerate(plans):
         n = counted[i]
+        if _is_program(p):  # one point: the program as planned (computed by quadrature)
+            pos = float(p.headline.pos)
+            trials.append(PortfolioTrial(name_list[i], p, n, pos, None, np.array([n]),
+                                         np.array([pos]), None))
+            continue
         if hasattr(p, "model"):
             ds = p.results
             c_n = np.asarray(ds["n"].values, dtype=np.int64)
@@ -623,6 +663,7 @@ def plan_portfolio(
 
 def _title_of(p: Any) -> str:
     return str(getattr(p, "title", None) or p.design.title)
+
 
 
 def _target_of(p: Any) -> tuple[int | None, float | None]:

@@ -208,7 +208,8 @@ def test_an_output_folder_holding_an_input_file_is_refused(tmp_path):
      ["'trial[0].value_of_success' is required", "'trial[0].cost_per_patient'"]),
     ('[[trial]]\nname = "Q"\ndesign = "quick.toml"\n[[trial]]\nname = "Q"\ndesign = '
      '"quick.toml"\n', ["'trial[1].name' repeats the name 'Q'"]),
-    ('[[trial]]\nname = "Q"\nprogram = "p2p3.toml"\n', ["'trial[0].program'", "not yet"]),
+    ('[[trial]]\nname = "Q"\nprogram = "p2p3.toml"\n',
+     ["'trial[0].program'", "'p2p3.toml'", "trial 'Q'", "not found"]),
     ('[[trial]]\nname = "Q"\n', ["'trial[0].design' is required"]),
     ('title = "Empty"\n', ["names no trial"]),
     ('[[trial]]\nname = "Q"\ndesign = "quick.toml"\nvalue_of_success = -5.0\n'
@@ -277,6 +278,27 @@ def test_monte_carlo_trials_report_two_mc_se_and_say_the_distribution_is_estimat
     assert "Monte Carlo estimates" in page and "2 MC SE" in page
     assert "estimated probabilities of success" in page
     assert "\u00b1" in plan.summary()
+
+
+def test_a_development_program_counts_as_one_entry(tmp_path):
+    program = ROOT / "case_studies" / "programs" / "phase2_then_phase3" / "program.toml"
+    path = _portfolio(tmp_path, f'[[trial]]\nname = "Program"\nprogram = "{program}"\n'
+                      '[[trial]]\nname = "Q"\ndesign = "quick.toml"\n')
+    plan = PortfolioPlan.from_file(path)
+    from assurance.program_plan import ProgramPlan
+
+    alone = ProgramPlan.from_file(program)
+    t = plan.trials[0]
+    # the program's own probability of success (phase 3 succeeds after a go)
+    assert t.pos == pytest.approx(alone.headline.pos, abs=1e-12) and t.exact
+    assert t.n == round(alone.headline.expected_patients)
+    assert set(alone.input_paths) <= set(plan.input_paths)
+    np.testing.assert_allclose(plan.distribution, _brute_force(list(plan.pos)), atol=1e-12)
+    assert "expected patients (a program)" in plan.summary()
+    bad = _portfolio(tmp_path, f'[[trial]]\nname = "Program"\nprogram = "{program}"\n'
+                     'value_of_success = 10.0\n')
+    with pytest.raises(DesignFileError, match="not yet supported for a development program"):
+        PortfolioPlan.from_file(bad)
 
 
 def _simulated_plan(n=(100, 200, 300)):

@@ -19,6 +19,11 @@ portfolio file, or absolute) and, optionally, the user's own value inputs::
     years_to_readout = 2.5
     largest_n = 1500               # largest size of the value curve (default: chosen)
 
+An entry may name a development program file (``program = "p2p3.toml"``, phase 2 then
+phase 3) instead of a design file: the program counts as one success when its phase 3
+succeeds after a go, with the program's expected number of patients; value inputs are not
+yet supported for programs.
+
 Every problem of the file and of the design files it names is reported at once, in the
 file's own key names (``'trial[2].design'``); a design file that is missing or invalid is
 named together with its portfolio entry.
@@ -92,7 +97,8 @@ class PortfolioTrialTable(Table):
     design: _Path | None = key(
         None, "The trial's design file: a path relative to the portfolio file, or absolute.")
     program: _Path | None = key(
-        None, "A development program file instead of a design file (not yet supported).")
+        None, "A development program file (phase 2 then phase 3) instead of a design file; "
+        "counted as one success when the program succeeds.")
     n: Annotated[int, Field(ge=1)] | None = key(
         None, "The total size counted in the portfolio (default: the design's planned size).")
     value_of_success: _Positive | None = key(
@@ -128,6 +134,8 @@ class PortfolioTrialSpec:
 
     ``design`` is the resolved path; ``spec`` the :class:`~assurance.design_file.DesignFile`
     read from it; ``values`` a :class:`~assurance.program.portfolio.ValueInputs` or None.
+    ``kind`` is ``"program"`` for a development program (``spec`` is then the read program
+    file and ``design`` its path).
     """
 
     name: str
@@ -136,6 +144,7 @@ class PortfolioTrialSpec:
     n: int | None = None
     values: ValueInputs | None = None
     largest_n: int | None = None
+    kind: str = "design"
 
 
 @dataclass(frozen=True)
@@ -215,9 +224,9 @@ def parse_portfolio(raw: dict[str, Any], *, source: str | Path,
                          f"trial[{seen[entry.name]}]; give each trial its own name.")
         seen.setdefault(entry.name, i)
         if entry.program is not None:
-            problems.add("", f"'{where}.program': development program files are not yet "
-                         f"supported in a portfolio ({label}); name the phase 3 design file "
-                         "with 'design' instead.")
+            program = _program(entry, source, where, label, problems)
+            if program is not None:
+                trials.append(program)
             continue
         if entry.design is None:
             problems.add("", f"'{where}.design' is required: the design file of {label}.")
@@ -246,6 +255,36 @@ def parse_portfolio(raw: dict[str, Any], *, source: str | Path,
     record = table.model_dump(mode="json", exclude_none=True)
     return PortfolioFile(table.title, tuple(trials), source, content, table.value_unit,
                          table.flat_share, tuple(table.value_multipliers), record)
+
+
+def _program(entry: PortfolioTrialTable, source: Path, where: str, label: str,
+             problems: Problems) -> PortfolioTrialSpec | None:
+    """A development program (phase 2 then phase 3) counted as one entry of the portfolio."""
+    from .program_file import read_program_file
+
+    bad = False
+    if entry.design is not None:
+        problems.add("", f"'{where}' names both a 'design' and a 'program' ({label}); keep "
+                     "one.")
+        bad = True
+    given = [k for k in ("n", "largest_n", "value_of_success", *_COST_KEYS)
+             if getattr(entry, k) is not None]
+    if given:
+        problems.add("", f"{', '.join(repr(f'{where}.{k}') for k in given)}: not yet "
+                     f"supported for a development program ({label}); its sizes come from "
+                     "its program file, and the size worth paying for is computed for single "
+                     "trials only. Leave these keys out.")
+        bad = True
+    path = Path(entry.program or "")
+    if not path.is_absolute():
+        path = Path(os.path.normpath(source.parent / path))
+    try:
+        spec = read_program_file(path)
+    except DesignFileError as exc:
+        problems.add("", f"'{where}.program': the program file '{printable(entry.program or '')}'"
+                     f" of {label} cannot be used: {exc}")
+        return None
+    return None if bad else PortfolioTrialSpec(entry.name, path, spec, kind="program")
 
 
 def _values(entry: PortfolioTrialTable, table: PortfolioFileModel, where: str, label: str,

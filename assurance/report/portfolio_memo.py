@@ -110,6 +110,9 @@ def _trials_table(plan: Any) -> list[dict[str, Any]]:
     for t in plan.trials:
         lo, hi = t.interval
         note = []
+        if hasattr(t.plan, "headline"):
+            note.append("a development program: it succeeds when phase 3 succeeds after a go; "
+                        "the patients are the expected number over both phases")
         reason = str(getattr(t.plan, "planned_reason", "") or "")
         if t.n == getattr(t.plan, "planned_n", None) and reason:
             note.append(f"planned size ({reason})")
@@ -218,12 +221,16 @@ def _provenance(plan: Any, date: str) -> list[tuple[str, str]]:
     else:
         rows.append(("Portfolio file", "none (the portfolio was made in Python)"))
     for t in plan.trials:
-        src = getattr(t.plan, "source", None)
-        if src is not None:
-            rows.append((f"Design file of {t.name}", f"{src.path} (SHA-256 "
-                         f"{hashlib.sha256(src.content).hexdigest()})"))
-        else:
+        program = hasattr(t.plan, "design_sources")
+        sources = [getattr(t.plan, "source", None), *getattr(t.plan, "design_sources", ())]
+        sources = [src for src in sources if src is not None]
+        if not sources:
             rows.append((f"Design file of {t.name}", "none (made in Python)"))
+        for j, src in enumerate(sources):
+            what = ("Program file" if j == 0 else "Design file in the program") if program \
+                else "Design file"
+            rows.append((f"{what} of {t.name}", f"{src.path} (SHA-256 "
+                         f"{hashlib.sha256(src.content).hexdigest()})"))
     rows.append(("Command (made by)", str(getattr(plan, "made_by", "") or "not recorded")))
     rows.append(("Computed (UTC)", str(getattr(plan, "created", "") or "not recorded")))
     rows.append(("Memo written", date))
