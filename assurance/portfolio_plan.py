@@ -362,10 +362,12 @@ class PortfolioPlan:
         >>> print(plan_portfolio([d], sizes=[200], title="P").summary().splitlines()[2])
           A: 200 patients, probability of success 0.692 (exact (quadrature))
         """
+        from .report._files import printable  # names shown escaped on a terminal
+
         k = len(self.trials)
         q = self.distribution
         how = "exact" if self.exact else "from estimated probabilities"
-        lines = [self.title,
+        lines = [printable(self.title),
                  f"  {k} trial{'s' if k != 1 else ''}: expected successes "
                  f"{self.expected_successes:.2f} of {k} ({how}); P(at least one) "
                  f"{1 - q[0]:.3f}; P(all) {q[-1]:.3f}"]
@@ -374,7 +376,7 @@ class PortfolioPlan:
             how = EXACT if t.exact else f"\u00b1 {2 * t.pos_mcse:.3f}, 2 Monte Carlo SE"
             size = f"{t.n} expected patients (a program)" if _is_program(t.plan) \
                 else f"{t.n} patients"
-            line = f"  {t.name}: {size}, probability of success {t.pos:.3f} ({how})"
+            line = f"  {printable(t.name)}: {size}, probability of success {t.pos:.3f} ({how})"
             if t.best is not None:
                 b = t.best
                 line += (f"; highest expected net value {b.value_best:,.1f}{unit} at {b.n_best}"
