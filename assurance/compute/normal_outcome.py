@@ -7,10 +7,11 @@ quantities (probability of success and of "success and effect above a cut"):
   point masses, a fixed panel rule for other priors (:mod:`.prior_predictive`);
 * **known sigma, t test** (:class:`~assurance.rules.significance.Significance`): the
   non-central t distribution function for point masses and normal priors (power and
-  assurance in closed form); the joint probabilities of a normal prior, a minimum observed
-  effect, and other priors integrate over the sample SD with the feature-aware rule of
-  :mod:`.sd_quadrature` (for other priors with the fixed panel rule over the prior at
-  every node: no adaptive step anywhere);
+  assurance in closed form); the joint probabilities of a normal prior (and its assurance
+  alongside them, from the same nodes), a minimum observed effect, and other priors
+  integrate over the sample SD with the feature-aware rule of :mod:`.sd_quadrature` (for
+  other priors with the fixed panel rule over the prior at every node: no adaptive step
+  anywhere);
 * **known sigma, other rules with a t analysis**: the general quadrature over the sample SD;
 * **uncertain sigma** (a prior on sigma): deterministic quadrature over a scaled inverse
   chi-square prior (or point masses, or mixtures of these) when the effect prior is normal,
@@ -165,7 +166,9 @@ def exact_success(
     A point mass gives power ``P(T > t)`` for ``T`` non-central t with non-centrality
     ``(delta - A) / se``; a normal prior ``N(m, v)`` makes ``d ~ N(m, tau^2)``,
     ``tau^2 = v + se^2``, so assurance is ``P(T > t se / tau)`` with non-centrality
-    ``(m - A) / tau``.
+    ``(m - A) / tau``, which is ``E_r[Phi((m - A - t se r) / tau)]``; with cuts it is
+    integrated over ``r`` on the nodes of the joint probabilities (whose first feature is
+    that integrand's).
 
     Examples
     --------
@@ -249,10 +252,11 @@ def _t_test(prior: Prior, rule: Significance, se: np.ndarray, df: np.ndarray,
         elif isinstance(part, Normal):
             m, sd = part.mu, part.sigma
             tau = np.hypot(sd, se)
-            if not kinked:
-                success += w * nct_sf(crit * se / tau, df, (m - low) / tau)
             if not (kinked or cuts):
+                success += w * nct_sf(crit * se / tau, df, (m - low) / tau)
                 continue
+            # with cuts, success comes from the same nodes as the joint probabilities: the
+            # first feature is the one nct_sf would use
             # features: where the threshold meets the prior mean (width tau) and, for each
             # cut a, where it meets m + (a - m) tau^2 / v (width se tau / sd), the bend of the
             # bivariate normal orthant
@@ -265,8 +269,7 @@ def _t_test(prior: Prior, rule: Significance, se: np.ndarray, df: np.ndarray,
             col, ratio, weight = ratio_rule(df, np.array(centres), np.array(widths),
                                             floor=floor)
             h = (threshold(col, ratio) - m) / tau[col]
-            if kinked:
-                success += w * column_sums(col, weight * special.ndtr(-h))
+            success += w * column_sums(col, weight * special.ndtr(-h))
             if cuts:
                 # every cut in one evaluation of the orthant probabilities
                 edge = np.array([(cut.value - m) / sd for cut in cuts])[:, None]

@@ -12,9 +12,12 @@ known places ("features": where the success threshold meets the effect, or the c
 joint probability, or the minimum observed effect), each with a known width. Two rules:
 
 * **Gauss-Hermite** on the normal score of the chi-square quantile (nodes ``z_i``, ratio
-  ``q(z_i)`` exact through the inverse incomplete gamma function). Accurate when every
-  feature is wide on the score scale; the number of nodes is picked from the narrowest
-  feature (2 to 40 nodes), and the nodes of each df are cached.
+  ``q(z_i)``). Accurate when every feature is wide on the score scale; the number of nodes
+  is picked from the narrowest feature (2 to 40 nodes). For 10 to 1e5 df the ratio of each
+  rule's score is read from a Chebyshev series in ``1 / sqrt(df)`` (32 terms, interpolating
+  exact quantiles, made once per process and rule; ``log q`` within 5e-14 wherever a node
+  weighs more than 1e-12), elsewhere it is the exact quantile (inverse incomplete gamma
+  function). The ratios of a grid and the nodes asked for (by grid and features) are cached.
 * **Composite Gauss-Legendre** on ``u = log q`` with the exact density of ``u``: panels
   between the scores -9, -8, ..., 9 of the distribution, and more panels placed around each
   feature (at 0, 0.7, 2, 5 and 12 widths either side). Used for small df, narrow features
@@ -175,15 +178,18 @@ def _make_series(ks: np.ndarray) -> None:
 
 class _GridRatios:
     """Ratios ``q(z)`` at every rule's scores (rows as ``_RULE_Z``) for the distinct df of a
-    grid (columns), NaN until asked: a tier's rows at once from the series (the Chebyshev
-    polynomials at the grid's df made once), exact quantiles for df outside the series."""
+    grid (columns), filled as asked: whole tiers at once from the series (the Chebyshev
+    polynomials at the grid's df made once), exact quantiles for the df outside the series
+    (NaN until asked)."""
 
     def __init__(self, df: np.ndarray):
         self.df = df
-        self.table = np.full((_RULE_Z.size, df.size), np.nan)
-        self.filled = np.zeros(_RULE_START.size, dtype=bool)
         self.outside = (df < _SERIES_DF[0]) | (df > _SERIES_DF[1])
-        self.inside = np.flatnonzero(~self.outside)
+        self.any_outside = bool(self.outside.any())
+        self.inside = np.flatnonzero(~self.outside) if self.any_outside else slice(None)
+        self.table = (np.full((_RULE_Z.size, df.size), np.nan) if self.any_outside
+                      else np.empty((_RULE_Z.size, df.size)))
+        self.filled = np.zeros(_RULE_START.size, dtype=bool)
         self.basis: np.ndarray | None = None
 
     def _polynomials(self) -> np.ndarray:
@@ -198,19 +204,23 @@ class _GridRatios:
         return self.basis
 
     def fill(self, ks: np.ndarray, asked: np.ndarray) -> None:
-        """Rows of the tiers ``ks`` not yet filled; ``asked[j]``: the tier column ``j``
-        needs (exact quantiles are only made where asked)."""
+        """Rows of the tiers ``ks`` (increasing) not yet filled; ``asked[j]``: the tier
+        column ``j`` needs (exact quantiles are only made where asked). The series fill the
+        rows of every tier from the first to the last asked: one product."""
         todo = ks[~self.filled[ks]]
-        if todo.size and self.inside.size:
-            if not _SERIES_MADE[todo].all():
-                _make_series(todo)
-            rows = np.concatenate([np.arange(_RULE_START[k], _RULE_START[k] + k)
-                                   for k in todo])
+        if todo.size:
+            block = _RULE_KS[(_RULE_KS >= todo[0]) & (_RULE_KS <= todo[-1])]
+            if not _SERIES_MADE[block].all():
+                _make_series(block)
+            rows = slice(int(_RULE_START[todo[0]]), int(_RULE_START[todo[-1]] + todo[-1]))
             coef = _SERIES[rows]
-            ratio = np.exp(coef[:, :1] + coef[:, 1:] @ self._polynomials())
-            self.table[rows[:, None], self.inside] = ratio
-        self.filled[todo] = True
-        if not self.outside.any():
+            if not self.any_outside:
+                self.table[rows] = np.exp(coef[:, :1] + coef[:, 1:] @ self._polynomials())
+            elif not isinstance(self.inside, slice) and self.inside.size:
+                self.table[rows, self.inside] = np.exp(
+                    coef[:, :1] + coef[:, 1:] @ self._polynomials())
+            self.filled[block] = True
+        if not self.any_outside:
             return
         for k in ks:
             rows = np.arange(_RULE_START[k], _RULE_START[k] + k)
@@ -444,15 +454,20 @@ def _hermite_nodes(df: np.ndarray, tier: np.ndarray
     """Gauss-Hermite nodes of every column with a tier > 0, flat, ordered by column and node.
     The ratios come from the grid's table (:class:`_GridRatios`): series in ``1 / sqrt(df)``
     inside their range, exact quantiles outside it."""
-    if df.size < 2 or (df[1:] > df[:-1]).all():  # a grid in increasing order: as it is
+    rising = df[1:] > df[:-1]
+    if rising.all():  # a grid in increasing order: as it is
         uniq, inverse = df, None
     else:
-        uniq, inverse = np.unique(df, return_inverse=True)
+        run = int(rising.argmin()) + 1  # a grid repeated (several rows of one grid)?
+        if df.size % run == 0 and (df.reshape(-1, run) == df[:run]).all():
+            uniq, inverse = df[:run], np.tile(np.arange(run), df.size // run)
+        else:
+            uniq, inverse = np.unique(df, return_inverse=True)
     grid = _grid_ratios(uniq)
     cols = np.flatnonzero(tier)
     reps = tier[cols]
     asked = np.zeros(uniq.size, dtype=np.int64)
-    if grid.outside.any():
+    if grid.any_outside:
         asked[cols if inverse is None else inverse[cols]] = reps
     grid.fill(np.flatnonzero(np.bincount(reps)), asked)
     first = np.cumsum(reps) - reps  # where each column's nodes start in the flat arrays
