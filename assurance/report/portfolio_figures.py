@@ -128,7 +128,8 @@ def plot_portfolio(plan: Any) -> Figure:
 
         legend = left.legend(handles=[Patch(color=_BLUE, label="exact"),
                                       Patch(color=_ORANGE, label="simulated (\u00b1 2 MC SE)")],
-                             loc="lower right", fontsize=8, frameon=True)
+                             loc="lower center", bbox_to_anchor=(0.5, 1.0), ncol=2,
+                             fontsize=8, frameon=False)
         legend.get_frame().set_edgecolor("#CCCCCC")
 
     q = plan.distribution
