@@ -20,7 +20,6 @@ import shutil
 import subprocess
 from dataclasses import replace
 from pathlib import Path
-from types import SimpleNamespace
 
 import numpy as np
 import pytest
@@ -301,32 +300,26 @@ def test_a_development_program_counts_as_one_entry(tmp_path):
         PortfolioPlan.from_file(bad)
 
 
-def _simulated_plan(n=(100, 200, 300)):
-    """A stand-in for a ModelPlan (an analysis model planned by simulation): the attributes
-    the portfolio reads, with simulated numbers of a binomial proportion (its MC SE)."""
-    import xarray as xr
+def test_an_analysis_model_planned_by_simulation_uses_its_simulated_sizes():
+    from assurance.general.builtin import borrowed_control
+    from assurance.model_plan import plan_model
 
-    rng = np.random.default_rng(3)
-    trials = 400
-    truth = np.array([0.45, 0.62, 0.74])
-    hits = rng.binomial(trials, truth)
-    p = hits / trials
-    ds = xr.Dataset({"assurance": ("n", p),
-                     "assurance_mcse": ("n", np.sqrt(p * (1 - p) / trials))},
-                    coords={"n": list(n)})
-    return SimpleNamespace(model=object(), results=ds, sample_sizes=(), planned_n=n[-1],
-                           planned_reason="the largest size simulated", title="Simulated",
-                           source=None)
-
-
-def test_simulated_trials_use_their_simulated_sizes():
-    sim = _simulated_plan()
+    model = borrowed_control(asr.Normal(3.0, 1.0), 3.0, sd=10.0, historical_mean=0.0,
+                             historical_n=50, weight=0.0)
+    sim = plan_model(model, asr.Significance(alpha=0.025, sided="one"), [100, 200, 400],
+                     targets={"assurance": 0.5}, trials=100, nuts_check=0, progress=False)
     plan = plan_portfolio([sim], values=ValueInputs(100.0, 0.05))
     t = plan.trials[0]
+    ds = sim.results
     assert t.endpoint == "analysis model (simulated)"
-    assert t.n == 300 and t.pos == float(sim.results.assurance[-1])
-    np.testing.assert_array_equal(t.curve_n, [100, 200, 300])
-    assert t.best.n_best in (100, 200, 300)
+    # the model plan's own simulated numbers at its planned size, with their MC SE
+    assert t.n == sim.planned_n
+    assert t.pos == float(ds.assurance.sel(n=t.n))
+    assert t.pos_mcse == float(ds.assurance_mcse.sel(n=t.n)) and not t.exact
+    np.testing.assert_array_equal(t.curve_n, ds.n.values)
+    assert t.best.n_best in (100, 200, 400)
+    page = portfolio_memo_html(plan, figures=False, versions="-", date="2026-01-05")
+    assert "Monte Carlo estimates" in page
     with pytest.raises(AssuranceInputError, match="one of its simulated sizes"):
         plan_portfolio([sim], sizes=[250])
 
