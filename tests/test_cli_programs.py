@@ -73,3 +73,19 @@ def test_program_writes_its_folder(tmp_path, capsys):
                  str(out), "-q"]) == 0
     assert (out / "memo.html").is_file()
     assert capsys.readouterr().out == ""  # --quiet prints nothing but errors
+
+
+def test_a_portfolio_never_replaces_a_folder_holding_a_design_it_names(tmp_path, capsys):
+    # the design file sits in a folder assurance wrote earlier; the portfolio names it and
+    # asks to replace that folder: refused after reading, and the folder is unchanged
+    earlier = tmp_path / "earlier"
+    assert main(["plan", str(ROOT / "case_studies" / "knee_pain" / "design.toml"), "--out",
+                 str(earlier), "-q"]) == 0
+    before = sorted(p.name for p in earlier.iterdir())
+    portfolio = tmp_path / "portfolio.toml"
+    portfolio.write_text('title = "Invented"\n[[trial]]\nname = "knee"\n'
+                         'design = "earlier/design.toml"\n', encoding="utf-8")
+    code = main(["portfolio", str(portfolio), "--out", str(earlier), "--overwrite", "-q"])
+    assert code == 2
+    assert "holds the design file" in capsys.readouterr().err
+    assert sorted(p.name for p in earlier.iterdir()) == before
