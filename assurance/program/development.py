@@ -12,7 +12,8 @@ a go and ``s(delta)`` the chance that phase 3 succeeds at the true effect,
 * ``P(phase 3 success | go) = PoS / P(go)``,
 * ``P(go and the drug works) = E[g(delta) 1{delta better than no effect}]``,
 * false-go rate ``P(go | no benefit) = E[g(delta) 1{no benefit}] / P(no benefit)``,
-* expected patients ``n2 + P(go) n3`` and expected months ``m2 + P(go) (gap + m3)``,
+* expected patients ``n2 + P(go) n3`` and expected months ``m2 + P(go) (gap + m3)`` (a
+  phase's months fixed, or ``n / recruitment + follow-up`` so that they follow its size),
 
 the expectations taken over the design prior by Gauss-Legendre panels between the prior's
 quantiles (and over the surrogate's noise by Gauss-Hermite nodes). ``g`` and ``s`` come from
@@ -27,7 +28,9 @@ integrate over ``d2 | delta ~ N(mean, se2^2 + sd^2)`` bin by bin (phase 2 must h
 estimate with known SD: a continuous endpoint with a z analysis).
 
 :func:`simulate_program` simulates whole programs (true effect, phase 2 data, the go
-decision, the phase 3 size and data) as an independent check of these figures.
+decision, the phase 3 size and data; each trial's data as its endpoint produces them:
+normal estimates, binomial counts, patient-level event times with the log-rank test,
+patient-level counts) as an independent check of these figures.
 
 References
 ----------
@@ -57,7 +60,7 @@ from ..rules.posterior import MinimumEstimate
 
 __all__ = ["CHECK_LIMIT", "Surrogate", "Replanning", "ProgramDesign", "ProgramResult",
            "program_result", "program_grid", "prior_nodes", "replan_table",
-           "simulate_program", "effect_curves"]
+           "simulate_program", "simulation_gap", "effect_curves"]
 
 #: Gauss-Legendre nodes per panel of the prior quadrature
 _PANEL_NODES = 16
@@ -210,12 +213,20 @@ class ProgramDesign:
     surrogate
         How the phase 2 effect follows the phase 3 effect (:class:`Surrogate`).
     months_phase2, months_gap, months_phase3
-        Durations for the expected duration: phase 2, the time from its result to the start
-        of phase 3, and phase 3.
+        Durations in months for the expected duration: phase 2, the time from its result
+        to the start of phase 3, and phase 3 (fixed, whatever the size).
     replan
         Size phase 3 from the observed phase 2 result (:class:`Replanning`), or None.
     title
         Name of the program.
+    recruitment_phase2, recruitment_phase3
+        Patients recruited per month (> 0), or None. With it the phase lasts ``n /
+        recruitment + follow_up`` months, so its duration follows its size (the phase 2
+        size of a grid, the re-planned phase 3 size); ``months_phase2`` /
+        ``months_phase3`` must then be 0.
+    follow_up_phase2, follow_up_phase3
+        Months from the last patient's entry to the phase's result (with a recruitment
+        rate only).
 
     Examples
     --------
@@ -240,6 +251,10 @@ class ProgramDesign:
     months_phase3: float = 0.0
     replan: Replanning | None = None
     title: str = "Untitled program"
+    recruitment_phase2: float | None = None
+    follow_up_phase2: float = 0.0
+    recruitment_phase3: float | None = None
+    follow_up_phase3: float = 0.0
 
     def __post_init__(self) -> None:
         owner = "ProgramDesign"
@@ -264,6 +279,26 @@ class ProgramDesign:
         for name in ("months_phase2", "months_gap", "months_phase3"):
             object.__setattr__(self, name, check_real(getattr(self, name), name, owner,
                                                       low=0))
+        for phase in ("2", "3"):
+            rate_name, follow_name = f"recruitment_phase{phase}", f"follow_up_phase{phase}"
+            rate = getattr(self, rate_name)
+            follow = check_real(getattr(self, follow_name), follow_name, owner, low=0)
+            object.__setattr__(self, follow_name, follow)
+            if rate is None:
+                if follow > 0:
+                    raise AssuranceInputError(
+                        f"The '{follow_name}' parameter of {owner} needs '{rate_name}' (the "
+                        f"follow-up is added to the recruitment time). Got {follow_name}="
+                        f"{follow:g} without a recruitment rate.")
+                continue
+            rate = check_real(rate, rate_name, owner, low=0, low_open=True, high=1e6)
+            object.__setattr__(self, rate_name, rate)
+            if getattr(self, f"months_phase{phase}") > 0:
+                raise AssuranceInputError(
+                    f"The 'months_phase{phase}' parameter of {owner} must be 0 when "
+                    f"'{rate_name}' is given (the phase then lasts n / {rate_name} + "
+                    f"{follow_name} months). Got months_phase{phase}="
+                    f"{getattr(self, f'months_phase{phase}'):g}.")
         if self.replan is not None:
             if not isinstance(self.replan, Replanning):
                 raise AssuranceInputError(
@@ -279,6 +314,36 @@ class ProgramDesign:
             raise AssuranceInputError(
                 f"The 'title' parameter of {owner} must be a non-empty string. Got "
                 f"{self.title!r:.80} instead.")
+
+    def phase2_months(self, n2: Any) -> Any:
+        """Months of phase 2 with ``n2`` patients (fixed, or recruitment plus follow-up)."""
+        if self.recruitment_phase2 is None:
+            return self.months_phase2 + 0.0 * np.asarray(n2, dtype=float)
+        return np.asarray(n2, dtype=float) / self.recruitment_phase2 + self.follow_up_phase2
+
+    def phase3_months(self, n3: Any) -> Any:
+        """Months of phase 3 with ``n3`` patients (fixed, or recruitment plus follow-up).
+
+        Examples
+        --------
+        >>> import assurance as asr
+        >>> ep = asr.ContinuousEndpoint(sigma=10.0, analysis="z")
+        >>> p3 = asr.TrialDesign(ep, asr.Normal(3.0, 2.0))
+        >>> program = ProgramDesign(p3, p3, n2=100, n3=400, recruitment_phase3=20.0,
+        ...                         follow_up_phase3=6.0)
+        >>> float(program.phase3_months(400))
+        26.0
+        """
+        if self.recruitment_phase3 is None:
+            return self.months_phase3 + 0.0 * np.asarray(n3, dtype=float)
+        return np.asarray(n3, dtype=float) / self.recruitment_phase3 + self.follow_up_phase3
+
+    @property
+    def has_durations(self) -> bool:
+        """Whether any duration was given (else the expected duration is not reported)."""
+        return bool(self.months_phase2 or self.months_gap or self.months_phase3
+                    or self.recruitment_phase2 is not None
+                    or self.recruitment_phase3 is not None)
 
     @property
     def prior(self) -> Prior:
@@ -508,9 +573,12 @@ class ProgramResult:
     phase3_alone
         Assurance of phase 3 run without phase 2 (at ``n3``), for comparison.
     expected_patients, expected_months
-        ``n2 + E[phase 3 size; go]`` and ``m2 + P(go) (gap + m3)``.
+        ``n2 + E[phase 3 size; go]`` and ``m2 + E[gap + m3(phase 3 size); go]`` (``m3``
+        fixed, or recruitment time plus follow-up, so it follows a re-planned size).
     expected_phase3_n
         Mean phase 3 size given a go (``n3`` unless re-planned).
+    expected_phase3_months
+        Mean phase 3 duration given a go (months).
     n2, n3, go_threshold, replanned
         What was evaluated (``n3`` is the fixed size; see ``expected_phase3_n``).
     """
@@ -526,6 +594,7 @@ class ProgramResult:
     expected_patients: float
     expected_months: float
     expected_phase3_n: float
+    expected_phase3_months: float
     n2: int
     n3: int
     go_threshold: float | None
@@ -553,6 +622,10 @@ def _finish(program: ProgramDesign, x3: np.ndarray, w: np.ndarray, go: np.ndarra
         relevant = float(w @ (go * (benefit >= cut - 1e-12 * max(1.0, abs(cut)))))
     expected3 = float(w @ phase3_n)
     m = program
+    if m.recruitment_phase3 is None:
+        months3 = p_go * m.months_phase3
+    else:  # linear in the size: E[n3 / rate + follow-up; go]
+        months3 = expected3 / m.recruitment_phase3 + p_go * m.follow_up_phase3
     result = ProgramResult(
         p_go=_unit(p_go), p_success_given_go=_unit(pos / p_go) if p_go > 0 else 0.0,
         pos=_unit(pos), p_go_and_works=_unit(float(w @ (go * works))),
@@ -560,8 +633,9 @@ def _finish(program: ProgramDesign, x3: np.ndarray, w: np.ndarray, go: np.ndarra
         false_go=_unit(float(w @ (go * ~works)) / p_none) if p_none > 1e-12 else 0.0,
         p_no_benefit=_unit(p_none), phase3_alone=_unit(float(w @ alone)),
         expected_patients=n2 + expected3,
-        expected_months=m.months_phase2 + p_go * (m.months_gap + m.months_phase3),
+        expected_months=float(m.phase2_months(n2)) + p_go * m.months_gap + months3,
         expected_phase3_n=expected3 / p_go if p_go > 0 else 0.0,
+        expected_phase3_months=months3 / p_go if p_go > 0 else 0.0,
         n2=int(n2), n3=int(program.n3), go_threshold=go_threshold, replanned=replanned)
     for key, value in result.to_dict().items():
         if isinstance(value, float) and not math.isfinite(value):
@@ -858,19 +932,66 @@ def effect_curves(program: ProgramDesign, points: int = 121) -> dict[str, np.nda
 # ------------------------------------------------------------------------------------------
 # the independent check: whole programs simulated
 # ------------------------------------------------------------------------------------------
-def _simulate_estimates(design: TrialDesign, x: np.ndarray, sizes: np.ndarray,
-                        rng: np.random.Generator) -> np.ndarray:
-    """Whether each simulated trial passes its rule (continuous endpoint, normal data).
+#: most outcome tables of a binary trial whose success region is looked up as a dense table
+#: (a region that is not one run per control count); larger ones have no simulator here
+_MAX_DENSE_TABLES = 40_000_000
+#: simulated patients handled at once (trials x patients per trial)
+_PATIENT_BLOCK = 250_000
 
-    The estimate is drawn as ``N(effect, sigma^2 k^2)``; for a t analysis the pooled
-    variance is drawn as ``sigma^2 chi2_df / df`` and the rule applied with the
-    estimated standard error and t critical values.
+
+def simulation_gap(program: ProgramDesign, *, n2: int | None = None) -> str | None:
+    """Why :func:`simulate_program` cannot simulate ``program`` (plain words), or None.
+
+    Every endpoint the semi-analytic engine accepts has a simulator: normal data
+    (continuous), binomial counts decided by the test's own success region (binary),
+    patient-level event times decided by the log-rank statistic (time-to-event), and
+    patient-level counts decided by the Wald or the conditional exact test (counts). What is
+    left out: a binary trial whose success region is not one run of treatment counts per
+    control count and has more than 40 million outcome tables.
+
+    Examples
+    --------
+    >>> import assurance as asr
+    >>> ep = asr.ContinuousEndpoint(sigma=10.0, analysis="z")
+    >>> p3 = asr.TrialDesign(ep, asr.Normal(3.0, 2.0))
+    >>> simulation_gap(ProgramDesign(p3, p3, n2=100, n3=400)) is None
+    True
+    """
+    from ..endpoints.binary import BinaryEndpoint
+    from ..endpoints.counts import CountEndpoint
+    from ..endpoints.survival import SurvivalEndpoint
+
+    n2 = program.n2 if n2 is None else int(n2)
+    sizes3 = [program.n3] if program.replan is None else [program.replan.max_n]
+    for phase, design, sizes in (("phase 2", program.go_design(n2), [n2]),
+                                 ("phase 3", program.phase3, sizes3)):
+        ep = design.endpoint
+        if isinstance(ep, BinaryEndpoint):
+            n_t, n_c = (int(v[0]) for v in ep.arm_sizes(np.array([max(sizes)])))
+            if (n_t + 1) * (n_c + 1) > _MAX_DENSE_TABLES and \
+                    not _staircase(design, n_t, n_c):
+                return (f"the {phase} success region (a binary test with a margin or a "
+                        f"posterior rule at {n_t + n_c:,} patients) has more than "
+                        f"{_MAX_DENSE_TABLES:,} outcome tables, too many to look simulated "
+                        "trials up in")
+        elif not isinstance(ep, ContinuousEndpoint | SurvivalEndpoint | CountEndpoint):
+            return f"no simulator for the {phase} endpoint ({ep.describe()})"
+    return None
+
+
+def _staircase(design: TrialDesign, n_t: int, n_c: int) -> bool:
+    from ..compute.binary_exact import PosteriorSpec, _staircase_known
+
+    spec = _calc(design).engine.spec
+    return isinstance(spec, PosteriorSpec) or not spec.two_arm or _staircase_known(spec)
+
+
+def _decide_continuous(design: TrialDesign, x: np.ndarray, sizes: np.ndarray,
+                       rng: np.random.Generator) -> np.ndarray:
+    """Normal data: the estimate ``N(effect, sigma^2 k^2)``; for a t analysis the pooled
+    variance ``sigma^2 chi2_df / df`` and the rule at the estimated SE and t critical values.
     """
     ep = design.endpoint
-    if not isinstance(ep, ContinuousEndpoint):
-        raise AssuranceInputError(
-            "The 'program' parameter of simulate_program must have continuous endpoints in "
-            f"both phases (normal data). Got: {ep.describe()}.")
     n_t, n_c = ep.arm_sizes(sizes)
     k = ep.se_factor(n_t, n_c)
     se = ep.sigma * k
@@ -885,21 +1006,149 @@ def _simulate_estimates(design: TrialDesign, x: np.ndarray, sizes: np.ndarray,
     return d > c
 
 
+def _decide_binary(design: TrialDesign, x: np.ndarray, n: int,
+                   rng: np.random.Generator) -> np.ndarray:
+    """Binomial counts per arm, decided by the success region of the design's own test
+    (:func:`~assurance.compute.binary_exact.success_runs`: the same decisions as the test
+    run on each table), control rate at its planning value."""
+    from ..compute.binary_exact import success_runs, treatment_rate
+
+    ep = design.endpoint
+    n_t, n_c = (int(v[0]) for v in ep.arm_sizes(np.array([n])))
+    region = success_runs(_calc(design).engine.spec, n_t, n_c)
+    p_c = ep.control_rate
+    p_t = np.clip(np.nan_to_num(np.asarray(treatment_rate(x, p_c, ep.scale), dtype=float),
+                                nan=p_c), 0.0, 1.0)
+    x_t = rng.binomial(n_t, p_t)
+    x_c = rng.binomial(n_c, p_c, size=x.size) if n_c > 0 else np.zeros(x.size, np.int64)
+    if np.unique(region.col).size == region.col.size:  # at most one run per control count
+        lo = np.full(n_c + 1, n_t + 1, dtype=np.int64)
+        hi = np.full(n_c + 1, -1, dtype=np.int64)
+        lo[region.col], hi[region.col] = region.lo, region.hi
+        return (lo[x_c] <= x_t) & (x_t <= hi[x_c])
+    return region.dense()[x_t, x_c]
+
+
+def _decide_survival(design: TrialDesign, x: np.ndarray, n: int,
+                     rng: np.random.Generator) -> np.ndarray:
+    """Patient-level trials (entry, event and dropout times, censoring at the analysis) as
+    in :func:`assurance.simulation.survival.simulate_trials`, each at its own hazard ratio
+    ``exp(x)``; decided by the rule on the log-rank sums: estimate ``(O - E) / V`` (benefit
+    scale) against the threshold at standard error ``1 / sqrt(V)`` (for significance without
+    a margin exactly the one-sided log-rank test). Control median at its planning value."""
+    from ..simulation.survival import _draw, _follow_up, logrank_by_row
+
+    ep = design.endpoint
+    n_t, n_c = (int(v[0]) for v in ep.arm_sizes(np.array([n])))
+    total = n_t + n_c
+    treated = np.arange(total) < n_t
+    ratio = np.exp(np.clip(x, -50.0, 50.0))
+    rule = design.benefit_rule
+    critical = rule.critical_z()
+    out = np.zeros(x.size, dtype=bool)
+    rows = max(1, _PATIENT_BLOCK // total)
+    for lo in range(0, x.size, rows):
+        sl = slice(lo, min(lo + rows, x.size))
+        m = sl.stop - sl.start
+        draws = _draw(ep, m, total, rng)
+        times, events = _follow_up(ep, *draws, ratio[sl], np.ones(m), n_t)
+        o_minus_e, var = logrank_by_row(times, events, treated)
+        ok = var > 0
+        safe = np.where(ok, var, 1.0)
+        estimate = ep.sign * o_minus_e / safe
+        out[sl] = ok & (estimate > rule.threshold(1.0 / np.sqrt(safe), critical))
+    return out
+
+
+def _decide_counts(design: TrialDesign, x: np.ndarray, n: int,
+                   rng: np.random.Generator) -> np.ndarray:
+    """Patient-level counts (gamma-Poisson, dropout) as in
+    :func:`assurance.endpoints.counts.simulate_rejection_rate`, each trial at its own rate
+    ratio ``exp(x)``, control rate at its planning value; analysed by Poisson rates (no
+    overdispersion) or negative binomial maximum likelihood, decided by the rule on the Wald
+    statistic (``test_variance`` as the endpoint states), or by the conditional exact test."""
+    from ..endpoints.counts import _analyse, _exact_decisions, _simulate_arm
+
+    ep = design.endpoint
+    n_t, n_c = (int(v[0]) for v in ep.arm_sizes(np.array([n])))
+    two_arm = ep.layout == "two_arm"
+    lam_c = ep.control_rate
+    ratio = np.exp(np.clip(x, -50.0, 50.0))
+    rule = design.benefit_rule
+    critical = rule.critical_z()
+    null_log_rr = ep.sign * rule.null_value
+    analysis = "poisson" if ep.overdispersion == 0 else "negative_binomial"
+    out = np.zeros(x.size, dtype=bool)
+    rows = max(1, _PATIENT_BLOCK // (n_t + n_c))
+    for lo in range(0, x.size, rows):
+        sl = slice(lo, min(lo + rows, x.size))
+        m = sl.stop - sl.start
+        data = [_simulate_arm(ep, rng, m, n_t, (lam_c * ratio[sl])[:, None])]
+        if two_arm:
+            data.append(_simulate_arm(ep, rng, m, n_c, lam_c))
+        if ep.test == "exact_conditional":
+            out[sl] = _exact_decisions(ep, rule, data, n_t, n_c)
+            continue
+        ok, d, _var1, var0 = _analyse(ep, data, analysis, null_log_rr, lam_c)
+        se0 = np.sqrt(np.where(ok, var0, 1.0))
+        out[sl] = ok & (ep.sign * d > rule.threshold(se0, critical))
+    return out
+
+
+def _simulate_decisions(design: TrialDesign, x: np.ndarray, sizes: np.ndarray,
+                        rng: np.random.Generator) -> np.ndarray:
+    """Whether each simulated trial passes its rule, at true effects ``x`` (the design's
+    analysis scale) and total sizes ``sizes``."""
+    from ..endpoints.binary import BinaryEndpoint
+    from ..endpoints.counts import CountEndpoint
+    from ..endpoints.survival import SurvivalEndpoint
+
+    ep = design.endpoint
+    if isinstance(ep, ContinuousEndpoint):
+        return _decide_continuous(design, x, sizes, rng)
+    decide = {BinaryEndpoint: _decide_binary, SurvivalEndpoint: _decide_survival,
+              CountEndpoint: _decide_counts}.get(type(ep))
+    if decide is None:
+        raise AssuranceInputError(
+            "The 'program' parameter of simulate_program has an endpoint with no simulator: "
+            f"{ep.describe()}.")
+    out = np.zeros(x.size, dtype=bool)
+    for n in np.unique(sizes):
+        at = np.flatnonzero(sizes == n)
+        out[at] = decide(design, x[at], int(n), rng)
+    return out
+
+
 def simulate_program(program: ProgramDesign, *, programs: int = 20_000,
                      seed: int | None = DEFAULT_SEED, n2: int | None = None,
                      go_threshold: float | None = None) -> dict[str, float]:
     """Simulate whole programs: the check of :func:`program_result`.
 
-    Each program draws the true effect from the design prior, the phase 2 effect through
-    the surrogate, a phase 2 estimate (and SD for a t analysis), applies the go rule, sizes
-    phase 3 (fixed, or from the re-planning table at the observed estimate), draws the phase
-    3 result and applies its rule. Both phases must have continuous endpoints.
+    Each program draws the true effect from the design prior and the phase 2 effect
+    through the surrogate; simulates the phase 2 trial and applies the go rule; sizes phase
+    3 (fixed, or from the re-planning table at the observed estimate); simulates phase 3
+    and applies its rule. Each trial is simulated as the endpoint's data arise:
+
+    * continuous: the normal estimate (and, for a t analysis, the pooled SD);
+    * binary: binomial counts per arm, decided by the success region of the design's own
+      test (z, unpooled z, chi-square, Fisher's exact test, the exact binomial test, or a
+      posterior-probability rule), the same decisions as the test run on each table;
+    * time-to-event: patient by patient (entry, event, dropout, censoring at the analysis),
+      decided on the log-rank statistic;
+    * counts: patient by patient (Poisson or negative binomial, dropout), analysed by
+      Poisson or negative binomial maximum likelihood and the Wald test, or by the
+      conditional exact test.
+
+    Nuisance parameters (control rate, control median, outcome SD) stay at their planning
+    values, as in :func:`program_result`. Random numbers come from three streams spawned
+    from ``numpy.random.SeedSequence(seed)``: the effects, phase 2, phase 3.
 
     Returns
     -------
     dict
-        ``p_go``, ``pos``, ``p_go_and_works``, ``expected_patients`` and each with a
-        ``*_mcse`` companion (Monte Carlo standard error), and ``programs``.
+        ``p_go``, ``pos``, ``p_go_and_works``, ``expected_patients``, ``expected_months``
+        and each with a ``*_mcse`` companion (Monte Carlo standard error), and
+        ``programs``.
 
     Examples
     --------
@@ -919,34 +1168,43 @@ def simulate_program(program: ProgramDesign, *, programs: int = 20_000,
     programs = check_int(programs, "programs", owner, low=100, high=10**7)
     if seed is not None:
         seed = check_int(seed, "seed", owner, low=0)
-    n2 = program.n2 if n2 is None else check_int(n2, "n2", owner, low=1, high=10**8)
+    n2 = program.n2 if n2 is None else check_int(
+        n2, "n2", owner, low=program.phase2.endpoint.smallest_total, high=10**8)
     threshold = program.go_threshold if go_threshold is None else go_threshold
-    rng = np.random.default_rng(seed)
-    x3 = np.asarray(program.prior.sample(programs, rng), dtype=float)
+    gap = simulation_gap(program, n2=n2)
+    if gap is not None:
+        raise AssuranceInputError(
+            f"The 'program' parameter of {owner} cannot be simulated: {gap}.")
+    effects, first, second = (np.random.default_rng(s)
+                              for s in np.random.SeedSequence(seed).spawn(3))
+    x3 = np.asarray(program.prior.sample(programs, effects), dtype=float)
     sur = program.surrogate
-    x2 = sur.mean_effect(x3) + (sur.sd * rng.standard_normal(programs) if sur.sd else 0.0)
+    x2 = sur.mean_effect(x3) + (sur.sd * effects.standard_normal(programs) if sur.sd
+                                else 0.0)
     design2 = program.go_design(n2, threshold)
     if program.replan is None:
-        go = _simulate_estimates(design2, x2, np.full(programs, n2), rng)
-        n3 = np.full(programs, program.n3, dtype=np.int64)
+        go = _simulate_decisions(design2, x2, np.full(programs, n2, dtype=np.int64), first)
+        n3 = np.where(go, program.n3, 0).astype(np.int64)
     else:
         table = replan_table(program, n2=n2, go_threshold=threshold)
         ep2 = design2.endpoint
         n_t, n_c = ep2.arm_sizes(np.array([n2]))
         se2 = float(ep2.sigma * ep2.se_factor(n_t, n_c)[0])
-        d2 = ep2.sign * x2 + se2 * rng.standard_normal(programs)
+        d2 = ep2.sign * x2 + se2 * first.standard_normal(programs)
         go = d2 >= table["lower"][0]
         k = np.clip(np.searchsorted(table["lower"], d2, side="right") - 1, 0, None)
         n3 = np.where(go, table["n3"][k], 0)
     success = np.zeros(programs, dtype=bool)
     if go.any():
-        success[go] = _simulate_estimates(program.phase3, x3[go], n3[go], rng)
+        success[go] = _simulate_decisions(program.phase3, x3[go], n3[go], second)
     works = program.phase3.endpoint.sign * x3 > 0
-    patients = n2 + np.where(go, n3, 0)
+    patients = n2 + n3
+    months = program.phase2_months(n2) + np.where(
+        go, program.months_gap + program.phase3_months(np.maximum(n3, 1)), 0.0)
     out: dict[str, float] = {"programs": float(programs)}
     for name, values in (("p_go", go), ("pos", success), ("p_go_and_works", go & works),
-                         ("expected_patients", patients)):
-        v = values.astype(float)
+                         ("expected_patients", patients), ("expected_months", months)):
+        v = np.asarray(values, dtype=float)
         out[name] = float(v.mean())
         out[name + "_mcse"] = float(v.std(ddof=1) / math.sqrt(programs))
     return out
