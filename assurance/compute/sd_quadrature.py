@@ -148,55 +148,56 @@ _SERIES_S = (1.0 / math.sqrt(_SERIES_DF[1]), 1.0 / math.sqrt(_SERIES_DF[0]))
 #: Chebyshev terms of each series in ``s = 1 / sqrt(df)``: 32 give ``log q`` within 5e-14
 #: at every score of every tier (checked in tests/test_t_ratio_series.py).
 _SERIES_TERMS = 32
-#: Chebyshev coefficients of ``log q`` at every rule's scores (rows as ``_RULE_Z``), a
-#: tier's rows made on first use (``_SERIES_MADE[k]``), once per process
+#: The Chebyshev points of the first kind, ``x_j = cos((2j + 1) pi / (2m))``, the df they
+#: stand for, and their barycentric weights ``(-1)^j sin((2j + 1) pi / (2m))``
+_SERIES_THETA = np.pi * (np.arange(_SERIES_TERMS) + 0.5) / _SERIES_TERMS
+_SERIES_X = np.cos(_SERIES_THETA)
+_SERIES_POINT_DF = 1.0 / (_SERIES_S[0] + (_SERIES_X + 1.0) / 2.0
+                          * (_SERIES_S[1] - _SERIES_S[0])) ** 2
+_SERIES_BARY = (-1.0) ** np.arange(_SERIES_TERMS) * np.sin(_SERIES_THETA)
+#: ``log q`` at every rule's scores (rows as ``_RULE_Z``) and the Chebyshev points
+#: (columns), and the same series as Chebyshev coefficients; a tier's rows made on first
+#: use (``_SERIES_MADE[k]``), once per process
+_SERIES_AT = np.zeros((_RULE_Z.size, _SERIES_TERMS))
 _SERIES = np.zeros((_RULE_Z.size, _SERIES_TERMS))
 _SERIES_MADE = np.zeros(_RULE_START.size, dtype=bool)
 _SERIES_LOCK = threading.Lock()
 
 
 def _make_series(ks: np.ndarray) -> None:
-    """Make the missing rows of ``_SERIES`` for the tiers ``ks``: interpolation of ``log q``
-    at the Chebyshev points of the first kind (exact quantiles there)."""
+    """Make the missing rows of the series for the tiers ``ks``: exact quantiles at the
+    Chebyshev points, and the coefficients of the polynomial through them."""
     with _SERIES_LOCK:
         ks = [int(k) for k in ks if not _SERIES_MADE[k]]
         if not ks:
             return
         m = _SERIES_TERMS
-        theta = np.pi * (np.arange(m) + 0.5) / m
-        low, high = _SERIES_S
-        s = low + (np.cos(theta) + 1.0) / 2.0 * (high - low)
-        df = 1.0 / (s * s)
+        df = _SERIES_POINT_DF
         rows = np.concatenate([np.arange(_RULE_START[k], _RULE_START[k] + k) for k in ks])
         log_q = 0.5 * np.log(_chi_from_score(_RULE_Z[rows, None], df[None, :] / 2)
                              / df[None, :])
-        coef = (2.0 / m) * (log_q @ np.cos(np.outer(np.arange(m), theta)).T)
+        coef = (2.0 / m) * (log_q @ np.cos(np.outer(np.arange(m), _SERIES_THETA)).T)
         coef[:, 0] /= 2.0
+        _SERIES_AT[rows] = log_q
         _SERIES[rows] = coef
         _SERIES_MADE[ks] = True
 
 
-def _chebyshev(x: np.ndarray) -> np.ndarray:
-    """``T_0 .. T_{m-1}`` at ``x`` in ``[-1, 1]``, ``(m, x.size)``, ``m = _SERIES_TERMS``:
-    doubling, ``T_{j+i} = 2 T_j T_i - T_{j-i}`` for ``i = 1 .. j`` in one step (within
-    3e-14 of ``cos(m arccos x)`` for ``m < 32``)."""
-    m = _SERIES_TERMS
-    out = np.empty((m, x.size))
-    out[0] = 1.0
-    out[1] = x
-    j = 1
-    while j < m - 1:
-        count = min(j, m - 1 - j)
-        np.multiply(2.0 * out[j], out[1:1 + count], out=out[j + 1:j + 1 + count])
-        out[j + 1:j + 1 + count] -= out[j - count:j][::-1]
-        j += count
-    return out
+def _interpolation_weights(x: np.ndarray) -> np.ndarray:
+    """``L[j, i]`` with ``p(x_i) = sum_j L[j, i] p(x_j)`` for every polynomial ``p`` of degree
+    below ``m`` (the Chebyshev points ``x_j``): the barycentric formula (Berrut & Trefethen
+    2004, SIAM Review 46:501-517), stable at any ``x`` in ``[-1, 1]``; an ``x`` on a point
+    takes its value (the difference 1e-300 makes its weight all but 1)."""
+    diff = x[None, :] - _SERIES_X[:, None]
+    diff[diff == 0.0] = 1e-300
+    weights = _SERIES_BARY[:, None] / diff
+    return weights / weights.sum(axis=0)
 
 
 class _GridRatios:
     """Ratios ``q(z)`` at every rule's scores (rows as ``_RULE_Z``) for the distinct df of a
-    grid (columns), filled as asked: whole tiers at once from the series (the Chebyshev
-    polynomials at the grid's df made once), exact quantiles for the df outside the series
+    grid (columns), filled as asked: whole tiers at once from the series (the interpolation
+    weights at the grid's df made once), exact quantiles for the df outside the series
     (NaN until asked)."""
 
     def __init__(self, df: np.ndarray):
@@ -209,12 +210,12 @@ class _GridRatios:
         self.filled = np.zeros(_RULE_START.size, dtype=bool)
         self.basis: np.ndarray | None = None
 
-    def _polynomials(self) -> np.ndarray:
-        """``T_1 .. T_{m-1}`` at the df in the series' range, ``(m - 1, columns)``."""
+    def _weights(self) -> np.ndarray:
+        """Interpolation weights at the df in the series' range, ``(m, columns)``."""
         if self.basis is None:
             low, high = _SERIES_S
             x = (2.0 / np.sqrt(self.df[self.inside]) - low - high) / (high - low)
-            self.basis = _chebyshev(np.clip(x, -1.0, 1.0))[1:]
+            self.basis = _interpolation_weights(np.minimum(np.maximum(x, -1.0), 1.0))
         return self.basis
 
     def fill(self, ks: np.ndarray, asked: np.ndarray | None) -> None:
@@ -228,12 +229,10 @@ class _GridRatios:
             if not _SERIES_MADE[block].all():
                 _make_series(block)
             rows = slice(int(_RULE_START[todo[0]]), int(_RULE_START[todo[-1]] + todo[-1]))
-            coef = _SERIES[rows]
             if not self.any_outside:
-                self.table[rows] = np.exp(coef[:, :1] + coef[:, 1:] @ self._polynomials())
+                self.table[rows] = np.exp(_SERIES_AT[rows] @ self._weights())
             elif not isinstance(self.inside, slice) and self.inside.size:
-                self.table[rows, self.inside] = np.exp(
-                    coef[:, :1] + coef[:, 1:] @ self._polynomials())
+                self.table[rows, self.inside] = np.exp(_SERIES_AT[rows] @ self._weights())
             self.filled[block] = True
         if not self.any_outside:
             return
