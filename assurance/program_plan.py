@@ -41,11 +41,12 @@ from .program.development import (
     program_result,
     replan_table,
     simulate_program,
+    simulation_gap,
 )
 
 __all__ = ["ProgramPlan", "program_plan", "CHECK_LIMIT"]
 
-#: the figures compared with simulated programs
+#: the figures compared with simulated programs (expected months too when durations are given)
 CHECKED = ("p_go", "pos", "p_go_and_works", "expected_patients")
 
 
@@ -75,6 +76,9 @@ class ProgramPlan:
         :func:`~assurance.program.development.simulate_program`); empty when not run.
     programs, seed
         Programs simulated for the check and the seed.
+    check_gap
+        Why the check was not run, in plain words (None when it ran, or when no programs
+        were asked for).
     source
         The program file (path, bytes), when read from one.
     design_sources
@@ -96,6 +100,7 @@ class ProgramPlan:
     design_sources: tuple[DesignSource, ...] = ()
     made_by: str | None = None
     created: str = field(default_factory=lambda: _utc_now())
+    check_gap: str | None = None
 
     # --------------------------------------------------------------------------------------
     @classmethod
@@ -153,7 +158,9 @@ class ProgramPlan:
             computed = self.result if kind == "fixed" else self.replanned
             if computed is None:
                 continue
-            for name in CHECKED:
+            names = CHECKED + (("expected_months",) if self.program.has_durations
+                               and "expected_months" in sim else ())
+            for name in names:
                 value = float(getattr(computed, name))
                 mcse = float(sim[name + "_mcse"])
                 gap = abs(value - float(sim[name]))
@@ -173,7 +180,8 @@ class ProgramPlan:
                  f"{r.p_success_given_go:.3f}, program probability of success {r.pos:.3f}",
                  f"  P(go and the drug works) {r.p_go_and_works:.3f}; false-go rate "
                  f"{r.false_go:.3f}; expected patients {r.expected_patients:,.0f}"
-                 + (f", expected months {r.expected_months:.1f}" if r.expected_months else "")]
+                 + (f", expected months {r.expected_months:.1f}"
+                    if self.program.has_durations else "")]
         if self.replanned is not None:
             q = self.replanned
             lines.append(f"  phase 3 re-planned from phase 2: program probability of success "
@@ -198,7 +206,7 @@ class ProgramPlan:
                 ("P(go and the drug works)", f"{r.p_go_and_works:.1%}"),
                 ("False-go rate", f"{r.false_go:.1%}"),
                 ("Expected patients", f"{r.expected_patients:,.0f}")]
-        if r.expected_months:
+        if self.program.has_durations:
             rows.append(("Expected months", f"{r.expected_months:.1f}"))
         body = "".join(f"<tr><th style='text-align:left'>{html.escape(a)}</th>"
                        f"<td style='text-align:right'>{html.escape(b)}</td></tr>"
@@ -297,7 +305,7 @@ class ProgramPlan:
     def _write_csvs(self, tmp: Path) -> None:
         fields = ["p_go", "p_success_given_go", "pos", "p_go_and_works", "p_go_and_relevant",
                   "false_go", "p_no_benefit", "phase3_alone", "expected_patients",
-                  "expected_months", "expected_phase3_n"]
+                  "expected_months", "expected_phase3_n", "expected_phase3_months"]
         with open(tmp / "results.csv", "w", newline="", encoding="utf-8") as fh:
             w = csv.writer(fh)
             w.writerow(["quantity", "phase3_fixed", "phase3_replanned"])
@@ -380,8 +388,11 @@ def program_plan(
         The grid (see :func:`~assurance.program.development.program_grid`); the program's
         own phase 2 size is always included.
     programs
-        Whole programs simulated to check the computed figures (0: no check; needs
-        continuous endpoints in both phases, otherwise the check is left out).
+        Whole programs simulated to check the computed figures (0: no check). Every
+        endpoint has a simulator (:func:`~assurance.program.development.simulate_program`);
+        where one phase cannot be simulated
+        (:func:`~assurance.program.development.simulation_gap`) the check is left out and
+        ``check_gap`` says why.
     seed
         Seed of the simulated programs.
 
@@ -390,7 +401,6 @@ def program_plan(
     ProgramPlan
     """
     from ._validation import check_int
-    from .endpoints.continuous import ContinuousEndpoint
 
     owner = "program_plan"
     if not isinstance(program, ProgramDesign):
@@ -411,12 +421,11 @@ def program_plan(
     curves = effect_curves(program)
     table = replan_table(program) if program.replan is not None else None
     check: dict[str, dict[str, float]] = {}
-    simulable = all(isinstance(d.endpoint, ContinuousEndpoint)
-                    for d in (program.phase2, program.phase3))
-    if programs and simulable:
+    gap = simulation_gap(program) if programs else None
+    if programs and gap is None:
         check["fixed"] = simulate_program(replace(program, replan=None), programs=programs,
                                           seed=seed)
         if program.replan is not None:
             check["replanned"] = simulate_program(program, programs=programs, seed=seed + 1)
     return ProgramPlan(program, result, replanned, grid, curves, table, check,
-                       programs if check else 0, seed)
+                       programs if check else 0, seed, check_gap=gap)

@@ -22,7 +22,10 @@ A program file is TOML::
     [durations]              # optional, months
     phase2 = 12.0
     gap = 6.0
-    phase3 = 30.0
+    phase3 = 30.0            # fixed months; or let phase 3 follow its size:
+    # phase3_recruitment = 25.0   # patients recruited per month
+    # phase3_follow_up = 6.0      # months from the last patient's entry to the result
+    # (phase2_recruitment and phase2_follow_up likewise for phase 2)
 
     [grid]                   # optional: phase 2 sizes and go thresholds to compare
     phase2_sizes = [60, 120, 240]
@@ -90,10 +93,21 @@ class SurrogateTable(_Table):
 
 
 class DurationsTable(_Table):
-    phase2: float = Field(0.0, ge=0, le=1200, description="months of phase 2")
+    phase2: float = Field(0.0, ge=0, le=1200, description="months of phase 2 (fixed)")
     gap: float = Field(0.0, ge=0, le=1200, description="months from the phase 2 result to "
                                                        "the start of phase 3")
-    phase3: float = Field(0.0, ge=0, le=1200, description="months of phase 3")
+    phase3: float = Field(0.0, ge=0, le=1200, description="months of phase 3 (fixed)")
+    phase2_recruitment: float | None = Field(
+        None, gt=0, le=1e6, description="phase 2 patients recruited per month; phase 2 then "
+                                        "lasts n / this + phase2_follow_up months")
+    phase2_follow_up: float = Field(0.0, ge=0, le=1200, description="months from the last "
+                                    "phase 2 patient's entry to its result")
+    phase3_recruitment: float | None = Field(
+        None, gt=0, le=1e6, description="phase 3 patients recruited per month; phase 3 then "
+                                        "lasts n / this + phase3_follow_up months, so a "
+                                        "re-planned phase 3 takes as long as its size needs")
+    phase3_follow_up: float = Field(0.0, ge=0, le=1200, description="months from the last "
+                                    "phase 3 patient's entry to its result")
 
 
 class GridTable(_Table):
@@ -239,6 +253,10 @@ _KEYS = {"n2": "phase2.n", "n3": "phase3.n", "go_threshold": "phase2.go_threshol
          "intercept": "surrogate.intercept", "slope": "surrogate.slope", "sd": "surrogate.sd",
          "months_phase2": "durations.phase2", "months_gap": "durations.gap",
          "months_phase3": "durations.phase3", "target": "replan.target",
+         "recruitment_phase2": "durations.phase2_recruitment",
+         "follow_up_phase2": "durations.phase2_follow_up",
+         "recruitment_phase3": "durations.phase3_recruitment",
+         "follow_up_phase3": "durations.phase3_follow_up",
          "min_n": "replan.min_n", "max_n": "replan.max_n", "shrinkage": "replan.shrinkage",
          "power_weight": "replan.power_weight", "robust_weight": "replan.robust_weight",
          "vague_sd": "replan.vague_sd", "vague_mean": "replan.vague_mean",
@@ -365,6 +383,17 @@ def _build(model: ProgramFileModel, path: Path, content: bytes,
             model.replan.vague_sd is None:
         problems.add("", "'replan.vague_sd' is required when 'replan.robust_weight' is below 1 "
                      "(the SD of the vague part of the robust mixture).")
+    d = model.durations
+    for phase in ("phase2", "phase3"):
+        rate = getattr(d, f"{phase}_recruitment")
+        if rate is not None and phase in d.model_fields_set:
+            problems.add("", f"'durations.{phase}' (fixed months) and "
+                         f"'durations.{phase}_recruitment' (months that follow the size) "
+                         "cannot both be given; keep one.")
+        if rate is None and getattr(d, f"{phase}_follow_up") > 0:
+            problems.add("", f"'durations.{phase}_follow_up' needs "
+                         f"'durations.{phase}_recruitment' (patients per month): the "
+                         "follow-up is added to the recruitment time.")
     problems.raise_if_any()
     program = None
     surrogate = replan = None
@@ -382,13 +411,14 @@ def _build(model: ProgramFileModel, path: Path, content: bytes,
         except AssuranceInputError as exc:
             problems.add_domain(exc, "replan", _KEYS)
     problems.raise_if_any()
-    d = model.durations
     try:
         program = ProgramDesign(
             specs["phase2"].design, specs["phase3"].design, n2=model.phase2.n,
             n3=model.phase3.n, go_threshold=model.phase2.go_threshold,
             surrogate=surrogate, months_phase2=d.phase2, months_gap=d.gap,
-            months_phase3=d.phase3, replan=replan, title=model.title)
+            months_phase3=d.phase3, replan=replan, title=model.title,
+            recruitment_phase2=d.phase2_recruitment, follow_up_phase2=d.phase2_follow_up,
+            recruitment_phase3=d.phase3_recruitment, follow_up_phase3=d.phase3_follow_up)
     except AssuranceInputError as exc:
         problems.add_domain(exc, "", _KEYS)
     smallest = specs["phase2"].design.endpoint.smallest_total

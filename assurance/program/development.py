@@ -119,8 +119,11 @@ class Surrogate:
         if self.identity:
             return "phase 2 measures the phase 3 effect itself"
         noise = "" if self.sd == 0 else f", plus normal noise with SD {self.sd:g}"
-        return (f"phase 2 effect = {self.intercept:g} + {self.slope:g} x phase 3 effect{noise} "
-                "(each on its analysis scale)")
+        line = f"{self.slope:g} x phase 3 effect"
+        if self.intercept != 0:
+            sign = "-" if self.intercept < 0 else "+"
+            line = f"{line} {sign} {abs(self.intercept):g}"
+        return f"phase 2 effect = {line}{noise} (each on its analysis scale)"
 
     def to_dict(self) -> dict[str, float]:
         return {"intercept": self.intercept, "slope": self.slope, "sd": self.sd}

@@ -96,7 +96,7 @@ def plot_program_grid(plan: Any) -> Figure:
         for j, rule in enumerate(g.go_rule.values):
             rule = str(rule)
             text = "go rule as designed" if rule == "as designed" else \
-                f"go if estimate {word} {rule}"
+                f"go if estimate {word} {wd.effect_text(plan.program.phase2.endpoint, float(rule))}"
             values = np.asarray(g[name].values[:, j], dtype=float)
             ax.plot(n, 100 * values if share else values, color=_LINES[j % len(_LINES)],
                     ls=_DASHES[j % len(_DASHES)], lw=1.8, marker="o", ms=3.5, label=text)
@@ -107,7 +107,7 @@ def plot_program_grid(plan: Any) -> Figure:
             ax.set_ylabel("%", fontsize=9.5)
             ax.set_ylim(bottom=0)
     handles, labels = axes[0].get_legend_handles_labels()
-    fig.legend(handles, labels, loc="outside lower center", ncols=min(4, len(labels)),
+    fig.legend(handles, labels, loc="outside lower center", ncols=min(3, len(labels)),
                fontsize=8.5, frameon=False)
     fig.suptitle(_title(plan.title, f"by phase 2 size (phase 3 {plan.program.n3:,} patients)"),
                  fontsize=10.5)
@@ -137,6 +137,12 @@ def plot_replan(plan: Any) -> Figure | None:
     ax.set_xlabel("Observed phase 2 estimate" + (f" ({unit})" if unit else ""), fontsize=10)
     ax.set_ylabel("Phase 3 patients", fontsize=10)
     ax.set_ylim(0, max(n3.max(), program.n3) * 1.08)
+    # the table runs six SDs past the go threshold; show where the size still changes
+    # (estimates run down the axis when lower is better)
+    settled = int(np.flatnonzero(n3 != n3[-1])[-1]) + 1 if (n3 != n3[-1]).any() else 0
+    span = est[settled] - est[0]
+    if span != 0 and abs(1.3 * span) < abs(est[-1] - est[0]):
+        ax.set_xlim(*sorted((est[0] - 0.05 * span, est[settled] + 0.3 * span)))
     ax.set_title(_title(program.title, "phase 3 size re-planned from phase 2"),
                  fontsize=10.5)
     _place_legend(ax, True)

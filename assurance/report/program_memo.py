@@ -32,7 +32,8 @@ PROGRAM_CAUTIONS: tuple[str, ...] = (*DEFAULT_CAUTIONS,
 
 _NAMES = {"p_go": "P(go after phase 2)", "pos": "Program probability of success",
           "p_go_and_works": "P(go and the drug works)",
-          "expected_patients": "Expected patients"}
+          "expected_patients": "Expected patients",
+          "expected_months": "Expected duration (months)"}
 
 
 def _pct(p: float) -> str:
@@ -47,7 +48,7 @@ def _decision(plan: Any) -> dict[str, Any]:
     r = plan.headline
     program = plan.program
     passes = plan.check_passes()
-    months = "" if r.expected_months == 0 else f"{r.expected_months:.1f}"
+    months = f"{r.expected_months:.1f}" if program.has_durations else ""
     tiles = [
         {"key": "pos", "label": "Program probability of success", "lead": True,
          "value": _pct(r.pos), "note": "go after phase 2, then phase 3 succeeds"},
@@ -67,8 +68,8 @@ def _decision(plan: Any) -> dict[str, Any]:
     ]
     if months:
         tiles.append({"key": "expected_months", "label": "Expected duration",
-                      "value": f"{months} months", "note": "phase 3 and the gap only after "
-                                                           "a go"})
+                      "value": f"{months} months",
+                      "note": "phase 2; the gap and phase 3 only after a go"})
     if passes is not None:
         worst = max(row["z"] for row in plan.check_rows())
         tiles.append({"key": "check", "label": "Check (simulated programs)",
@@ -89,14 +90,16 @@ def _decision(plan: Any) -> dict[str, Any]:
     ]
     if r.p_go_and_relevant is not None:
         sentences.append(
-            f"P(go and the effect is at least the relevant "
+            f"P(go and the true effect is at least the relevant effect of "
             f"{_effect(program.phase3, program.phase3.relevant_effect)}): "
             f"{_pct(r.p_go_and_relevant)}.")
     if r.replanned:
         f = plan.result
         sentences.append(f"With phase 3 fixed at {f.n3:,} patients instead: program "
                          f"probability of success {_pct(f.pos)}, expected patients "
-                         f"{f.expected_patients:,.0f}.")
+                         f"{f.expected_patients:,.0f}"
+                         + (f", expected duration {f.expected_months:.1f} months."
+                            if program.has_durations else "."))
     return {"lead": lead, "tiles": tiles, "sentences": sentences,
             "caution": "These figures rest on the design prior, on the link between the "
                        "phase 2 and phase 3 effects and on the go rule; a statistician "
@@ -121,28 +124,43 @@ def _assumed(plan: Any) -> list[tuple[str, str]]:
                     f"{program.n2:,} patients"),
         ("Go rule", _go_words(plan)),
         ("Phase 3", f"{wd._no_code(printable(p3.title))}: {wd.endpoint_text(p3.endpoint)}; "
-                    f"{program.n3:,} patients"),
+                    f"{program.n3:,} patients"
+                    + (" (its fixed size; re-planned from the phase 2 result after a go, see "
+                       "below)" if program.replan is not None else "")),
         ("Phase 3 success", wd.rule_text(p3.rule, p3.endpoint)),
         ("True effect (both trials)", "phase 3 design prior: "
                                       + wd.prior_text(program.prior, p3.endpoint)),
         ("Phase 2 effect", program.surrogate.describe()),
     ]
-    m = program
-    if m.months_phase2 or m.months_gap or m.months_phase3:
-        rows.append(("Durations", f"phase 2 {m.months_phase2:g} months, then {m.months_gap:g} "
-                                  f"months to the start of phase 3, phase 3 "
-                                  f"{m.months_phase3:g} months"))
+    if program.has_durations:
+        rows.append(("Durations", _durations_text(program)))
     if program.replan is not None:
         rows.append(("Re-planning", program.replan.describe()))
     return rows
+
+
+def _phase_months_text(program: Any, phase: str, n: int) -> str:
+    rate = getattr(program, f"recruitment_phase{phase}")
+    if rate is None:
+        return f"phase {phase} {getattr(program, f'months_phase{phase}'):g} months (fixed)"
+    follow = getattr(program, f"follow_up_phase{phase}")
+    months = float(getattr(program, f"phase{phase}_months")(n))
+    return (f"phase {phase} recruits {rate:g} patients a month, then {follow:g} months of "
+            f"follow-up ({months:.1f} months at {n:,} patients)")
+
+
+def _durations_text(program: Any) -> str:
+    return (f"{_phase_months_text(program, '2', program.n2)}; then {program.months_gap:g} "
+            f"months to the start of phase 3; {_phase_months_text(program, '3', program.n3)}")
 
 
 def _grid(plan: Any) -> dict[str, Any]:
     g = plan.grid
     program = plan.program
     word = "at most" if program.phase2.endpoint.better == "lower" else "at least"
-    head = ["Phase 2 patients", "Go rule", "P(go)", "P(success | go)", "Program PoS",
-            "False-go rate", "Expected patients", "Note"]
+    months = program.has_durations
+    head = ["Phase 2 patients", "Go when", "P(go)", "P(success | go)", "Program PoS",
+            "False-go rate", "Expected patients", *(["Expected months"] if months else [])]
     own = "as designed" if program.go_threshold is None else f"{program.go_threshold:g}"
     rows = []
     for i, n in enumerate(g.phase2_n.values):
@@ -150,13 +168,31 @@ def _grid(plan: Any) -> dict[str, Any]:
             rule = str(rule)
             mark = int(n) == program.n2 and rule == own
             cell = {q: float(g[q].values[i, j]) for q in
-                    ("p_go", "p_success_given_go", "pos", "false_go", "expected_patients")}
+                    ("p_go", "p_success_given_go", "pos", "false_go", "expected_patients",
+                     "expected_months")}
+            go = "phase 2 succeeds" if rule == "as designed" else \
+                f"estimate {word} {_effect(program.phase2, float(rule))}"
             rows.append({"marked": mark, "cells": [
-                f"{int(n):,}", "as designed" if rule == "as designed" else f"estimate {word} "
-                f"{rule}", _pct(cell["p_go"]), _pct(cell["p_success_given_go"]),
+                f"{int(n):,}" + (" (planned)" if mark else ""), go, _pct(cell["p_go"]),
+                _pct(cell["p_success_given_go"]),
                 _pct(cell["pos"]), _pct(cell["false_go"]),
-                f"{cell['expected_patients']:,.0f}", "as planned" if mark else ""]})
+                f"{cell['expected_patients']:,.0f}",
+                *([f"{cell['expected_months']:.1f}"] if months else [])]})
     return {"head": head, "rows": rows}
+
+
+def _phase3_prior_cells(program: Any, means: Any, sds: Any) -> tuple[list[str], list[str]]:
+    """The discounted phase 3 priors of the re-planning table, in the phase 3 units."""
+    ep3 = program.phase3.endpoint
+    if getattr(ep3, "ratio_scale", False):
+        centre = [wd.ratio(float(ep3.from_benefit(ep3.sign * m))) for m in means]
+        return centre, [f"{float(v):.3g} (log scale)" for v in sds]
+    unit = wd.effect_unit(ep3)
+    tail = f" {unit}" if unit else ""
+    scaled = [float(wd._scaled(ep3, float(ep3.from_benefit(ep3.sign * m)))) for m in means]
+    spread = [float(wd._scaled(ep3, float(v))) for v in sds]
+    return ([t + tail for t in wd.numbers_alike(scaled)],
+            [t + tail for t in wd.numbers_alike(spread)])
 
 
 def _replan(plan: Any, figure: Any) -> dict[str, Any] | None:
@@ -165,19 +201,23 @@ def _replan(plan: Any, figure: Any) -> dict[str, Any] | None:
         return None
     program, r = plan.program, plan.replanned
     ep2 = program.phase2.endpoint
+    n3 = [int(v) for v in t["n3"]]
+    keep = [k for k in range(len(n3)) if k == 0 or n3[k] != n3[k - 1]]
+    estimates = wd.numbers_alike([float(wd._scaled(ep2, float(t["estimate"][k])))
+                                  for k in keep])
+    unit = wd.effect_unit(ep2)
+    means, sds = _phase3_prior_cells(program, [float(t["prior_mean"][k]) for k in keep],
+                                     [float(t["prior_sd"][k]) for k in keep])
     rows = []
-    previous = None
-    for k in range(t["n3"].size):
-        n3 = int(t["n3"][k])
-        if n3 == previous and k != t["n3"].size - 1:
-            continue
-        previous = n3
+    for i, k in enumerate(keep):
+        last = i == len(keep) - 1
+        upper = "" if last else f" to {estimates[i + 1]}"
+        shown = f"{estimates[i]}{upper}" + (f" {unit}" if unit else "") + \
+            (" or more" if last else "")
         rows.append({"marked": False, "cells": [
-            wd.effect_text(ep2, float(t["estimate"][k])),
-            wd.number(float(t["prior_mean"][k])), wd.number(float(t["prior_sd"][k])),
-            f"{n3:,}", "" if bool(t["reached"][k]) else
+            shown, means[i], sds[i], f"{n3[k]:,}", "" if bool(t["reached"][k]) else
             f"target out of reach: capped at {program.replan.max_n:,}"]})
-    table = {"head": ["Phase 2 estimate from", "Phase 3 prior mean", "Phase 3 prior SD",
+    table = {"head": ["Phase 2 estimate", "Phase 3 prior mean", "Phase 3 prior SD",
                       "Phase 3 patients", "Note"], "rows": rows}
     sentences = [
         "After a go, phase 3 is sized from the phase 2 estimate: "
@@ -185,9 +225,49 @@ def _replan(plan: Any, figure: Any) -> dict[str, Any] | None:
         f"Program probability of success {_pct(r.pos)} (fixed size: {_pct(plan.result.pos)});"
         f" mean phase 3 size after a go {r.expected_phase3_n:,.0f}; expected patients "
         f"{r.expected_patients:,.0f} (fixed size: {plan.result.expected_patients:,.0f}).",
-        "An estimate between two rows gets the size of the row above it (the larger size); "
-        "rows with the same size are shown once."]
+        "Each row covers the phase 2 estimates from its value up to the next row's; the "
+        "phase 3 prior shown is the discounted phase 2 result at the row's value, carried to "
+        "the phase 3 effect."]
+    if program.has_durations:
+        if program.recruitment_phase3 is not None:
+            sentences.append(
+                f"Phase 3 lasts as long as its size needs: on average "
+                f"{r.expected_phase3_months:.1f} months after a go (fixed size: "
+                f"{plan.result.expected_phase3_months:.1f}); expected duration of the "
+                f"program {r.expected_months:.1f} months (fixed size: "
+                f"{plan.result.expected_months:.1f}).")
+        else:
+            sentences.append(
+                f"Phase 3 is counted as {program.months_phase3:g} months whatever its "
+                "re-planned size (the program file gives fixed months); give a recruitment "
+                "rate (durations.phase3_recruitment) to let its duration follow its size.")
     return {"sentences": sentences, "table": table, "figure": figure}
+
+
+def _simulated_how(design: Any) -> str:
+    """How one phase's trials are simulated in the check, in plain words."""
+    from ..endpoints.binary import BinaryEndpoint
+    from ..endpoints.continuous import ContinuousEndpoint
+    from ..endpoints.counts import CountEndpoint
+    from ..endpoints.survival import SurvivalEndpoint
+
+    ep = design.endpoint
+    if isinstance(ep, ContinuousEndpoint):
+        return ("a normal estimate" + ("" if ep.analysis == "z" else
+                                       " and a sample SD (t analysis)"))
+    if isinstance(ep, BinaryEndpoint):
+        return ("binomial responder counts per arm, each trial decided by the success region "
+                "of its own test (the same decisions as running the test on each table)")
+    if isinstance(ep, SurvivalEndpoint):
+        return ("patient by patient (entry, event and dropout times, censoring at the "
+                "analysis), decided on the log-rank statistic")
+    if isinstance(ep, CountEndpoint):
+        test = ("the conditional exact test" if ep.test == "exact_conditional" else
+                "the Wald test on the log rate ratio ("
+                + ("Poisson" if ep.overdispersion == 0 else "negative binomial")
+                + " maximum likelihood)")
+        return f"patient-level event counts, decided by {test}"
+    return "its endpoint's data"
 
 
 def _check(plan: Any) -> dict[str, Any] | None:
@@ -198,21 +278,33 @@ def _check(plan: Any) -> dict[str, Any] | None:
         return None
     out = []
     for row in rows:
-        money = row["quantity"] == "expected_patients"
-        show = (lambda v: f"{v:,.1f}") if money else _pct  # noqa: E731
-        se = f"{row['mcse']:,.2f}" if money else f"{100 * row['mcse']:.2f} points"
+        counted = row["quantity"] in ("expected_patients", "expected_months")
+        show = (lambda v: f"{v:,.1f}") if counted else _pct  # noqa: E731
+        se = f"{row['mcse']:,.2f}" if counted else f"{100 * row['mcse']:.2f} points"
         out.append({"marked": not row["passes"], "cells": [
             "re-planned" if row["program"] == "replanned" else "fixed",
             _NAMES[row["quantity"]], show(row["computed"]), show(row["simulated"]), se,
             f"{row['z']:.1f}", "passes" if row["passes"] else "FAILS"]})
+    program = plan.program
     sentence = (f"{plan.programs:,} whole programs were simulated (seed "
                 f"{_seed_text(plan.seed)}): the true effect drawn from the design prior, the "
-                "phase 2 data, the go decision, the phase 3 size and data. Each computed "
-                f"figure must lie within {CHECK_LIMIT:g} Monte Carlo standard errors of the "
-                "simulated one.")
+                "phase 2 data, the go decision, the phase 3 size and data. Phase 2 data: "
+                f"{_simulated_how(program.go_design())}; phase 3 data: "
+                f"{_simulated_how(program.phase3)}. Control rates, control medians and "
+                "outcome SDs stay at their planning values, as in the computation. Each "
+                f"computed figure must lie within {CHECK_LIMIT:g} Monte Carlo standard errors "
+                "of the simulated one.")
     return {"sentence": sentence, "table": {
         "head": ["Phase 3", "Figure", "Computed", "Simulated", "Monte Carlo SE",
                  "Gap (SE)", "Result"], "rows": out}}
+
+
+def _no_check(plan: Any) -> str:
+    if plan.check_gap:
+        return ("The computed figures were not checked by simulated programs: "
+                f"{plan.check_gap}.")
+    return ("No programs were simulated ([check] programs = 0), so the computed figures "
+            "were not checked by simulation.")
 
 
 def _method(plan: Any) -> list[str]:
@@ -229,7 +321,9 @@ def _method(plan: Any) -> list[str]:
         "The drug 'works' when its true effect is better than no effect; the false-go rate is "
         "the chance of a go when it is not.",
         "Expected patients: phase 2 plus phase 3 when there is a go; expected duration: phase "
-        "2, plus the gap and phase 3 when there is a go.",
+        "2, plus the gap and phase 3 when there is a go. A phase given a recruitment rate "
+        "lasts its size divided by that rate plus its follow-up, so its months follow its "
+        "size; a phase given fixed months lasts them whatever its size.",
         "Re-planning (when asked) turns the phase 2 estimate into a phase 3 design prior "
         "with discounts for optimism (Kirby et al. 2012, Pharmaceutical Statistics "
         "11:373-385) and gives phase 3 the smallest size reaching the assurance target "
@@ -338,8 +432,7 @@ def program_memo_html(
         "grid_figure": grid_fig,
         "replan": _replan(plan, replan_fig),
         "check": _check(plan),
-        "no_check": "No programs were simulated, so the computed figures were not checked "
-                    "by simulation (the check needs continuous endpoints in both phases).",
+        "no_check": _no_check(plan),
         "method": _method(plan),
         "provenance": _provenance(plan, date_text),
         "versions": versions,
