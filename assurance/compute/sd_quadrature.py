@@ -476,7 +476,7 @@ def _hermite_nodes(df: np.ndarray, tier: np.ndarray
     else:
         run = int(rising.argmin()) + 1  # a grid repeated (several rows of one grid)?
         if df.size % run == 0 and (df.reshape(-1, run) == df[:run]).all():
-            uniq, inverse = df[:run], np.tile(np.arange(run), df.size // run)
+            uniq, inverse = df[:run], np.arange(df.size) % run
         else:
             uniq, inverse = np.unique(df, return_inverse=True)
     grid = _grid_ratios(uniq)
