@@ -334,3 +334,168 @@ def replace_prior(program, prior):
     from dataclasses import replace
 
     return replace(program, phase3=replace(program.phase3, design_prior=prior))
+
+
+# ------------------------------------------------------------------------------------------
+# the simulated check for binary, time-to-event and count endpoints
+# ------------------------------------------------------------------------------------------
+from assurance.program.development import simulation_gap  # noqa: E402
+
+_SURVIVAL = asr.SurvivalEndpoint(control_median=12.0, accrual_time=24.0, follow_up_time=12.0,
+                                 assumed_hazard_ratio=0.75, dropout_per_year=0.05)
+
+
+def _binary_phase2(test: str = "z", alpha: float = 0.1) -> asr.TrialDesign:
+    return asr.TrialDesign(asr.BinaryEndpoint(control_rate=0.3, test=test),
+                           asr.Normal(0.1, 0.05), rule=asr.Significance(alpha=alpha))
+
+
+def _agree(program, programs, seed, names=("p_go", "pos", "p_go_and_works",
+                                           "expected_patients")):
+    r = program_result(program)
+    sim = simulate_program(program, programs=programs, seed=seed)
+    for name in names:
+        # CHECK_LIMIT (4) MC SE: a false alarm about once in 16,000 per figure
+        assert abs(getattr(r, name) - sim[name]) <= CHECK_LIMIT * sim[name + "_mcse"], (
+            name, getattr(r, name), sim[name], sim[name + "_mcse"])
+    return r, sim
+
+
+@pytest.mark.parametrize("seed", [1, 2])
+def test_binary_phase2_then_time_to_event_phase3_agrees_with_simulated_programs(seed):
+    # phase 2: pooled z test on 40 patients, exact enumeration in the engine, binomial draws
+    # decided by the test's region in the simulation; phase 3: Schoenfeld's approximation
+    # in the engine (events at the planning hazard ratio), patient-level trials with the
+    # log-rank test in the simulation. The prior has a point mass at no effect.
+    prior = asr.Mixture([asr.PointMass(0.0), asr.Normal(math.log(0.7), 0.12)], [0.3, 0.7])
+    program = ProgramDesign(_binary_phase2(), asr.TrialDesign(_SURVIVAL, prior), n2=40,
+                            n3=500, surrogate=Surrogate(0.0, -0.3, 0.0))
+    assert simulation_gap(program) is None
+    r, _ = _agree(program, 20_000, seed)
+    assert 0 < r.pos < r.p_go < 1
+
+
+@pytest.mark.parametrize("seed", [3, 4])
+def test_fisher_phase2_then_count_phase3_agrees_with_simulated_programs(seed):
+    # phase 2 decided by Fisher's exact test; phase 3 negative binomial counts, analysed per
+    # simulated trial by maximum likelihood (dispersion estimated) and the Wald test
+    counts = asr.CountEndpoint(control_rate=0.8, follow_up=1.0, overdispersion=0.4)
+    program = ProgramDesign(_binary_phase2("fisher_exact"),
+                            asr.TrialDesign(counts, asr.Normal(math.log(0.7), 0.15)),
+                            n2=60, n3=400, surrogate=Surrogate(0.0, -0.4, 0.02))
+    _agree(program, 10_000, seed)
+
+
+def test_time_to_event_phase2_then_exact_count_phase3_agrees_with_simulated_programs():
+    # phase 2 by log-rank (events at the true hazard ratio in the engine), phase 3 by the
+    # conditional exact test for two Poisson rates
+    surv2 = asr.SurvivalEndpoint(control_median=6.0, accrual_time=12.0, follow_up_time=6.0,
+                                 assumed_hazard_ratio=0.7, events_follow_true_effect=True)
+    prior = asr.Normal(math.log(0.75), 0.15)
+    counts = asr.CountEndpoint(control_rate=0.5, follow_up=1.0, test="exact_conditional")
+    program = ProgramDesign(asr.TrialDesign(surv2, prior, rule=asr.Significance(alpha=0.1)),
+                            asr.TrialDesign(counts, prior), n2=150, n3=300)
+    _agree(program, 20_000, 5)
+
+
+def test_replanned_time_to_event_phase3_agrees_with_simulated_programs():
+    # phase 3 re-planned from a normal phase 2 estimate: the simulated programs draw each
+    # phase 3 at its own re-planned size, patient by patient
+    p2 = asr.TrialDesign(asr.ContinuousEndpoint(sigma=1.0, analysis="z"), asr.Normal(0.3, 0.1),
+                         rule=asr.Significance(alpha=0.1))
+    program = ProgramDesign(p2, asr.TrialDesign(_SURVIVAL, asr.Normal(math.log(0.75), 0.12)),
+                            n2=100, n3=500, surrogate=Surrogate(0.0, -1.0, 0.0),
+                            replan=Replanning(0.7, 200, 1500, shrinkage=0.9, steps=25),
+                            recruitment_phase3=30.0, follow_up_phase3=12.0)
+    r, _ = _agree(program, 20_000, 6, names=("p_go", "pos", "expected_patients",
+                                             "expected_months"))
+    assert r.replanned and r.expected_phase3_n != program.n3
+
+
+def test_a_simulation_written_here_checks_fisher_then_poisson_counts():
+    # independent of the package's simulators and regions: Fisher's one-sided test from
+    # scipy.stats.fisher_exact on every phase 2 table (20 patients an arm), and the Poisson
+    # Wald test on the arms' event totals (the sufficient statistic: with equal follow-up
+    # the total of an arm is Poisson(n rate T)), written here with numpy
+    n_arm2, n_arm3, rate, alpha2 = 20, 150, 0.8, 0.1
+    go_table = np.zeros((n_arm2 + 1, n_arm2 + 1), dtype=bool)
+    for xt in range(n_arm2 + 1):
+        for xc in range(n_arm2 + 1):
+            p = stats.fisher_exact([[xt, n_arm2 - xt], [xc, n_arm2 - xc]],
+                                   alternative="greater").pvalue
+            go_table[xt, xc] = p <= alpha2
+    counts = asr.CountEndpoint(control_rate=rate, follow_up=1.0)
+    prior = asr.Normal(math.log(0.7), 0.15)
+    program = ProgramDesign(_binary_phase2("fisher_exact", alpha2),
+                            asr.TrialDesign(counts, prior), n2=2 * n_arm2, n3=2 * n_arm3,
+                            surrogate=Surrogate(0.0, -0.4, 0.0))
+    rng = np.random.default_rng(2026)
+    k = 100_000
+    log_rr = rng.normal(math.log(0.7), 0.15, k)
+    p_t = np.clip(0.3 - 0.4 * log_rr, 0.0, 1.0)
+    go = go_table[rng.binomial(n_arm2, p_t), rng.binomial(n_arm2, 0.3, k)]
+    y_t = rng.poisson(n_arm3 * rate * np.exp(log_rr))
+    y_c = rng.poisson(n_arm3 * rate, k)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        z = np.log(y_t / y_c) / np.sqrt(1 / y_t + 1 / y_c)
+    win = go & (y_t > 0) & (y_c > 0) & (z < Z.ppf(0.025))  # lower rates are better
+    r = program_result(program)
+    for value, sims in ((r.p_go, go), (r.pos, win)):
+        mcse = sims.std(ddof=1) / math.sqrt(k)
+        assert abs(value - sims.mean()) <= 4 * mcse
+
+
+def test_simulation_gap_names_what_cannot_be_simulated():
+    # a non-inferiority margin makes the binary region a general one (not a staircase); at
+    # 13,000 patients it has about 42 million tables, beyond what the check looks up
+    margin = asr.TrialDesign(asr.BinaryEndpoint(control_rate=0.3), asr.Normal(0.0, 0.02),
+                             rule=asr.Significance(alpha=0.025, margin=0.02))
+    program = ProgramDesign(_binary_phase2(), margin, n2=40, n3=13_000)
+    gap = simulation_gap(program)
+    assert gap is not None and "phase 3" in gap and "outcome tables" in gap
+    with pytest.raises(AssuranceInputError, match="cannot be simulated"):
+        simulate_program(program, programs=100)
+
+
+# ------------------------------------------------------------------------------------------
+# durations that follow the size
+# ------------------------------------------------------------------------------------------
+def test_expected_months_follow_the_sizes():
+    prior = asr.Normal(3.0, 2.0)
+    program = ProgramDesign(_z_design(10.0, prior, 0.1), _z_design(10.0, prior), n2=100,
+                            n3=400, months_gap=4.0, recruitment_phase2=20.0,
+                            follow_up_phase2=3.0, recruitment_phase3=25.0,
+                            follow_up_phase3=6.0)
+    r = program_result(program)
+    # written out: 100/20 + 3 months of phase 2, then after a go 4 + 400/25 + 6 months
+    assert r.expected_months == pytest.approx(5.0 + 3.0 + r.p_go * (4.0 + 16.0 + 6.0),
+                                              rel=1e-12)
+    assert r.expected_phase3_months == pytest.approx(22.0, rel=1e-12)
+    g = program_grid(program, [50, 100, 200])
+    months = g.expected_months.sel(go_rule="as designed").values
+    go = g.p_go.sel(go_rule="as designed").values
+    assert months == pytest.approx([n / 20 + 3 + p * 26 for n, p in zip([50, 100, 200], go,
+                                                                          strict=True)])
+
+
+def test_replanned_phase3_months_follow_the_replanned_size():
+    fixed = _replan_program(months_gap=2.0, months_phase3=24.0)
+    sized = _replan_program(months_gap=2.0, recruitment_phase3=50.0, follow_up_phase3=6.0)
+    a, b = program_result(fixed), program_result(sized)
+    assert a.expected_phase3_months == pytest.approx(24.0)  # fixed, whatever the size
+    # the mean re-planned size after a go, recruited at 50 a month, plus 6 months
+    assert b.expected_phase3_months == pytest.approx(b.expected_phase3_n / 50 + 6, rel=1e-9)
+    sim = simulate_program(sized, programs=20_000, seed=8)
+    assert abs(b.expected_months - sim["expected_months"]) <= 4 * sim["expected_months_mcse"]
+
+
+@pytest.mark.parametrize("kwargs, name", [
+    ({"recruitment_phase3": 20.0, "months_phase3": 24.0}, "months_phase3"),
+    ({"follow_up_phase2": 3.0}, "follow_up_phase2"),
+    ({"recruitment_phase2": 0.0}, "recruitment_phase2"),
+    ({"recruitment_phase3": 10.0, "follow_up_phase3": -1.0}, "follow_up_phase3")])
+def test_bad_durations_name_the_parameter(kwargs, name):
+    prior = asr.Normal(3.0, 2.0)
+    with pytest.raises(AssuranceInputError, match=f"'{name}' parameter of ProgramDesign"):
+        ProgramDesign(_z_design(10.0, prior), _z_design(10.0, prior), n2=100, n3=400,
+                      **kwargs)

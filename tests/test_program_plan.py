@@ -313,3 +313,120 @@ def test_notebook_view_escapes_the_title(tmp_path):
     view = plan._repr_html_()
     assert "A &lt;b&gt; &amp; C" in view and "<script" not in view
     assert f"{plan.result.pos:.1%}" in view
+
+
+# ------------------------------------------------------------------------------------------
+# durations, and the check for other endpoints, through the program file
+# ------------------------------------------------------------------------------------------
+def test_case_study_months_follow_the_sizes_and_are_checked(case, written):
+    p = case.program
+    # the case study's file: 20 patients a month and 3 months of follow-up in phase 2, 25 a
+    # month and 6 months in phase 3, 4 months between them (written out here)
+    r, q = case.result, case.replanned
+    assert r.expected_months == pytest.approx(
+        120 / 20 + 3 + r.p_go * (4 + 500 / 25 + 6), rel=1e-9)
+    assert q.expected_phase3_months == pytest.approx(q.expected_phase3_n / 25 + 6, rel=1e-9)
+    assert p.recruitment_phase3 == 25.0 and p.months_phase3 == 0.0
+    assert {row["quantity"] for row in case.check_rows()} >= {"expected_months"}
+    page = (written / "memo.html").read_text(encoding="utf-8")
+    dom = _parse(page)
+    assert dom.values["expected_months"] == f"{q.expected_months:.1f} months"
+    text = " ".join(" ".join(dom.text).split())
+    assert "phase 3 recruits 25 patients a month, then 6 months of follow-up" in text
+    assert f"on average {q.expected_phase3_months:.1f} months after a go" in text
+
+
+FIXED_MONTHS = SMALL.replace("[check]", """[durations]
+phase2 = 9.0
+gap = 3.0
+phase3 = 24.0
+[replan]
+target = 0.6
+min_n = 100
+max_n = 2000
+[check]""")
+
+
+def test_fixed_months_still_read_and_the_memo_says_they_stay_fixed(tmp_path):
+    plan = ProgramPlan.from_file(_small(tmp_path, FIXED_MONTHS))
+    p, q = plan.program, plan.replanned
+    assert (p.months_phase2, p.months_gap, p.months_phase3) == (9.0, 3.0, 24.0)
+    assert p.recruitment_phase3 is None
+    assert q.expected_months == pytest.approx(9 + q.p_go * (3 + 24), rel=1e-12)
+    page = plan.memo_html(figures=False, versions="-")
+    text = " ".join(" ".join(_parse(page).text).split())
+    assert "Phase 3 is counted as 24 months whatever its re-planned size" in text
+
+
+@pytest.mark.parametrize("durations, expected", [
+    ("phase3 = 24.0\nphase3_recruitment = 20.0",
+     r"'durations\.phase3' \(fixed months\) and 'durations\.phase3_recruitment'"),
+    ("phase2_follow_up = 3.0", r"'durations\.phase2_follow_up' needs "
+                               r"'durations\.phase2_recruitment'"),
+    ("phase3_recruitment = 0.0", r"'durations\.phase3_recruitment' must be > 0"),
+    ("phase3_recruitmnet = 20.0", r"Did you mean 'phase3_recruitment'\?"),
+])
+def test_duration_problems_name_the_key(tmp_path, durations, expected):
+    path = _small(tmp_path, SMALL.replace("[check]", f"[durations]\n{durations}\n[check]"))
+    with pytest.raises(DesignFileError, match=expected):
+        read_program_file(path)
+
+
+BINARY = """[endpoint]
+type = "binary"
+control_rate = 0.3
+[success]
+alpha = 0.1
+sided = "one"
+[design_prior]
+family = "normal"
+mean = 0.1
+sd = 0.05
+"""
+
+SURVIVAL = """[endpoint]
+type = "time_to_event"
+control_median = 12.0
+accrual_time = 24.0
+follow_up_time = 12.0
+assumed_hazard_ratio = 0.75
+[design_prior]
+family = "log_normal"
+median = 0.72
+log_sd = 0.12
+"""
+
+MIXED = """title = "Binary phase 2, time-to-event phase 3"
+[phase2]
+design = "binary.toml"
+n = 40
+[phase3]
+design = "survival.toml"
+n = 500
+[surrogate]
+slope = -0.3
+[check]
+programs = 20000
+"""
+
+
+def test_a_binary_then_time_to_event_program_file_is_checked_by_simulation(tmp_path):
+    (tmp_path / "binary.toml").write_text(BINARY, encoding="utf-8")
+    (tmp_path / "survival.toml").write_text(SURVIVAL, encoding="utf-8")
+    path = tmp_path / "program.toml"
+    path.write_text(MIXED, encoding="utf-8")
+    plan = ProgramPlan.from_file(path)
+    assert plan.check_gap is None and set(plan.check) == {"fixed"}
+    for row in plan.check_rows():  # CHECK_LIMIT (4) Monte Carlo SE, as in the memo
+        assert abs(row["computed"] - row["simulated"]) <= CHECK_LIMIT * row["mcse"], row
+    page = plan.memo_html(figures=False, versions="-")
+    text = " ".join(" ".join(_parse(page).text).split())
+    assert "decided by the success region of its own test" in text
+    assert "decided on the log-rank statistic" in text
+    assert 'data-key="no-check"' not in page
+
+
+def test_a_program_without_simulated_programs_says_so(tmp_path):
+    plan = ProgramPlan.from_file(_small(tmp_path, SMALL))
+    page = plan.memo_html(figures=False, versions="-")
+    assert "[check] programs = 0" in " ".join(_parse(page).text)
