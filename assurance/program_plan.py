@@ -186,8 +186,12 @@ class ProgramPlan:
             q = self.replanned
             lines.append(f"  phase 3 re-planned from phase 2: program probability of success "
                          f"{q.pos:.3f}, expected patients {q.expected_patients:,.0f} (mean "
-                         f"phase 3 size after a go {q.expected_phase3_n:,.0f})")
+                         f"phase 3 size after a go {q.expected_phase3_n:,.0f})"
+                         + (f", expected months {q.expected_months:.1f}"
+                            if self.program.has_durations else ""))
         passes = self.check_passes()
+        if self.check_gap:
+            lines.append(f"  no check by simulated programs: {self.check_gap}")
         if passes is not None:
             worst = max(row["z"] for row in self.check_rows())
             lines.append(f"  check by {self.programs:,} simulated programs: "

@@ -430,3 +430,22 @@ def test_a_program_without_simulated_programs_says_so(tmp_path):
     plan = ProgramPlan.from_file(_small(tmp_path, SMALL))
     page = plan.memo_html(figures=False, versions="-")
     assert "[check] programs = 0" in " ".join(_parse(page).text)
+
+
+def test_memo_says_which_nuisance_priors_are_held_at_planning_values():
+    import math
+
+    from assurance.program.development import Surrogate
+
+    surv = asr.SurvivalEndpoint(control_median=12.0, accrual_time=24.0, follow_up_time=12.0,
+                                assumed_hazard_ratio=0.75,
+                                median_prior=asr.Gamma(144.0, 12.0))
+    p2 = asr.TrialDesign(asr.BinaryEndpoint(control_rate=0.3, control_prior=(30, 70)),
+                         asr.Normal(0.1, 0.05), rule=asr.Significance(alpha=0.1))
+    p3 = asr.TrialDesign(surv, asr.Normal(math.log(0.75), 0.1))
+    plan = program_plan(ProgramDesign(p2, p3, n2=40, n3=500,
+                                      surrogate=Surrogate(0.0, -0.3)),
+                        programs=0)
+    text = " ".join(" ".join(_parse(plan.memo_html(figures=False, versions="-")).text).split())
+    assert "priors on the control rate (phase 2), the control median (phase 3) are not " \
+           "averaged over" in text

@@ -132,11 +132,31 @@ def _assumed(plan: Any) -> list[tuple[str, str]]:
                                       + wd.prior_text(program.prior, p3.endpoint)),
         ("Phase 2 effect", program.surrogate.describe()),
     ]
+    held = _held_nuisance(program)
+    if held:
+        rows.append(("Held at planning values", held))
     if program.has_durations:
         rows.append(("Durations", _durations_text(program)))
     if program.replan is not None:
         rows.append(("Re-planning", program.replan.describe()))
     return rows
+
+
+def _held_nuisance(program: Any) -> str:
+    """The design files' priors on nuisance parameters, which a program does not average."""
+    found = []
+    for phase, design in (("phase 2", program.phase2), ("phase 3", program.phase3)):
+        ep = design.endpoint
+        for owner, name, words in ((design, "sigma_prior", "the outcome SD"),
+                                   (ep, "control_prior", "the control rate"),
+                                   (ep, "median_prior", "the control median"),
+                                   (ep, "control_rate_prior", "the control event rate")):
+            if getattr(owner, name, None) is not None:
+                found.append(f"{words} ({phase})")
+    if not found:
+        return ""
+    return ("the design files' priors on " + ", ".join(found) + " are not averaged over: the "
+            "program's figures and its simulated check use the planning values")
 
 
 def _phase_months_text(program: Any, phase: str, n: int) -> str:
