@@ -95,7 +95,9 @@ def nct_sf(t: Any, df: Any, nc: Any) -> np.ndarray:
     >>> round(float(nct_sf(stats.t.isf(1e-4, 5), 5.0, 4.6 * 6 ** 0.5)), 6)  # one arm, n = 6
     0.751188
     """
-    t, df, nc = np.broadcast_arrays(*(np.asarray(v, dtype=float) for v in (t, df, nc)))
+    t, df, nc = (np.asarray(v, dtype=float) for v in (t, df, nc))
+    if not t.shape == df.shape == nc.shape:
+        t, df, nc = np.broadcast_arrays(t, df, nc)
     shape = t.shape
     t, df, nc = t.ravel(), df.ravel(), nc.ravel()
     centre, width = _step(t, nc)
@@ -109,7 +111,7 @@ def nct_sf(t: Any, df: Any, nc: Any) -> np.ndarray:
         bad = rest[~np.isfinite(p[rest])]
         if bad.size:
             p[bad] = _nct_sf_by_quadrature(t[bad], df[bad], nc[bad])
-    return np.clip(p, 0.0, 1.0).reshape(shape)
+    return _unit(p).reshape(shape)
 
 
 def _step(t: np.ndarray, nc: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -189,7 +191,7 @@ def exact_success(
         return SuccessProbabilities(success=probs[0], joint=probs[1:])
     crit = rule.critical_t(df) if critical is None else critical
     if isinstance(rule, Significance):
-        return _t_test(prior, rule, se, df, np.broadcast_to(np.asarray(crit, float), se.shape),
+        return _t_test(prior, rule, se, df, _shaped(crit, se.shape),
                        list(cuts))
     kink = rule.kink_ratio(se, crit)
     ratio, weight = sd_ratio_nodes(df, kink=kink)
@@ -273,8 +275,7 @@ def _t_test(prior: Prior, rule: Significance, se: np.ndarray, df: np.ndarray,
             if cuts:
                 # every cut in one evaluation of the orthant probabilities
                 edge = np.array([(cut.value - m) / sd for cut in cuts])[:, None]
-                both = upper_orthant_normal(np.broadcast_to(h, (len(cuts), h.size)), edge,
-                                            np.broadcast_to(sd / tau[col], h.shape))
+                both = upper_orthant_normal(h[None, :], edge, sd / tau[col])
                 for j in range(len(cuts)):
                     joint[j] += w * column_sums(col, weight * both[j])
         else:
@@ -283,8 +284,18 @@ def _t_test(prior: Prior, rule: Significance, se: np.ndarray, df: np.ndarray,
             success += w * values[0]
             for j in range(len(cuts)):
                 joint[j] += w * values[1 + j]
-    return SuccessProbabilities(success=np.clip(success, 0.0, 1.0),
-                                joint=[np.clip(p, 0.0, 1.0) for p in joint])
+    return SuccessProbabilities(success=_unit(success), joint=[_unit(p) for p in joint])
+
+
+def _unit(p: np.ndarray) -> np.ndarray:
+    """``p`` clipped to [0, 1] (NaN kept), without np.clip's Python wrapper."""
+    return np.minimum(np.maximum(p, 0.0), 1.0)
+
+
+def _shaped(values: Any, shape: tuple[int, ...]) -> np.ndarray:
+    """``values`` as floats of ``shape`` (broadcast only where needed)."""
+    values = np.asarray(values, dtype=float)
+    return values if values.shape == shape else np.broadcast_to(values, shape)
 
 
 def _power_over_prior(part: Prior, low: float, se: np.ndarray, df: np.ndarray,

@@ -367,7 +367,9 @@ def ratio_rule(df: np.ndarray, centres: np.ndarray | None = None,
         centres = np.empty((0, n))
         widths = np.empty((0, n))
     centres = np.asarray(centres, dtype=float).reshape(-1, n)
-    widths = np.broadcast_to(np.asarray(widths, dtype=float), centres.shape)
+    widths = np.asarray(widths, dtype=float)
+    if widths.shape != centres.shape:
+        widths = np.broadcast_to(widths, centres.shape)
     if floor is None:
         has_floor = np.zeros(n, dtype=bool)
         floor = np.full(n, np.nan)
@@ -437,7 +439,9 @@ def hermite_part(df: np.ndarray, centres: np.ndarray, widths: np.ndarray
     """
     df = np.atleast_1d(np.asarray(df, dtype=float))
     centres = np.asarray(centres, dtype=float).reshape(-1, df.size)
-    widths = np.broadcast_to(np.asarray(widths, dtype=float), centres.shape)
+    widths = np.asarray(widths, dtype=float)
+    if widths.shape != centres.shape:
+        widths = np.broadcast_to(widths, centres.shape)
     col, ratio, weight, tier = _hermite_flat(df.tobytes(), centres.tobytes(),
                                              widths.tobytes())
     return col, ratio, weight, tier > 0

@@ -199,7 +199,9 @@ class _ContinuousCalculator(SuccessCalculator):
         rule = self.rule
         low = rule.null_value
         se = self.endpoint.sigma * np.asarray(geo["se_factor"], dtype=float)
-        crit = np.broadcast_to(np.asarray(geo["critical"], dtype=float), se.shape)
+        crit = np.asarray(geo["critical"], dtype=float)
+        if crit.shape != se.shape:
+            crit = np.broadcast_to(crit, se.shape)
         df = np.asarray(geo["df"], dtype=float)
         out = np.full((effects.size, se.size), float(rule.one_sided_alpha))
         away = effects != low
