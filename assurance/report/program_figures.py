@@ -109,7 +109,7 @@ def plot_program_grid(plan: Any) -> Figure:
     handles, labels = axes[0].get_legend_handles_labels()
     fig.legend(handles, labels, loc="outside lower center", ncols=min(3, len(labels)),
                fontsize=8.5, frameon=False)
-    fig.suptitle(_title(plan.title, f"by phase 2 size (phase 3 {plan.program.n3:,} patients)"),
+    fig.suptitle(_title(plan.title, f"by phase 2 size (phase 3 with {plan.program.n3:,} patients)"),
                  fontsize=10.5)
     return fig
 
