@@ -28,6 +28,8 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 from scipy import integrate, signal, special, stats
 
 from assurance.compute import interval_width as engine
@@ -309,3 +311,47 @@ def test_modified_worst_outcome_size_matches_exact():
     if ans.n_total != n_exact:
         for n in range(min(ans.n_total, n_exact), max(ans.n_total, n_exact)):
             assert abs(exact_q(n) - length) <= 4 * ans.achieved_mcse + 1e-12
+
+
+# ------------------------------------------------------------------------------------------
+# invariants and the posterior-draw fallback
+# ------------------------------------------------------------------------------------------
+shape = st.floats(1.0, 400.0)
+
+
+@settings(max_examples=25, deadline=None)
+@given(shape, shape, shape, shape, st.sampled_from(engine.EFFECT_SCALES),
+       st.floats(0.5, 0.99))
+def test_shortest_is_shortest(a_t, b_t, a_c, b_c, scale, cov):
+    # the highest-density interval is never longer than the equal-tailed one, and the best
+    # window of its length holds its coverage (common practice: definitions)
+    args = [np.array([v]) for v in (a_t, b_t, a_c, b_c)]
+    hd, ok_hd = engine.effect_interval_widths(*args, scale=scale, coverage=cov,
+                                              interval="highest_density")
+    et, ok_et = engine.effect_interval_widths(*args, scale=scale, coverage=cov,
+                                              interval="equal_tailed")
+    assert ok_hd[0] and ok_et[0]
+    assert hd[0] <= et[0] * (1 + 1e-9)
+    best, ok = engine.effect_window_coverage(*args, scale=scale, length=float(hd[0]),
+                                             interval="highest_density")
+    assert ok[0] and best[0] == pytest.approx(cov, abs=1e-7)
+
+
+def test_infinite_peaks_take_posterior_draws():
+    # Jeffreys priors beta(1/2, 1/2): with no responders in an arm the posterior density is
+    # infinite at 0 on the difference scale (the quadrature declines: done False), finite
+    # on the logit scale; the simulation then draws for those data sets only and every
+    # figure stays finite
+    a = np.array([0.5, 0.5, 10.5])
+    b = np.array([40.5, 40.5, 30.5])
+    _, ok = engine.effect_interval_widths(a, b, a[::-1], b[::-1], scale="difference",
+                                          coverage=0.95, interval="highest_density")
+    assert ok.tolist() == [False, False, False]     # each pair has an arm with a = 1/2
+    _, ok = engine.effect_interval_widths(a, b, a[::-1], b[::-1], scale="log_odds_ratio",
+                                          coverage=0.95, interval="highest_density")
+    assert ok.all()
+    model = TwoProportions(BetaPrior(0.5, 0.5), BetaPrior(0.5, 0.5), design_control=0.02,
+                           design_treatment=0.04)
+    ds = interval_width_curve(model, [80], length=0.1, draws=300, posterior_draws=1000,
+                              seed=3)
+    assert all(np.isfinite(ds[v].values).all() for v in ds.data_vars)

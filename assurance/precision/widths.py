@@ -510,8 +510,9 @@ class OneProportion(PrecisionModel):
     -----
     Exact: every outcome ``x = 0..n`` with its beta-binomial probability and the
     Beta(a + x, b + n - x) posterior's highest-density (shortest) or equal-tailed interval
-    (Joseph, Wolfson & du Berger 1995). Simulation: posterior draws per simulated data set
-    and ``arviz.hdi``; kept mainly as a check on the simulation engines.
+    (Joseph, Wolfson & du Berger 1995). Simulation: data sets drawn from the design prior,
+    each posterior's interval computed exactly (no posterior draws, whose noise would bias
+    the width quantiles); kept mainly as a check on the simulation engines.
 
     Examples
     --------
@@ -654,10 +655,14 @@ class TwoProportions(TwoArmSizing, PrecisionModel):
     Notes
     -----
     By simulation: rates from the design priors, binomial counts, the conjugate
-    Beta posterior of each arm, ``posterior_draws`` draws of the effect per data set and its
-    interval (``arviz.hdi`` for highest density, sample quantiles for equal tails). The
-    analysis prior's own interval (for checking a target length) is computed from 200 000
-    prior draws.
+    Beta posterior of each arm, and the effect's interval computed from its distribution
+    function, one integral over the narrower arm's posterior
+    (:func:`assurance.compute.interval_width.effect_interval_widths`): no posterior draws,
+    so the width quantiles (and MWOC) are unbiased. Data sets whose posterior has an
+    infinite peak on the scale (a prior shape below 1 with no responders, or all) take
+    ``posterior_draws`` draws of the effect instead (``arviz.hdi`` with a finite-draw
+    correction; sample quantiles for equal tails). The analysis prior's own interval (for
+    checking a target length) is computed from 200 000 prior draws.
 
     Examples
     --------
