@@ -339,19 +339,46 @@ def test_shortest_is_shortest(a_t, b_t, a_c, b_c, scale, cov):
 
 def test_infinite_peaks_take_posterior_draws():
     # Jeffreys priors beta(1/2, 1/2): with no responders in an arm the posterior density is
-    # infinite at 0 on the difference scale (the quadrature declines: done False), finite
-    # on the logit scale; the simulation then draws for those data sets only and every
-    # figure stays finite
+    # infinite at 0 on the difference scale; with one such arm the quadrature handles it
+    # (checked against quad below), with both the effect's density is not known to be
+    # unimodal and the highest-density interval declines (done False) while the
+    # equal-tailed one does not; the simulation then draws for those data sets only and
+    # every figure stays finite
     a = np.array([0.5, 0.5, 10.5])
     b = np.array([40.5, 40.5, 30.5])
     _, ok = engine.effect_interval_widths(a, b, a[::-1], b[::-1], scale="difference",
                                           coverage=0.95, interval="highest_density")
-    assert ok.tolist() == [False, False, False]     # each pair has an arm with a = 1/2
-    _, ok = engine.effect_interval_widths(a, b, a[::-1], b[::-1], scale="log_odds_ratio",
-                                          coverage=0.95, interval="highest_density")
+    assert ok.tolist() == [True, False, True]
+    _, ok = engine.effect_interval_widths(a, b, a[::-1], b[::-1], scale="difference",
+                                          coverage=0.95, interval="equal_tailed")
     assert ok.all()
     model = TwoProportions(BetaPrior(0.5, 0.5), BetaPrior(0.5, 0.5), design_control=0.02,
                            design_treatment=0.04)
     ds = interval_width_curve(model, [80], length=0.1, draws=300, posterior_draws=1000,
                               seed=3)
     assert all(np.isfinite(ds[v].values).all() for v in ds.data_vars)
+
+
+@pytest.mark.parametrize("arms, scale", [
+    ((0.5, 40.5, 10.5, 30.5), "difference"),      # no responders, Jeffreys prior
+    ((0.5, 200.5, 3.5, 198.5), "difference"),
+    ((0.3, 20.3, 39.5, 1.5), "difference"),       # peaks at both ends of D's range
+    ((40.5, 0.5, 30.5, 10.5), "log_risk_ratio"),  # all responders: b = 1/2
+])
+@pytest.mark.filterwarnings("ignore::scipy.integrate.IntegrationWarning")
+def test_infinite_peaks_against_quadrature(arms, scale):
+    # tolerances: 1e-8 in probability (both sides integrate to ~1e-11); the density ratio at
+    # the ends to 1e-5 (where Newton cannot finish, a golden-section search over the tail
+    # split locates the ends to ~1e-7 in density, a second-order error in the width; quad
+    # reports round-off on the density next to an infinite peak)
+    args = [np.array([v]) for v in arms]
+    _, ok, lo, hi = engine._effect_intervals(*args, scale, 0.95, "highest_density")
+    assert ok[0]
+    F_lo, f_lo = _ref_cdf_pdf(lo[0], *arms, scale)
+    F_hi, f_hi = _ref_cdf_pdf(hi[0], *arms, scale)
+    assert F_hi - F_lo == pytest.approx(0.95, abs=1e-8)
+    assert f_hi / f_lo == pytest.approx(1.0, abs=1e-5)
+    _, ok, lo, hi = engine._effect_intervals(*args, scale, 0.95, "equal_tailed")
+    assert ok[0]
+    assert _ref_cdf_pdf(lo[0], *arms, scale)[0] == pytest.approx(0.025, abs=1e-8)
+    assert _ref_cdf_pdf(hi[0], *arms, scale)[0] == pytest.approx(0.975, abs=1e-8)

@@ -2036,9 +2036,12 @@ def _ng_rate_quantiles(qs: np.ndarray, ni: int, an, de, c: float, delta: float
 # (outside it the inner distribution function is 0 or 1, whose outer mass is added), by a
 # Gauss-Legendre rule. Kinks of a density at the end of its support (a shape of 1, e.g.
 # no responders under a uniform prior) then sit at the ends of the integration range, where
-# they cost no accuracy. Densities with an infinite peak (a shape below 1 on the scale) are
-# not integrated this way: such data sets are reported as not done (the caller falls back
-# to posterior draws).
+# they cost no accuracy; an infinite peak there (a shape below 1 on the scale, e.g. no
+# responders under a beta(1/2, 1/2) prior) is absorbed by moving the nodes with a power
+# map at that end (see _EffectDistribution.evaluate). The highest-density interval needs
+# a unimodal density, known when one arm is log-concave on the scale; data sets whose two
+# arms both have an infinite peak are reported as not done (the caller falls back to
+# posterior draws).
 EFFECT_SCALES: tuple[str, ...] = ("difference", "log_odds_ratio", "log_risk_ratio")
 #: probability cut from each end of an arm's support
 _EFFECT_CUT = 1e-15
@@ -2080,10 +2083,9 @@ class _ScaledBeta:
             self.var = special.polygamma(1, a) - special.polygamma(1, a + b)
             k3 = special.polygamma(2, a) - special.polygamma(2, a + b)
         self.k3 = k3
-        #: no infinite peak: every shape on the scale >= 1 (or 0 for the logit)
-        self.smooth = ((self.A >= 0) & (self.B >= 0))[:, 0]
-        #: log-concave on the scale (the difference of two is unimodal if one is)
-        self.log_concave = self.smooth
+        #: log-concave on the scale (the difference of two is unimodal if one is): no
+        #: exponent of the density below 0
+        self.log_concave = ((self.A >= 0) & (self.B >= 0))[:, 0]
 
     def _from_p(self, p: np.ndarray, q: np.ndarray) -> np.ndarray:
         if self.scale == "difference":
@@ -2148,8 +2150,8 @@ class _EffectDistribution:
         self.k3 = t.k3 - c.k3
         self.low = t.low - c.high
         self.high = t.high - c.low
-        #: rows the quadrature serves (no infinite peak) and whose density is unimodal
-        self.ok = t.smooth & c.smooth
+        #: rows the quadrature serves (all) and whose density is known to be unimodal
+        self.ok = np.ones(self.mean.size, dtype=bool)
         self.unimodal = self.ok & (t.log_concave | c.log_concave)
         # outer arm: the narrower; s = +1 when the outer arm is control (inner argument
         # d + Y_c, F_D = E[F_t]), -1 when it is treatment (inner argument Y_t - d,
@@ -2191,8 +2193,30 @@ class _EffectDistribution:
         below = np.where(left <= lo_o, 0.0, np.where(left >= hi_o, 1.0, below_left[:, 0]))
         del below_right
         span = right - left
-        y = left[:, None] + span[:, None] * _EFF_X
-        logw = np.log(np.maximum(span, 1e-300))[:, None] + np.log(_EFF_W)
+        # a density with an infinite peak (a shape below 1 on the scale) at an end of the
+        # range, the outer arm's own or the inner arm's edge mapped there: nodes
+        # u = I_t(k_lo, k_hi) (regularised incomplete beta of the Gauss-Legendre nodes t)
+        # with k = 1 / (shape) at that end, so that (y - end)^(shape - 1) dy is regular
+        # in t; k = 1 (u = t) elsewhere
+        k_lo = np.ones(rows.size)
+        k_hi = np.ones(rows.size)
+        for arm, at_lo, at_hi in ((o, left <= lo_o, right >= hi_o),
+                                  (i, left > lo_o, right < hi_o)):
+            A, B = arm.A[rows, 0], arm.B[rows, 0]
+            k_lo = np.where(at_lo & (A < 0), np.maximum(k_lo, 1.0 / (1.0 + A)), k_lo)
+            k_hi = np.where(at_hi & (B < 0), np.maximum(k_hi, 1.0 / (1.0 + B)), k_hi)
+        mapped = (k_lo != 1.0) | (k_hi != 1.0)
+        u = np.broadcast_to(_EFF_X, (rows.size, _EFF_X.size))
+        logdu = np.zeros((rows.size, 1))
+        if mapped.any():
+            kl, kh = k_lo[mapped, None], k_hi[mapped, None]
+            u = u.copy()
+            u[mapped] = special.betainc(kl, kh, _EFF_X)
+            logdu = np.zeros(u.shape)
+            logdu[mapped] = ((kl - 1) * np.log(_EFF_X) + (kh - 1) * np.log1p(-_EFF_X)
+                             - special.betaln(kl, kh))
+        y = left[:, None] + span[:, None] * u
+        logw = np.log(np.maximum(span, 1e-300))[:, None] + np.log(_EFF_W) + logdu
         _, _, logf_o, _ = o.pieces(y, rows)
         lower_i, upper_i, logf_i, dlog_i = i.pieces(y + sd_[:, None], rows)
         w = np.exp(logw + logf_o)
@@ -2316,7 +2340,8 @@ def _effect_shortest(dist: _EffectDistribution, coverage: float, rows: np.ndarra
         f_hi = np.where(moved, new[3], f_hi)
         g_lo = np.where(moved, new[4], g_lo)
         g_hi = np.where(moved, new[5], g_hi)
-        fin = (step_size <= 1e-10 * sd[act]) & (np.abs(r1) <= 1e-12) & accepted
+        fin = ((step_size <= 1e-10 * sd[act]) & (np.abs(r1) <= 1e-12) & (np.abs(r2) <= 1e-8)
+               & accepted)
         stuck = ~accepted
         done[act[fin]] = True
         keep = ~(fin | stuck)
@@ -2452,10 +2477,9 @@ def effect_interval_widths(a_t: np.ndarray, b_t: np.ndarray, a_c: np.ndarray,
     Returns
     -------
     widths, done
-        ``done`` is False where the quadrature does not apply (a beta density with an
-        infinite peak on the scale, a shape below 1) or, for the highest-density interval,
-        where the effect's density is not known to be unimodal (neither arm log-concave on
-        the scale); the width there is NaN.
+        ``done`` is False, and the width NaN, for the highest-density interval where the
+        effect's density is not known to be unimodal (neither arm log-concave on the
+        scale: both posteriors with an infinite peak, a shape below 1 on the scale).
 
     Examples
     --------

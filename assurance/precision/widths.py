@@ -658,11 +658,11 @@ class TwoProportions(TwoArmSizing, PrecisionModel):
     Beta posterior of each arm, and the effect's interval computed from its distribution
     function, one integral over the narrower arm's posterior
     (:func:`assurance.compute.interval_width.effect_interval_widths`): no posterior draws,
-    so the width quantiles (and MWOC) are unbiased. Data sets whose posterior has an
-    infinite peak on the scale (a prior shape below 1 with no responders, or all) take
-    ``posterior_draws`` draws of the effect instead (``arviz.hdi`` with a finite-draw
-    correction; sample quantiles for equal tails). The analysis prior's own interval (for
-    checking a target length) is computed from 200 000 prior draws.
+    so the width quantiles (and MWOC) are unbiased. For the highest-density interval, data
+    sets whose two posteriors both have an infinite peak on the scale (prior shapes below
+    1 with no responders, or all, in both arms) take ``posterior_draws`` draws of the
+    effect instead (``arviz.hdi`` with a finite-draw correction). The analysis prior's own
+    interval (for checking a target length) is computed from 200 000 prior draws.
 
     Examples
     --------
@@ -810,8 +810,9 @@ class TwoProportions(TwoArmSizing, PrecisionModel):
         pc, pt = self.control_prior, self.treatment_prior
         width, cover = self._exact_per_data_set(x_t, x_c, int(n_t), int(n_c), coverage,
                                                 length, interval)
-        # data sets the quadrature does not serve (a posterior with an infinite peak on the
-        # scale: a prior shape below 1 and no responders, or all) take posterior draws
+        # data sets whose effect density is not known to be unimodal (both posteriors with an
+        # infinite peak on the scale: prior shapes below 1 and no responders, or all, in
+        # both arms) take posterior draws for the highest-density interval
         rest = np.flatnonzero(~np.isfinite(width) | (
             ~np.isfinite(cover) if cover is not None else False))
         if rest.size:
