@@ -11,12 +11,10 @@ from __future__ import annotations
 import csv
 import dataclasses
 import hashlib
-import re
-import shutil
-import subprocess
 from pathlib import Path
 
 import pytest
+from _browser import NEEDS_BROWSER, check_reads_well, open_memo
 from test_memo import _read, _shown
 
 from assurance.errors import AssuranceInputError, DesignFileError
@@ -223,59 +221,11 @@ def test_memo_leads_with_the_numbers_and_records_provenance(written):
 # ------------------------------------------------------------------------------------------
 # the memo in a browser
 # ------------------------------------------------------------------------------------------
-BROWSER = shutil.which("chromium") or shutil.which("chromium-browser")
-A4_WIDTH_PT = 595.3  # 210 mm / 25.4 * 72 (ISO 216)
-A4_WIDTH_PX = 794  # 210 mm / 25.4 * 96
-PROBE = """<script>
-window.addEventListener("load", function () {
-  var images = document.images, loaded = 0;
-  for (var k = 0; k < images.length; k++) {
-    if (images[k].complete && images[k].naturalWidth > 0) loaded++;
-  }
-  document.body.setAttribute("data-images", loaded + "/" + images.length);
-  document.body.setAttribute("data-overflow",
-    String(document.documentElement.scrollWidth - document.documentElement.clientWidth));
-});
-</script>"""
-
-
-def _chromium(*args: str) -> subprocess.CompletedProcess:
-    return subprocess.run(
-        [BROWSER, "--headless", "--no-sandbox", "--disable-gpu", "--no-first-run",
-         "--disable-extensions", *args], capture_output=True, text=True, timeout=60)
-
-
-@pytest.mark.skipif(BROWSER is None,
-                    reason="headless Chromium (Debian package chromium) is not installed")
+@NEEDS_BROWSER
 def test_memo_in_a_browser(case_plan, tmp_path):
     page = interim_memo_html(case_plan, date="2026-01-05", versions="test")
-    memo = tmp_path / "memo.html"
-    memo.write_text(page, encoding="utf-8")
-    probe = tmp_path / "probe.html"
-    probe.write_text(page.replace("</body>", PROBE + "</body>"), encoding="utf-8")
-    shown = _chromium("--enable-logging=stderr", "--v=0", "--virtual-time-budget=5000",
-                      f"--window-size={A4_WIDTH_PX},1123", "--dump-dom", probe.as_uri())
-    assert shown.returncode == 0, shown.stderr[-2000:]
-    dom = _read(shown.stdout)
+    opened = open_memo(page, tmp_path)
+    check_reads_well(opened, images=2)
+    dom = _read(opened.dom)
     assert dom.values["predictive"] == _shown(case_plan.look.predictive["analysis"])
     assert dom.values["decision"] == case_plan.look.decision
-    images = re.search(r'data-images="(\d+)/(\d+)"', shown.stdout)
-    assert images, "the probe did not run"
-    assert int(images.group(2)) == page.count("<img ") == 2
-    assert images.group(1) == images.group(2)
-    overflow = re.search(r'data-overflow="(-?\d+)"', shown.stdout)
-    assert int(overflow.group(1)) <= 0  # nothing wider than an A4-wide window
-    pdf = tmp_path / "memo.pdf"
-    printed = _chromium("--enable-logging=stderr", "--v=0", "--no-pdf-header-footer",
-                        f"--print-to-pdf={pdf}", memo.as_uri())
-    assert printed.returncode == 0, printed.stderr[-2000:]
-    for run in (shown, printed):
-        for line in run.stderr.splitlines():
-            if "CONSOLE" in line or "console" in line:
-                assert "Uncaught" not in line and "rror" not in line, line
-    data = pdf.read_bytes()
-    boxes = re.findall(rb"/MediaBox\s*\[\s*([-\d.]+)\s+([-\d.]+)\s+([-\d.]+)\s+([-\d.]+)\s*\]",
-                       data)
-    assert data.startswith(b"%PDF") and boxes
-    for x0, _, x1, _ in boxes:
-        assert float(x1) - float(x0) == pytest.approx(A4_WIDTH_PT, abs=1.0)

@@ -16,13 +16,12 @@ import itertools
 import math
 import os
 import re
-import shutil
-import subprocess
 from dataclasses import replace
 from pathlib import Path
 
 import numpy as np
 import pytest
+from _browser import NEEDS_BROWSER, check_reads_well, open_memo
 from scipy import stats
 
 import assurance as asr
@@ -35,10 +34,7 @@ from assurance.report.portfolio_memo import portfolio_memo_html
 
 ROOT = Path(__file__).resolve().parents[1]
 CASE = ROOT / "case_studies" / "programs" / "portfolio" / "portfolio.toml"
-BROWSER = shutil.which("chromium") or shutil.which("chromium-browser")
 #: A4 width in PostScript points (ISO 216: 210 mm / 25.4 * 72) and in CSS px at 96 dpi
-A4_WIDTH_PT = 595.3
-A4_WIDTH_PX = 794
 
 DESIGN = """title = "Quick trial"
 [endpoint]
@@ -341,53 +337,13 @@ def test_plan_portfolio_checks_its_inputs():
 # ------------------------------------------------------------------------------------------
 # the memo in a real browser
 # ------------------------------------------------------------------------------------------
-PROBE = """<script>
-window.addEventListener("load", function () {
-  var images = document.images, loaded = 0;
-  for (var k = 0; k < images.length; k++) {
-    if (images[k].complete && images[k].naturalWidth > 0) loaded++;
-  }
-  document.body.setAttribute("data-images", loaded + "/" + images.length);
-  document.body.setAttribute("data-overflow",
-    String(document.documentElement.scrollWidth - document.documentElement.clientWidth));
-});
-</script>"""
-
-
-def _chromium(*args: str) -> subprocess.CompletedProcess:
-    return subprocess.run(
-        [BROWSER, "--headless", "--no-sandbox", "--disable-gpu", "--no-first-run",
-         "--disable-extensions", *args], capture_output=True, text=True, timeout=90)
-
-
-@pytest.mark.skipif(BROWSER is None,
-                    reason="headless Chromium (Debian package chromium) is not installed")
+@NEEDS_BROWSER
 def test_the_memo_in_a_browser(written, tmp_path):
     plan, out = written
-    page = (out / "memo.html").read_text(encoding="utf-8")
-    probe = tmp_path / "probe.html"
-    probe.write_text(page.replace("</body>", PROBE + "</body>"), encoding="utf-8")
-    shown = _chromium("--enable-logging=stderr", "--v=0", "--virtual-time-budget=5000",
-                      f"--window-size={A4_WIDTH_PX},1123", "--dump-dom", probe.as_uri())
-    assert shown.returncode == 0, shown.stderr[-2000:]
-    dom = shown.stdout
+    opened = open_memo((out / "memo.html").read_text(encoding="utf-8"), tmp_path)
+    check_reads_well(opened, images=3)
     # the decision box shows the plan's numbers
-    expected = re.search(r'data-key="expected">([^<]+)<', dom).group(1)
+    expected = re.search(r'data-key="expected">([^<]+)<', opened.dom).group(1)
     assert expected == f"{plan.expected_successes:.1f} of 5"
-    shown_pos = re.findall(r'data-key="pos">([^<]+)<', dom)
+    shown_pos = re.findall(r'data-key="pos">([^<]+)<', opened.dom)
     assert shown_pos == [f"{100 * t.pos:.1f}%" for t in plan.trials]
-    images = re.search(r'data-images="(\d+)/(\d+)"', dom)
-    assert images and images.group(1) == images.group(2) == "3"
-    assert int(re.search(r'data-overflow="(-?\d+)"', dom).group(1)) <= 0
-    for line in shown.stderr.splitlines():
-        if "CONSOLE" in line or "console" in line:
-            assert "Uncaught" not in line and "rror" not in line, line
-    pdf = tmp_path / "memo.pdf"
-    printed = _chromium("--no-pdf-header-footer", f"--print-to-pdf={pdf}",
-                        (out / "memo.html").as_uri())
-    assert printed.returncode == 0, printed.stderr[-2000:]
-    boxes = re.findall(rb"/MediaBox\s*\[\s*([-\d.]+)\s+([-\d.]+)\s+([-\d.]+)\s+([-\d.]+)\s*\]",
-                       pdf.read_bytes())
-    assert boxes
-    for x0, _, x1, _ in boxes:
-        assert float(x1) - float(x0) == pytest.approx(A4_WIDTH_PT, abs=1.0)

@@ -12,12 +12,11 @@ import csv
 import dataclasses
 import hashlib
 import re
-import shutil
-import subprocess
 from html.parser import HTMLParser
 from pathlib import Path
 
 import pytest
+from _browser import NEEDS_BROWSER, check_reads_well, open_memo
 
 import assurance as asr
 from assurance.design_file.program_file import read_program_file
@@ -252,58 +251,13 @@ def test_made_by_is_set_by_replace_and_shown(tmp_path):
 # ------------------------------------------------------------------------------------------
 # in a browser
 # ------------------------------------------------------------------------------------------
-BROWSER = shutil.which("chromium") or shutil.which("chromium-browser")
-#: A4 width in CSS pixels at 96 per inch (210 mm / 25.4 * 96 = 793.7) and in points (595.3)
-A4_WIDTH_PX, A4_WIDTH_PT = 794, 595.3
-PROBE = """<script>
-window.addEventListener("load", function () {
-  var images = document.images, loaded = 0;
-  for (var k = 0; k < images.length; k++) {
-    if (images[k].complete && images[k].naturalWidth > 0) loaded++;
-  }
-  document.body.setAttribute("data-images", loaded + "/" + images.length);
-  document.body.setAttribute("data-overflow",
-    String(document.documentElement.scrollWidth - document.documentElement.clientWidth));
-});
-</script>"""
-
-
-def _chromium(*args: str) -> subprocess.CompletedProcess:
-    return subprocess.run(
-        [BROWSER, "--headless", "--no-sandbox", "--disable-gpu", "--no-first-run",
-         "--disable-extensions", *args], capture_output=True, text=True, timeout=60)
-
-
-@pytest.mark.skipif(BROWSER is None,
-                    reason="headless Chromium (Debian package chromium) is not installed")
+@NEEDS_BROWSER
 def test_memo_in_a_browser(case, written, tmp_path):
     page = (written / "memo.html").read_text(encoding="utf-8")
-    probe = tmp_path / "probe.html"
-    probe.write_text(page.replace("</body>", PROBE + "</body>"), encoding="utf-8")
-    shown = _chromium("--enable-logging=stderr", "--v=0", "--virtual-time-budget=5000",
-                      f"--window-size={A4_WIDTH_PX},1123", "--dump-dom", probe.as_uri())
-    assert shown.returncode == 0, shown.stderr[-2000:]
-    dom = _parse(shown.stdout)
+    opened = open_memo(page, tmp_path)
+    check_reads_well(opened, images=3)
+    dom = _parse(opened.dom)
     assert dom.values["pos"] == _pct(case.replanned.pos)
-    images = re.search(r'data-images="(\d+)/(\d+)"', shown.stdout)
-    assert images, "the probe did not run"
-    assert int(images.group(2)) == page.count("<img ") == 3
-    assert images.group(1) == images.group(2)  # every image loaded
-    overflow = re.search(r'data-overflow="(-?\d+)"', shown.stdout)
-    assert int(overflow.group(1)) <= 0  # nothing wider than an A4-wide window
-    pdf = tmp_path / "memo.pdf"
-    printed = _chromium("--enable-logging=stderr", "--v=0", "--no-pdf-header-footer",
-                        f"--print-to-pdf={pdf}", (written / "memo.html").as_uri())
-    assert printed.returncode == 0, printed.stderr[-2000:]
-    for run in (shown, printed):
-        for line in run.stderr.splitlines():
-            if "CONSOLE" in line or "console" in line:
-                assert "Uncaught" not in line and "rror" not in line, line
-    boxes = re.findall(rb"/MediaBox\s*\[\s*([-\d.]+)\s+([-\d.]+)\s+([-\d.]+)\s+([-\d.]+)\s*\]",
-                       pdf.read_bytes())
-    assert boxes
-    for x0, _, x1, _ in boxes:
-        assert float(x1) - float(x0) == pytest.approx(A4_WIDTH_PT, abs=1.0)
 
 
 def test_notebook_view_escapes_the_title(tmp_path):
