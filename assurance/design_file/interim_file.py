@@ -42,8 +42,8 @@ from pathlib import Path
 from typing import Any, Literal
 
 from ..errors import AssuranceInputError, DesignFileError
-from ._problems import Problems, did_you_mean, printable, shown_key
-from .reader import MAX_FILE_BYTES, DesignFile, _toml, read_design_file
+from ._problems import Problems, did_you_mean, shown_key
+from .reader import DesignFile, read_companion_file, read_design_file
 from .schema import Table, Title, key
 
 __all__ = ["InterimFile", "InterimFileModel", "read_interim_file", "INTERIM_FORMS"]
@@ -256,20 +256,7 @@ def read_interim_file(path: str | Path) -> InterimFile:
     """
     from pydantic import ValidationError
 
-    path = Path(path)
-    shown = printable(str(path))
-    if not path.is_file():
-        what = "is a folder, not a file" if path.is_dir() else "was not found"
-        raise DesignFileError(f"The interim file '{shown}' {what}. Check the path.")
-    if path.stat().st_size > MAX_FILE_BYTES:
-        raise DesignFileError(f"{shown} is {path.stat().st_size:,} bytes; an interim file is "
-                              f"a short text file (at most {MAX_FILE_BYTES:,} bytes).")
-    try:
-        content = path.read_bytes()
-    except OSError as exc:
-        raise DesignFileError(f"The interim file '{shown}' cannot be read: "
-                              f"{exc.strerror}.") from None
-    raw = _toml(content, shown)
+    path, content, raw = read_companion_file(path, "interim", "read_interim_file")
     problems = Problems(str(path))
     try:
         model = InterimFileModel.model_validate(raw)

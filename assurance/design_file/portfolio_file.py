@@ -65,10 +65,10 @@ from typing import Annotated, Any
 
 from pydantic import Field
 
-from ..errors import AssuranceInputError, DesignFileError
+from ..errors import DesignFileError
 from ..program.portfolio import DEFAULT_FLAT_SHARE, MAX_YEARS, ValueInputs
 from ._problems import Problems, did_you_mean, printable, shown_key
-from .reader import MAX_FILE_BYTES, _toml, read_design_file
+from .reader import read_companion_file, read_design_file
 from .schema import Table, Title, Unit, key
 
 __all__ = ["PortfolioFile", "PortfolioTrialSpec", "PortfolioFileModel", "PortfolioTrialTable",
@@ -180,24 +180,8 @@ def read_portfolio_file(path: str | Path) -> PortfolioFile:
         key, value and what is allowed), or a design file it names is missing or invalid
         (named with its portfolio entry).
     """
-    if not isinstance(path, str | Path):
-        raise AssuranceInputError(
-            "The 'path' parameter of read_portfolio_file must be a file path (str or "
-            f"pathlib.Path). Got {path!r} instead.")
-    path = Path(path)
-    shown = printable(str(path))
-    if not path.is_file():
-        what = "is a folder, not a file" if path.is_dir() else "was not found"
-        raise DesignFileError(f"The portfolio file '{shown}' {what}. Check the path.")
-    if path.stat().st_size > MAX_FILE_BYTES:
-        raise DesignFileError(f"{shown} is {path.stat().st_size:,} bytes; a portfolio file is "
-                              f"a short text file (at most {MAX_FILE_BYTES:,} bytes).")
-    try:
-        content = path.read_bytes()
-    except OSError as exc:
-        raise DesignFileError(f"The portfolio file '{shown}' cannot be read: "
-                              f"{exc.strerror}.") from None
-    return parse_portfolio(_toml(content, shown), source=path, content=content)
+    path, content, raw = read_companion_file(path, "portfolio", "read_portfolio_file")
+    return parse_portfolio(raw, source=path, content=content)
 
 
 def parse_portfolio(raw: dict[str, Any], *, source: str | Path,

@@ -55,7 +55,7 @@ from typing import Any
 
 from pydantic import BaseModel, ConfigDict, Field, ValidationError
 
-from ..errors import AssuranceInputError, DesignFileError
+from ..errors import AssuranceInputError
 from ._problems import Problems, did_you_mean, printable
 
 __all__ = ["ProgramFile", "read_program_file", "PROGRAM_TABLES"]
@@ -311,26 +311,10 @@ def read_program_file(path: str | os.PathLike[str]) -> ProgramFile:
     >>> spec.program.n2, spec.program.n3, spec.program.title
     (100, 400, 'Demo program')
     """
-    from .reader import _toml
+    from .reader import read_companion_file
 
-    if not isinstance(path, str | os.PathLike):
-        raise AssuranceInputError(
-            "The 'path' parameter of read_program_file must be a file path (str or "
-            f"pathlib.Path). Got {path!r:.80} instead.")
-    path = Path(path)
-    shown = printable(str(path))
-    if not path.is_file():
-        what = "is a folder, not a file" if path.is_dir() else "was not found"
-        raise DesignFileError(f"The program file '{shown}' {what}. Check the path.")
-    if path.stat().st_size > MAX_PROGRAM_BYTES:
-        raise DesignFileError(f"{shown} is {path.stat().st_size:,} bytes; a program file is a "
-                              f"short text file (at most {MAX_PROGRAM_BYTES:,} bytes).")
-    try:
-        content = path.read_bytes()
-    except OSError as exc:
-        raise DesignFileError(f"The program file '{shown}' cannot be read: "
-                              f"{exc.strerror}.") from None
-    raw = _toml(content, shown)
+    path, content, raw = read_companion_file(path, "program", "read_program_file",
+                                             limit=MAX_PROGRAM_BYTES)
     problems = Problems(str(path))
     try:
         model = ProgramFileModel.model_validate(raw)

@@ -57,6 +57,7 @@ check`` is therefore not rejected by ``assurance plan`` for its inputs.
 from __future__ import annotations
 
 import math
+import os
 import tomllib
 from collections.abc import Callable
 from dataclasses import dataclass, field, replace
@@ -189,6 +190,35 @@ def read_design_file(path: str | Path) -> DesignFile:
         raise DesignFileError(f"The design file '{shown}' cannot be read: "
                               f"{exc.strerror}.") from None
     return replace(parse_design(_toml(content, shown), source=str(path)), content=content)
+
+
+def read_companion_file(path: Any, kind: str, owner: str, *,
+                        limit: int = MAX_FILE_BYTES) -> tuple[Path, bytes, dict[str, Any]]:
+    """Read a file that names design files (a program, interim or portfolio file): its
+    path, exact bytes and parsed TOML, with the same messages for every kind of file.
+
+    ``kind`` names the file for a reader ("program", "interim", "portfolio"); ``owner`` is
+    the public function, named when ``path`` is not a path at all.
+    """
+    if not isinstance(path, str | os.PathLike):
+        raise AssuranceInputError(
+            f"The 'path' parameter of {owner} must be a file path (str or pathlib.Path). "
+            f"Got {path!r:.80} instead.")
+    path = Path(path)
+    shown = printable(str(path))
+    if not path.is_file():
+        what = "is a folder, not a file" if path.is_dir() else "was not found"
+        raise DesignFileError(f"The {kind} file '{shown}' {what}. Check the path.")
+    size = path.stat().st_size
+    if size > limit:
+        raise DesignFileError(f"{shown} is {size:,} bytes; a {kind} file is a short text "
+                              f"file (at most {limit:,} bytes).")
+    try:
+        content = path.read_bytes()
+    except OSError as exc:
+        raise DesignFileError(f"The {kind} file '{shown}' cannot be read: "
+                              f"{exc.strerror}.") from None
+    return path, content, _toml(content, shown)
 
 
 def _toml(content: bytes, shown: str) -> dict[str, Any]:
