@@ -11,6 +11,7 @@ from __future__ import annotations
 import csv
 import dataclasses
 import hashlib
+import shutil
 from pathlib import Path
 
 import pytest
@@ -229,3 +230,17 @@ def test_memo_in_a_browser(case_plan, tmp_path):
     dom = _read(opened.dom)
     assert dom.values["predictive"] == _shown(case_plan.look.predictive["analysis"])
     assert dom.values["decision"] == case_plan.look.decision
+
+
+@NEEDS_BROWSER
+def test_a_deep_file_path_wraps_instead_of_widening_the_page(tmp_path):
+    # the provenance names the files by path; one deep in folders (as in a fresh clone under
+    # a temporary folder) must wrap inside its cell, not push the page past A4 width
+    deep = tmp_path.joinpath("a_rather_long_folder_name_for_testing_wrapping",
+                             "another_deep_folder_level_with_no_spaces", "interim_look")
+    shutil.copytree(Path(__file__).resolve().parents[1] / "case_studies" / "programs"
+                    / "interim_look", deep)
+    plan = InterimPlan.from_file(deep / "interim.toml")
+    opened = open_memo(interim_memo_html(plan, date="2026-01-05", versions="test"),
+                       tmp_path)
+    assert opened.overflow <= 0
