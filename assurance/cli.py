@@ -45,14 +45,7 @@ def _parser() -> argparse.ArgumentParser:
                           "force), design_as_given.toml (a copy of the design file), "
                           "figures/ and memo.html into the output folder.")
     plan.add_argument("design", help="TOML design file")
-    plan.add_argument("-o", "--out", help="output folder (default: <design name>-plan in the "
-                      "current folder)")
-    plan.add_argument("--overwrite", action="store_true",
-                      help="replace the output folder if it already exists (only a folder "
-                      "assurance wrote that holds nothing else)")
-    plan.add_argument("--svg", action="store_true",
-                      help="also write each figure as SVG (PNG only by default)")
-    plan.add_argument("-q", "--quiet", action="store_true", help="print nothing but errors")
+    _output_options(plan, "<design name>-plan")
     plan.add_argument("--scheduler", metavar="ADDRESS",
                       help="analysis models: spread the simulated trials over the Dask cluster "
                            "at this scheduler address (overrides [simulation] scheduler)")
@@ -64,14 +57,7 @@ def _parser() -> argparse.ArgumentParser:
         other = sub.add_parser(name, help=what, description=f"{what[0].upper()}{what[1:]}; "
                                f"write {written} and memo.html into the output folder.")
         other.add_argument("file", help=f"TOML {name} file")
-        other.add_argument("-o", "--out", help=f"output folder (default: <file name>-{name} in "
-                           "the current folder)")
-        other.add_argument("--overwrite", action="store_true",
-                           help="replace the output folder if it already exists (only a folder "
-                           "assurance wrote that holds nothing else)")
-        other.add_argument("--svg", action="store_true",
-                           help="also write each figure as SVG (PNG only by default)")
-        other.add_argument("-q", "--quiet", action="store_true", help="print nothing but errors")
+        _output_options(other, f"<file name>-{name}")
         if name == "portfolio":
             other.add_argument("--scheduler", metavar="ADDRESS",
                                help="spread the portfolio's simulated trials over the Dask "
@@ -99,6 +85,18 @@ _OTHER_KINDS = {
 _OTHER_CLASSES = {"program": ("program_plan", "ProgramPlan"),
                   "interim": ("interim_plan", "InterimPlan"),
                   "portfolio": ("portfolio_plan", "PortfolioPlan")}
+
+
+def _output_options(command: argparse.ArgumentParser, default: str) -> None:
+    """The options every command that writes an output folder takes."""
+    command.add_argument("-o", "--out", help=f"output folder (default: {default} in the "
+                         "current folder)")
+    command.add_argument("--overwrite", action="store_true",
+                         help="replace the output folder if it already exists (only a folder "
+                         "assurance wrote that holds nothing else)")
+    command.add_argument("--svg", action="store_true",
+                         help="also write each figure as SVG (PNG only by default)")
+    command.add_argument("-q", "--quiet", action="store_true", help="print nothing but errors")
 
 
 class _Stopped(BaseException):
