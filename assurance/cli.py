@@ -195,6 +195,9 @@ def main(argv: list[str] | None = None) -> int:
             return 0
         if args.command == "check":
             return _check(args)
+        from ._dask_on_demand import answer_without_importing_dask
+
+        answer_without_importing_dask()  # about 0.5 s less per command; answers unchanged
         with _Signals():
             if args.command in _OTHER_KINDS:
                 return _other(args)

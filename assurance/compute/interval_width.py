@@ -27,7 +27,7 @@ from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
-from scipy import special, stats
+from scipy import special
 
 __all__ = [
     "tanh_sinh_rule",
@@ -1752,7 +1752,7 @@ def _t_factor(n: np.ndarray, an: NormalGammaParams, coverage: float
     a_n = an.shape + n / 2
     k_n = an.k + n
     df = 2 * a_n
-    tq = stats.t.ppf(0.5 + coverage / 2, df)
+    tq = special.stdtrit(df, 0.5 + coverage / 2)
     return df, a_n * k_n, 2 * tq / np.sqrt(a_n * k_n)
 
 

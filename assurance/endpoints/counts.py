@@ -22,7 +22,7 @@ from dataclasses import KW_ONLY, dataclass
 from typing import Any, Literal
 
 import numpy as np
-from scipy import integrate, special, stats
+from scipy import special
 
 from .._validation import check_choice, check_int, check_real
 from ..errors import AssuranceInputError
@@ -520,6 +520,8 @@ class _CountCalculator(SuccessCalculator):
             lowest = self.rule.lowest_passable_effect()
             edges = [*lows, float(part.cdf(lowest)) if math.isfinite(lowest) else 0.0]
             breaks = sorted({float(x) for x in edges if 0.0 < x < 1.0})
+            from scipy import integrate  # loaded on first use: slow to import
+
             value, _err = integrate.quad_vec(integrand, 0.0, 1.0, epsabs=1e-10, epsrel=1e-9,
                                              limit=2000, points=breaks or None)
             totals += weight * np.asarray(value).reshape(totals.shape)
@@ -659,7 +661,7 @@ def sample_size_for_rate_ratio(
     log_rr = math.log(ratio)
     var1, var0 = ep._variances(np.array(log_rr), ep.control_rate, np.array(r), np.array(1.0),
                                null_log_rr=0.0)
-    z_a, z_b = stats.norm.isf(alpha), stats.norm.ppf(power)
+    z_a, z_b = -special.ndtri(alpha), special.ndtri(power)
     exact = float((z_a * np.sqrt(var0) + z_b * np.sqrt(var1)) ** 2 / log_rr**2)
     n_c = math.ceil(exact - 1e-9)
     return CountSampleSize(n_control=n_c, n_treatment=math.ceil(r * n_c - 1e-9),

@@ -45,7 +45,7 @@ from dataclasses import asdict, dataclass
 from typing import Any, ClassVar, Literal
 
 import numpy as np
-from scipy import special, stats
+from scipy import special
 
 from .._validation import check_choice, check_int, check_real, check_real_array
 from ..compute import interval_width as engine
@@ -467,14 +467,14 @@ class NormalMeanUnknownSD(PrecisionModel):
         if not p.proper:
             return math.inf
         scale = math.sqrt(p.rate / (p.shape * p.n0))
-        return float(2 * stats.t.ppf(0.5 + coverage / 2, 2 * p.shape) * scale)
+        return float(2 * special.stdtrit(2 * p.shape, 0.5 + coverage / 2) * scale)
 
     def frequentist_width(self, n: np.ndarray, coverage: float) -> np.ndarray:
         sd = self.assumed_sd if self.assumed_sd is not None else self.design.typical_sd()
         n = np.asarray(n, dtype=float)
         out = np.full(n.shape, np.inf)  # one observation: no t interval
         ok = n >= 2
-        out[ok] = 2 * stats.t.ppf(0.5 + coverage / 2, n[ok] - 1) * sd / np.sqrt(n[ok])
+        out[ok] = 2 * special.stdtrit(n[ok] - 1, 0.5 + coverage / 2) * sd / np.sqrt(n[ok])
         return out
 
     def exact(self, n, *, coverage, length, interval, likely_share, widths=True):
