@@ -23,6 +23,8 @@ AssuranceInputError naming a parameter.
 
 from __future__ import annotations
 
+import warnings
+
 import numpy as np
 import pytest
 from hypothesis import HealthCheck, assume, given, settings
@@ -265,6 +267,20 @@ def test_any_numbers_give_finite_probabilities_or_a_named_error(a, b, c, analysi
         return
     for name in ("assurance", "power", "type_one_error", "prob_success_and_benefit", "ceiling",
                  "prob_benefit"):
+        v = ds[name].values
+        assert np.all(np.isfinite(v)) and np.all((v >= 0) & (v <= 1)), name
+
+
+@pytest.mark.parametrize(("sigma", "sd", "mean"),
+                         [(1e10, 1e-100, -1e100), (1e100, 1e-100, -1e-300)])
+def test_extreme_scales_raise_no_numpy_warning(sigma, sd, mean):
+    # a prior 1e110 times narrower than the data's SD once overflowed a square with a
+    # RuntimeWarning (the user saw it); the answer must come without one, finite
+    design = TrialDesign(ContinuousEndpoint(sigma, analysis="t"), Normal(mean, sd))
+    with warnings.catch_warnings():
+        warnings.simplefilter("error", RuntimeWarning)
+        ds = evaluate(design, [3, 1000])
+    for name in ("assurance", "power", "prob_success_and_benefit"):
         v = ds[name].values
         assert np.all(np.isfinite(v)) and np.all((v >= 0) & (v <= 1)), name
 

@@ -264,10 +264,13 @@ def _t_test(prior: Prior, rule: Significance, se: np.ndarray, df: np.ndarray,
             # bivariate normal orthant
             centres = [(m - low) / slope]
             widths = [tau / slope]
-            for cut in cuts:
-                bend = m + (cut.value - m) * (tau / sd) ** 2
-                centres.append((bend - low) / slope)
-                widths.append((se / slope) * (tau / sd))
+            with np.errstate(over="ignore"):  # a prior far narrower than the data's SE:
+                stretch = tau / sd             # the bend moves out to +-inf, as it should
+                for cut in cuts:
+                    bend = (m + (cut.value - m) * stretch**2 if cut.value != m
+                            else np.full_like(tau, m))
+                    centres.append((bend - low) / slope)
+                    widths.append((se / slope) * stretch)
             col, ratio, weight = ratio_rule(df, np.array(centres), np.array(widths),
                                             floor=floor)
             h = (threshold(col, ratio) - m) / tau[col]
