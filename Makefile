@@ -15,9 +15,10 @@ $(STAMP): pyproject.toml
 demo: $(STAMP)
 	$(BIN)/assurance plan case_studies/knee_pain/design.toml --out demo-output/knee_pain --overwrite
 
-## test: the whole test suite (unit, reference values, properties, command line, doctests)
+## test: the whole test suite (unit, reference values, properties, command line, doctests),
+## one worker process per core, each test module kept in one worker (its shared plans made once)
 test: $(STAMP)
-	$(BIN)/python -m pytest -q
+	$(BIN)/python -m pytest -q -n auto --dist loadscope
 
 ## lint: ruff over the package, tests and benchmarks
 lint: $(STAMP)
