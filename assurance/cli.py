@@ -273,11 +273,14 @@ def _plan(args: argparse.Namespace) -> int:
     progress = _Progress(args.quiet)
 
     from .report.output_folder import claim_output_folder, write_outputs
+    from .report.plan_figures import figure_workers_started_early
 
-    # checked and held before anything is computed; released (and cleaned) on any way out
+    # checked and held before anything is computed; released (and cleaned) on any way out.
+    # The figure workers load matplotlib meanwhile, on the other cores.
     claim = None
     try:
-        with claim_output_folder(out, overwrite=args.overwrite, keep=[design_path]) as claim:
+        with claim_output_folder(out, overwrite=args.overwrite, keep=[design_path]) as claim, \
+                figure_workers_started_early():
             progress(f"reading {design_path}")
 
             from .design_file import read_design_file

@@ -9,6 +9,8 @@ and over another label must be reported.
 
 from __future__ import annotations
 
+import multiprocessing
+import os
 from pathlib import Path
 
 import numpy as np
@@ -242,3 +244,26 @@ def test_figures_drawn_in_worker_processes_are_the_same_bytes():
     for name in serial:
         assert serial[name]["png"] == forked[name]["png"], name
         assert serial[name]["svg"] == forked[name]["svg"], name
+
+
+@pytest.mark.skipif("fork" not in multiprocessing.get_all_start_methods()
+                    or len(os.sched_getaffinity(0)) < 2,
+                    reason="early figure workers need fork and two cores")
+def test_figures_sent_to_early_workers_are_the_same_bytes():
+    # the command line starts the workers before computing and sends them the pickled plan
+    from assurance.report import plan_figures as pf
+
+    design = asr.TrialDesign(asr.ContinuousEndpoint(sigma=10.0, analysis="z", unit="mmHg"),
+                             asr.Normal(4.0, 2.0), title="Invented: figures sent")
+    p = asr.plan(design, targets={"assurance": 0.6}, sizes=[50, 100, 200],
+                 sensitivity=asr.SensitivitySettings(map_centres=5, map_spreads=4))
+    serial = pf.render_figures(p, ("png",), workers=1)
+    with pf.figure_workers_started_early():
+        pool = pf._EARLY_POOL
+        assert pool is not None
+        sent = pf.render_figures(p, ("png",))
+        again = pf.render_figures(p, ("png",))  # a second plan on the same workers
+    assert pf._EARLY_POOL is None
+    assert list(sent) == list(serial) == list(again)
+    for name in serial:
+        assert sent[name]["png"] == serial[name]["png"] == again[name]["png"], name
