@@ -312,12 +312,12 @@ def _family_text(prior: Any, endpoint: Any, vague: bool = False) -> str:
 def _beta_rate(arm: Any) -> str:
     if getattr(arm, "fixed", False):
         return f"fixed at {percent(arm.value, 1)}"
-    from scipy import stats
+    from scipy import special  # the Beta quantiles (scipy.stats is slow to import)
 
-    dist = stats.beta(arm.a, arm.b)
-    lo, hi = dist.ppf([0.025, 0.975])
+    lo, hi = special.betaincinv(arm.a, arm.b, [0.025, 0.975])
     return (f"about {number(arm.a)} responders in {number(arm.a + arm.b)} patients: mean "
-            f"{percent(dist.mean(), 1)}, 95% between {percent(lo, 1)} and {percent(hi, 1)}")
+            f"{percent(arm.a / (arm.a + arm.b), 1)}, 95% between {percent(lo, 1)} and "
+            f"{percent(hi, 1)}")
 
 
 def _beta_rates_text(prior: Any, endpoint: Any) -> str:
