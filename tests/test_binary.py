@@ -1078,3 +1078,25 @@ def test_mixture_of_beta_rates_is_the_weighted_average():
     # identical beta priors on both arms: P(p_t > p_c) = 1/2 by symmetry
     assert design.prob_benefit() == pytest.approx(0.3 * 0.5 + 0.7 * b.prob_above(0.0),
                                                   abs=1e-10)
+
+
+def test_beta_nodes_kept_for_reuse_are_the_nodes_made_afresh():
+    # the nodes of a Beta prior are kept (bounded) and shared: a kept answer must equal a
+    # fresh one bit for bit, be read-only, and the store must not grow past its bound
+    from assurance.compute import binary_exact as be
+
+    arm = be.RateArm.beta(3.5, 9.25)
+    lo, hi = np.array([0.0, 0.2, 0.45]), np.array([0.2, 0.45, 1.0])
+    first = arm.nodes(lo, hi, 16)
+    be._NODES_MADE.clear()
+    fresh = arm.nodes(lo, hi, 16)
+    again = arm.nodes(lo, hi, 16)
+    for a, b, c in zip(first, fresh, again, strict=True):
+        np.testing.assert_array_equal(a, b)
+        assert c is b and not c.flags.writeable
+    # integrating p over the prior on [0, 1] gives its mean (the rule is exact enough)
+    p, w = arm.nodes(np.array([0.0]), np.array([1.0]), 32)
+    assert float(np.sum(p * w)) == pytest.approx(3.5 / 12.75, abs=1e-6)
+    for k in range(be._NODES_KEPT + 10):
+        arm.nodes(np.array([0.0]), np.array([0.5 + k * 1e-3]), 8)
+    assert len(be._NODES_MADE) <= be._NODES_KEPT

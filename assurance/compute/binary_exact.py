@@ -293,6 +293,14 @@ def posterior_below(a: float, b: float, n: int, t) -> np.ndarray:
     return np.clip(out, 0.0, 1.0, out=out).T
 
 
+#: Nodes of Beta priors already made (the inverse incomplete beta function is the costly
+#: part of a binary plan, and a plan, its solver and its sensitivity analysis ask for the
+#: same prior's nodes over the same intervals many times): key -> (rates, weights), the
+#: oldest dropped first beyond _NODES_KEPT entries (at most about 1 MB each).
+_NODES_MADE: dict[tuple, tuple[np.ndarray, np.ndarray]] = {}
+_NODES_KEPT = 48
+
+
 @dataclass(frozen=True)
 class RateArm:
     """What is assumed about one arm's rate: a Beta(a, b) prior, or a fixed value.
@@ -356,11 +364,21 @@ class RateArm:
         if self.fixed:
             inside = (lo <= self.value) & (self.value <= hi)
             return np.full(lo.shape + (1,), self.value), inside[..., None].astype(float)
+        key = (float(self.a), float(self.b), k, lo.shape, lo.tobytes(), hi.tobytes())
+        found = _NODES_MADE.get(key)
+        if found is not None:
+            return found
         t, w = smoothed_rule(k)
         v0, v1 = self.cdf(lo), self.cdf(hi)
         width = np.maximum(v1 - v0, 0.0)[..., None]
         v = v0[..., None] + width * t
-        return special.betaincinv(self.a, self.b, v), width * w
+        made = (special.betaincinv(self.a, self.b, v), width * w)
+        for array in made:
+            array.setflags(write=False)  # shared between callers through the cache
+        if len(_NODES_MADE) >= _NODES_KEPT:
+            del _NODES_MADE[next(iter(_NODES_MADE))]  # the oldest
+        _NODES_MADE[key] = made
+        return made
 
     def split_nodes(self, breaks: list[float], k: int) -> tuple[np.ndarray, np.ndarray]:
         """1-D nodes over the whole prior, a Gauss-Legendre block between each breakpoint."""
