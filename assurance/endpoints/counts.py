@@ -17,6 +17,7 @@ and the simulation check :func:`simulate_rejection_rate`.
 
 from __future__ import annotations
 
+import functools
 import math
 from dataclasses import KW_ONLY, dataclass
 from typing import Any, Literal
@@ -43,11 +44,62 @@ VarianceAt = Literal["true_effect", "planning_ratio"]
 TestVariance = Literal["observed_rates", "pooled_null"]
 CountTest = Literal["wald", "exact_conditional"]
 
-#: Gauss-Legendre rule on [-1, 1] for the average over follow-up times cut by dropout.
-_GL_X, _GL_W = np.polynomial.legendre.leggauss(64)
+#: Gauss-Legendre rule on [-1, 1] for each panel of the average over follow-up times cut by
+#: dropout (see _information_per_patient).
+_GL_X, _GL_W = np.polynomial.legendre.leggauss(16)
 #: log rate ratios are clipped here before rates are formed (no overflow in far prior tails)
 _LOG_RR_LIMIT = 50.0
 _OWNER = "CountEndpoint"
+
+
+def _information_per_patient(lam: np.ndarray, k: float, d: float, t: float) -> np.ndarray:
+    """``E[lambda T / (1 + k lambda T)]`` for ``T = min(Exp(d), t)``, elementwise in ``lam``.
+
+    ``T`` has density ``d exp(-d s)`` on ``[0, t)`` and an atom ``exp(-d t)`` at ``t``. The
+    integral over ``[0, t)`` is a composite 16-point Gauss-Legendre rule. The integrand has a
+    pole at ``s = -1 / (k lambda)``: panels ``[0, c], [c, 4c], [4c, 16c], ...`` with
+    ``c = 1 / (k lambda)`` (cut at ``t``) keep every panel at least its own length away from
+    it, so each converges like ``3^(-2 x 16)``; panels are also no longer than ``8 / d``, for
+    the exponential weight. Where ``k lambda t <= 30`` and ``d t <= 8`` (most plans) one
+    panel of 16, 32 or 64 points shared by every element does. Relative error about 1e-15
+    from ``k lambda t`` = 1e-6 to 1e6 and ``d t`` up to 100 (tests/test_counts.py checks it
+    against ``scipy.integrate.quad``).
+    """
+    lam = np.asarray(lam, dtype=float)
+    shape = lam.shape
+    flat = lam.reshape(-1)
+    klt = k * flat * t
+    top = float(np.max(klt)) if flat.size else 0.0
+    mu_full = flat * t
+    atom = math.exp(-d * t) * mu_full / (1.0 + k * mu_full)
+    if top <= 30.0 and d * t <= 8.0:
+        # one panel, nodes shared by every element: 16, 32 or 64 points as the pole nears
+        # (Bernstein ellipse through it: rho^(-2N) below 1e-19 at each bound)
+        x, w = _gl_rule(16 if top <= 1.0 else 32 if top <= 8.0 else 64)
+        s = 0.5 * t * (x + 1.0)
+        weight = 0.5 * t * w * d * np.exp(-d * s)
+        mu = flat[:, None] * s
+        return (np.sum(weight * mu / (1.0 + k * mu), axis=-1) + atom).reshape(shape)
+    edges = [np.zeros_like(flat), np.full_like(flat, t)]
+    if top > 1.0:
+        with np.errstate(divide="ignore"):
+            c = np.where(klt > 0, 1.0 / (k * flat), np.inf)
+        for j in range(int(math.ceil(math.log(top) / math.log(4.0))) + 1):
+            edges.append(np.minimum(c * 4.0**j, t))
+    pieces = max(1, int(math.ceil(d * t / 8.0)))
+    edges += [np.full_like(flat, t * i / pieces) for i in range(1, pieces)]
+    e = np.sort(np.stack(edges, axis=-1), axis=-1)
+    lo, width = e[:, :-1, None], np.diff(e, axis=-1)[:, :, None]
+    s = lo + 0.5 * width * (_GL_X + 1.0)
+    mu = flat[:, None, None] * s
+    info = np.sum(0.5 * width * _GL_W * d * np.exp(-d * s) * mu / (1.0 + k * mu),
+                  axis=(-2, -1))
+    return (info + atom).reshape(shape)
+
+
+@functools.lru_cache(maxsize=4)
+def _gl_rule(points: int) -> tuple[np.ndarray, np.ndarray]:
+    return np.polynomial.legendre.leggauss(points)
 
 
 @dataclass(frozen=True)
@@ -287,14 +339,7 @@ class CountEndpoint(Endpoint):
             return 1.0 / (lam * self.mean_exposure)
         if d == 0:
             return 1.0 / (lam * t) + k
-        # T = min(Exp(d), t): density d exp(-d s) on [0, t) and an atom exp(-d t) at t
-        s = 0.5 * t * (_GL_X + 1.0)
-        w = 0.5 * t * _GL_W * d * np.exp(-d * s)
-        mu = lam[..., None] * s
-        info = np.sum(w * mu / (1.0 + k * mu), axis=-1)
-        mu_full = lam * t
-        info = info + math.exp(-d * t) * mu_full / (1.0 + k * mu_full)
-        return 1.0 / info
+        return 1.0 / _information_per_patient(lam, k, d, t)
 
     def log_ratio_variance(self, rate_ratio: Any, n_treatment: Any, n_control: Any = 0, *,
                            control_rate: Any = None) -> np.ndarray:
