@@ -272,20 +272,19 @@ def _plan(args: argparse.Namespace) -> int:
     out = Path(args.out) if args.out is not None else Path(f"{design_path.stem}-plan")
     progress = _Progress(args.quiet)
 
+    from .design_file import read_design_file
+    from .planner import Plan
     from .report.output_folder import claim_output_folder, write_outputs
     from .report.plan_figures import figure_workers_started_early
 
     # checked and held before anything is computed; released (and cleaned) on any way out.
-    # The figure workers load matplotlib meanwhile, on the other cores.
+    # The figure workers (forked once the modules above are loaded) load matplotlib
+    # meanwhile, on the other cores.
     claim = None
     try:
         with claim_output_folder(out, overwrite=args.overwrite, keep=[design_path]) as claim, \
                 figure_workers_started_early():
             progress(f"reading {design_path}")
-
-            from .design_file import read_design_file
-            from .planner import Plan
-
             spec = read_design_file(design_path)
             if spec.model is None and (args.scheduler is not None or args.workers is not None):
                 raise AssuranceInputError(
