@@ -111,9 +111,11 @@ _TOKENS = itertools.count()
 
 
 def _prepare_early_worker() -> None:
-    """An early worker: leave signals to the parent, load matplotlib and the figure code."""
+    """An early worker: leave signals to the parent, load matplotlib and the figure code.
+
+    The modules a plan needs come with the fork (the command line loads them first) or
+    load when the first plan is unpickled."""
     _quiet_worker()
-    from .. import planner  # noqa: F401 - what unpickling a plan needs, loaded now
     from .._dask_on_demand import answer_without_importing_dask
 
     answer_without_importing_dask()
