@@ -267,3 +267,22 @@ def test_figures_sent_to_early_workers_are_the_same_bytes():
     assert list(sent) == list(serial) == list(again)
     for name in serial:
         assert sent[name]["png"] == serial[name]["png"] == again[name]["png"], name
+
+
+@pytest.mark.skipif("fork" not in multiprocessing.get_all_start_methods()
+                    or len(os.sched_getaffinity(0)) < 2,
+                    reason="early figure workers need fork and two cores")
+def test_a_plan_the_early_workers_cannot_take_is_drawn_as_before(monkeypatch):
+    # a worker failing on the sent plan must not fail the command: the figures are drawn
+    # as without early workers, with the same bytes
+    from assurance.report import plan_figures as pf
+
+    design = asr.TrialDesign(asr.ContinuousEndpoint(sigma=10.0, analysis="z"),
+                             asr.Normal(4.0, 2.0), title="Invented: a refused plan")
+    p = asr.plan(design, sizes=[50, 100, 200], sensitivity=False)
+    serial = pf.render_figures(p, ("png",), workers=1)
+    with pf.figure_workers_started_early():
+        # the plan reaches the workers as bytes they cannot unpickle
+        monkeypatch.setattr(pf.pickle, "dumps", lambda *a, **k: b"not a pickle")
+        drawn = pf.render_figures(p, ("png",))
+    assert {k: v["png"] for k, v in drawn.items()} == {k: v["png"] for k, v in serial.items()}

@@ -214,9 +214,13 @@ def render_figures(plan: Any, formats: Sequence[str], *, workers: int | None = N
             payload = None
         if payload is not None:
             token = (os.getpid(), next(_TOKENS))
-            drawn = _EARLY_POOL.map(_draw_sent, [(token, payload, job) for job in jobs],
-                                    chunksize=1)
-            return dict(zip(names, drawn, strict=True))
+            try:
+                drawn = _EARLY_POOL.map(_draw_sent, [(token, payload, job) for job in jobs],
+                                        chunksize=1)
+            except Exception:  # noqa: BLE001 - e.g. a worker that cannot unpickle the plan:
+                pass           # draw as without early workers (an error there is the user's)
+            else:
+                return dict(zip(names, drawn, strict=True))
     count = _workers(len(jobs)) if workers is None else max(1, min(workers, len(jobs)))
     _PLAN, _MAKERS = plan, makers
     try:
