@@ -903,13 +903,13 @@ def _information(t: np.ndarray, rate: np.ndarray, k: np.ndarray) -> np.ndarray:
     return np.sum(mu / (1.0 + k[:, None] * mu), axis=1)
 
 
-def _fit_dispersion(data, log_rates, k_low: float = 1e-8, k_high: float = 1e4,
-                    steps: int = 32):
+def _fit_dispersion(data, log_rates, k_low: float = 1e-8, k_high: float = 1e4):
     """Maximum likelihood of (log rates, k) for each simulated trial, vectorised.
 
     The profile score of k (the k-derivative of the log likelihood at the rates that
-    maximise it for that k) is bisected on log k; the rates follow by Newton steps on the
-    log rate, which are exact in one step when every patient has the same follow-up.
+    maximise it for that k) is solved on log k (bisection, then the Illinois method); the
+    rates follow by Newton steps on the log rate, which are exact in one step when every
+    patient has the same follow-up.
     Per patient the log likelihood is ``sum_{j<y} log(1 + j k) + y log mu
     - (y + 1/k) log(1 + k mu)`` up to a constant, whose k-derivative is
     ``sum_{j<y} j / (1 + j k) + [log(1 + x) - x / (1 + x)] / k^2 - y mu / (1 + k mu)``,
@@ -958,19 +958,52 @@ def _fit_dispersion(data, log_rates, k_low: float = 1e-8, k_high: float = 1e4,
     if active.any():
         lo = np.full(m, math.log(k_low))
         hi = np.full(m, math.log(k_high))
+        f_lo = np.full(m, np.nan)  # the score at each end, once evaluated
+        f_hi = np.full(m, np.nan)
         eta_mid = [e.copy() for e in eta]
-        # 32 halvings of log k over [1e-8, 1e4] leave a relative error below 1e-8 in k.
-        # The rates at each k are warm-started from the previous step's, so once k moves
-        # little one Newton step per halving keeps them converged (quadratic convergence).
-        for step in range(steps):
+        # Eight halvings of log k over [1e-8, 1e4] leave a bracket 0.11 wide, where the
+        # profile score is nearly linear; the Illinois method (regula falsi halving the
+        # value kept at a stale end) then narrows it below 1e-9 in about 7 evaluations
+        # where bisection needs 24 (on log k; k to a relative 5e-10). The rates at each k
+        # are warm-started from the previous step's, with Newton steps.
+        for _ in range(8):
             mid = 0.5 * (lo + hi)
             k_mid = np.exp(mid)
             if varying:
-                eta_mid = newton(eta_mid, k_mid, 3 if step < 8 else 1)
-            up = score_k(k_mid, eta_mid) > 0
-            lo = np.where(up, mid, lo)
-            hi = np.where(up, hi, mid)
-        k_hat = np.where(active, np.exp(0.5 * (lo + hi)), 0.0)
+                eta_mid = newton(eta_mid, k_mid, 3)
+            f_mid = score_k(k_mid, eta_mid)
+            up = f_mid > 0
+            lo, f_lo = np.where(up, mid, lo), np.where(up, f_mid, f_lo)
+            hi, f_hi = np.where(up, hi, mid), np.where(up, f_hi, f_mid)
+        for end, value in ((lo, f_lo), (hi, f_hi)):  # an end never moved: its score
+            if np.isnan(value).any():
+                at = np.exp(end)
+                fresh = newton([e.copy() for e in eta_mid], at, 5) if varying else eta_mid
+                np.copyto(value, score_k(at, fresh), where=np.isnan(value))
+        below = active & ~(f_lo > 0)    # the score falls through zero below 1e-8
+        beyond = active & (f_hi > 0)    # ... or above 1e4: the estimate is that end
+        open_ = active & ~below & ~beyond
+        kept = np.zeros(m)              # +1: the last step kept hi, -1: kept lo
+        for step in range(60):
+            width = hi - lo
+            todo = open_ & (width > 1e-9)
+            if not todo.any():
+                break
+            x = lo + width * f_lo / np.where(todo, f_lo - f_hi, 1.0)
+            x = np.clip(x, lo + 1e-3 * width, hi - 1e-3 * width)
+            k_x = np.exp(x)
+            if varying:
+                eta_mid = newton(eta_mid, k_x, 2 if step < 2 else 1)
+            f_x = score_k(k_x, eta_mid)
+            up = f_x > 0  # the root lies above x: x becomes lo
+            f_hi = np.where(todo & up & (kept == 1), 0.5 * f_hi, f_hi)
+            f_lo = np.where(todo & ~up & (kept == -1), 0.5 * f_lo, f_lo)
+            lo, f_lo = np.where(todo & up, x, lo), np.where(todo & up, f_x, f_lo)
+            hi, f_hi = np.where(todo & ~up, x, hi), np.where(todo & ~up, f_x, f_hi)
+            kept = np.where(todo, np.where(up, 1.0, -1.0), kept)
+        log_k = np.where(beyond, math.log(k_high),
+                         np.where(below, math.log(k_low), 0.5 * (lo + hi)))
+        k_hat = np.where(active, np.exp(log_k), 0.0)
         if varying:
             eta = newton(eta_mid, k_hat, 5)
             eta = [np.where(active, e, e0) for e, e0 in zip(eta, log_rates, strict=True)]
