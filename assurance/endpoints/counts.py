@@ -44,9 +44,6 @@ VarianceAt = Literal["true_effect", "planning_ratio"]
 TestVariance = Literal["observed_rates", "pooled_null"]
 CountTest = Literal["wald", "exact_conditional"]
 
-#: Gauss-Legendre rule on [-1, 1] for each panel of the average over follow-up times cut by
-#: dropout (see _information_per_patient).
-_GL_X, _GL_W = np.polynomial.legendre.leggauss(16)
 #: log rate ratios are clipped here before rates are formed (no overflow in far prior tails)
 _LOG_RR_LIMIT = 50.0
 _OWNER = "CountEndpoint"
@@ -90,15 +87,17 @@ def _information_per_patient(lam: np.ndarray, k: float, d: float, t: float) -> n
     edges += [np.full_like(flat, t * i / pieces) for i in range(1, pieces)]
     e = np.sort(np.stack(edges, axis=-1), axis=-1)
     lo, width = e[:, :-1, None], np.diff(e, axis=-1)[:, :, None]
-    s = lo + 0.5 * width * (_GL_X + 1.0)
+    x, w = _gl_rule(16)  # per panel
+    s = lo + 0.5 * width * (x + 1.0)
     mu = flat[:, None, None] * s
-    info = np.sum(0.5 * width * _GL_W * d * np.exp(-d * s) * mu / (1.0 + k * mu),
+    info = np.sum(0.5 * width * w * d * np.exp(-d * s) * mu / (1.0 + k * mu),
                   axis=(-2, -1))
     return (info + atom).reshape(shape)
 
 
 @functools.lru_cache(maxsize=4)
 def _gl_rule(points: int) -> tuple[np.ndarray, np.ndarray]:
+    """Gauss-Legendre nodes and weights on [-1, 1] (made once per size)."""
     return np.polynomial.legendre.leggauss(points)
 
 
