@@ -360,9 +360,8 @@ def needs_power_check(design: TrialDesign) -> bool:
         return False
     from .rules.significance import Significance
 
-    CountEndpoint = counts.CountEndpoint
     ep = design.endpoint
-    return (isinstance(ep, CountEndpoint) and ep.test != "exact_conditional"
+    return (isinstance(ep, counts.CountEndpoint) and ep.test != "exact_conditional"
             and isinstance(design.rule, Significance))
 
 

@@ -1094,7 +1094,8 @@ def test_beta_nodes_kept_for_reuse_are_the_nodes_made_afresh():
     for a, b, c in zip(first, fresh, again, strict=True):
         np.testing.assert_array_equal(a, b)
         assert c is b and not c.flags.writeable
-    # integrating p over the prior on [0, 1] gives its mean (the rule is exact enough)
+    # integrating p over the prior on [0, 1] gives the Beta mean a / (a + b) (common
+    # practice)
     p, w = arm.nodes(np.array([0.0]), np.array([1.0]), 32)
     assert float(np.sum(p * w)) == pytest.approx(3.5 / 12.75, abs=1e-6)
     for k in range(be._NODES_KEPT + 10):

@@ -316,7 +316,7 @@ def _beta_rate(arm: Any) -> str:
 
     lo, hi = special.betaincinv(arm.a, arm.b, [0.025, 0.975])
     return (f"about {number(arm.a)} responders in {number(arm.a + arm.b)} patients: mean "
-            f"{percent(arm.a / (arm.a + arm.b), 1)}, 95% between {percent(lo, 1)} and "
+            f"{percent(arm.mean, 1)}, 95% between {percent(lo, 1)} and "
             f"{percent(hi, 1)}")
 
 
