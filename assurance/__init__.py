@@ -99,6 +99,7 @@ _PUBLIC = {
     "InterimPlan": "interim_plan",
     "interim_look": "interim_plan",
     "InterimData": "program.interim",
+    "exact_predictive_probability": "program.interim_exact",
     "PortfolioPlan": "portfolio_plan",
     "plan_portfolio": "portfolio_plan",
 }
@@ -181,6 +182,7 @@ __all__ = [
     "InterimPlan",
     "interim_look",
     "InterimData",
+    "exact_predictive_probability",
     "PortfolioPlan",
     "plan_portfolio",
 ]
@@ -238,6 +240,7 @@ if TYPE_CHECKING:  # pragma: no cover - for type checkers and editors only
     )
     from .program.development import ProgramDesign
     from .program.interim import InterimData
+    from .program.interim_exact import exact_predictive_probability
     from .program_plan import ProgramPlan, program_plan
     from .report.figures import plot_fit
     from .rules.posterior import AllOf, AnyOf, MinimumEstimate, PosteriorProbability

@@ -202,6 +202,10 @@ class InterimPlan:
              "interim estimates better than this stop for efficacy"),
             ("decision", k.decision, ""),
         ]
+        if k.exact is not None:
+            rows.insert(7, ("predictive_probability_exact", k.exact.probability,
+                            "beta-binomial from the responder counts, "
+                            f"{k.exact.prior_words}"))
         for name in ("analysis", "design"):
             post = k.posterior[name]
             rows.append((f"posterior_mean_{name}_prior", k.natural(post["mean"]),
@@ -262,6 +266,12 @@ class InterimPlan:
             f"Predictive probability of success: {_pct(k.predictive[first])} "
             f"({words[first]}; boundaries use it), {_pct(k.predictive[second])} "
             f"({words[second]})",
+        ]
+        if k.exact is not None:
+            lines.append(f"Exact predictive probability from the responder counts: "
+                         f"{_pct(k.exact.probability)} (beta-binomial, "
+                         f"{k.exact.prior_words})")
+        lines += [
             f"Conditional power: {_pct(k.conditional['assumed'])} at the assumed effect "
             f"({effect_text(ep, k.design.assumed_effect)}), {_pct(k.conditional['trend'])} "
             f"at the current trend, {_pct(k.conditional['none'])} at no effect",

@@ -24,7 +24,8 @@ The interim data may also be given per arm, matching the design's endpoint:
 * means (continuous): ``treatment_mean``, ``control_mean``, ``treatment_n``,
   ``control_n``, ``sd``;
 * responders (binary): ``treatment_responders``, ``treatment_n``, ``control_responders``,
-  ``control_n``;
+  ``control_n`` (a single arm: ``treatment_responders`` and ``treatment_n`` only); the look
+  then also reports the exact (beta-binomial) predictive probability;
 * events (time to event): ``estimate`` (the hazard ratio) and ``events``;
 * counts: ``treatment_events``, ``treatment_exposure``, ``control_events``,
   ``control_exposure``.
@@ -117,6 +118,7 @@ INTERIM_FORMS: dict[str, tuple[tuple[str, ...], tuple[str, ...], str | None]] = 
               "ContinuousEndpoint"),
     "responders": (("treatment_responders", "treatment_n", "control_responders",
                     "control_n"), (), "BinaryEndpoint"),
+    "single-arm responders": (("treatment_responders", "treatment_n"), (), "BinaryEndpoint"),
     "events": (("estimate", "events"), (), "SurvivalEndpoint"),
     "counts": (("treatment_events", "treatment_exposure", "control_events",
                 "control_exposure"), (), "CountEndpoint"),
@@ -333,10 +335,19 @@ def _data(table: InterimTable, spec: DesignFile, problems: Problems) -> tuple[An
                                 f"endpoint is {_ENDPOINT_WORDS.get(kind, kind)}. Give "
                                 "'estimate' and 'standard_error' instead.")
         return None, form
-    if endpoint_needed is not None and getattr(ep, "layout", "two_arm") != "two_arm":
-        problems.add("interim", f"the {form} form of interim data compares two arms; the "
-                                "design has a single arm. Give 'estimate' and "
-                                "'standard_error' instead.")
+    single_form = form == "single-arm responders"
+    if endpoint_needed is not None and \
+            (getattr(ep, "layout", "two_arm") != "two_arm") != single_form:
+        if single_form:
+            problems.add("interim", "the single-arm responders form (treatment_responders "
+                                    "and treatment_n only) belongs to a single-arm design; "
+                                    "this design has two arms. Give 'control_responders' "
+                                    "and 'control_n' too.")
+        else:
+            problems.add("interim", f"the {form} form of interim data compares two arms; "
+                                    "the design has a single arm. Give "
+                                    "'treatment_responders' and 'treatment_n' only, or "
+                                    "'estimate' and 'standard_error'.")
         return None, form
     t = table
     try:
@@ -349,6 +360,14 @@ def _data(table: InterimTable, spec: DesignFile, problems: Problems) -> tuple[An
         elif form == "means":
             data = InterimData.from_means(t.treatment_mean, t.control_mean, t.treatment_n,
                                           t.control_n, t.sd if t.sd is not None else ep.sigma)
+        elif single_form:
+            if t.treatment_responders > t.treatment_n:
+                problems.add("interim", f"'interim.treatment_responders' "
+                                        f"({t.treatment_responders}) must not exceed "
+                                        f"'interim.treatment_n' ({t.treatment_n}).")
+                return None, form
+            data = InterimData.from_single_arm_responses(
+                t.treatment_responders, t.treatment_n, ep.control_rate, scale=ep.scale)
         elif form == "responders":
             for arm in ("treatment", "control"):
                 if getattr(t, f"{arm}_responders") > getattr(t, f"{arm}_n"):
@@ -366,7 +385,9 @@ def _data(table: InterimTable, spec: DesignFile, problems: Problems) -> tuple[An
             data = InterimData.from_counts(t.treatment_events, t.treatment_exposure,
                                            t.control_events, t.control_exposure)
     except AssuranceInputError as exc:
-        problems.add_domain(exc, "interim", keys={"hazard_ratio": "interim.estimate"})
+        problems.add_domain(exc, "interim", keys={"hazard_ratio": "interim.estimate",
+                                                  "responders": "interim.treatment_responders",
+                                                  "n": "interim.treatment_n"})
         return None, form
     if ep.ratio_scale and t.estimate is not None and not t.estimate > 0:
         problems.add("interim", f"'interim.estimate' must be a ratio > 0 for this endpoint. "

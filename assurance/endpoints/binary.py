@@ -620,6 +620,8 @@ class BinaryEndpoint(Endpoint):
         else:
             rate = f"reference rate {self.control_rate:g}"
         test = _TEST_TEXT[self.test]
+        if self.layout == "single_arm" and self.test in ("z", "chi_square"):
+            test = "one-sample score z test against the reference rate"
         if self.continuity_correction:
             test += " with continuity correction"
         return (f"binary outcome, {rate}; {self.layout_text()}; {test}; effect: "

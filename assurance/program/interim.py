@@ -35,7 +35,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Callable, Mapping
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Any, Literal
 
 import numpy as np
@@ -329,6 +329,12 @@ class InterimData:
         when ``standard_error`` is given.
     description
         How the estimate was obtained, for the memo.
+    responses
+        ``(treatment_responders, treatment_n, control_responders, control_n)`` when the
+        data are responder counts (control ``0, 0`` for a single arm): the interim look then
+        also reports the exact predictive probability
+        (:func:`~assurance.program.interim_exact.exact_predictive_probability`). Set by
+        :meth:`from_responses` and :meth:`from_single_arm_responses`.
 
     Examples
     --------
@@ -340,6 +346,7 @@ class InterimData:
     standard_error: float | None = None
     information_fraction: float | None = None
     description: str = "estimate and standard error as given"
+    responses: tuple[int, int, int, int] | None = None
 
     def __post_init__(self) -> None:
         owner = "InterimData"
@@ -356,6 +363,20 @@ class InterimData:
             object.__setattr__(self, "information_fraction", check_real(
                 self.information_fraction, "information_fraction", owner, low=0,
                 high=1, low_open=True, high_open=True))
+        if self.responses is not None:
+            try:
+                counts = tuple(self.responses)
+            except TypeError:
+                counts = ()
+            if len(counts) != 4 or any(
+                    not isinstance(c, int | np.integer) or c < 0 for c in counts) \
+                    or counts[0] > counts[1] or counts[2] > counts[3] or counts[1] < 1:
+                raise AssuranceInputError(
+                    f"The 'responses' parameter of {owner} must be four whole numbers "
+                    "(treatment_responders, treatment_n, control_responders, control_n) "
+                    "with responders <= patients and treatment_n >= 1. Got "
+                    f"{self.responses!r} instead.")
+            object.__setattr__(self, "responses", tuple(int(c) for c in counts))
 
     @classmethod
     def from_means(cls, treatment_mean: float, control_mean: float, treatment_n: int,
@@ -423,7 +444,42 @@ class InterimData:
                 "estimate and a standard error instead.")
         return cls(float(est), math.sqrt(var),
                    description=f"{x_t} of {n_t} responded on treatment, {x_c} of {n_c} on "
-                               "control")
+                               "control", responses=(x_t, n_t, x_c, n_c))
+
+    @classmethod
+    def from_single_arm_responses(cls, responders: int, n: int, reference_rate: float,
+                                  scale: str = "difference") -> InterimData:
+        """Responders in a single arm against a fixed reference rate ``p0``: ``p - p0``
+        (Wald standard error ``sqrt(p (1 - p) / n)``), ``p / p0`` or the odds ratio (standard
+        errors of the logarithms ``sqrt((1 - p) / x)`` and ``sqrt(1/x + 1/(n - x))``).
+
+        Examples
+        --------
+        >>> d = InterimData.from_single_arm_responses(16, 40, 0.25)
+        >>> round(d.estimate, 4), round(d.standard_error, 4), d.responses
+        (0.15, 0.0775, (16, 40, 0, 0))
+        """
+        owner = "InterimData.from_single_arm_responses"
+        n = check_int(n, "n", owner, low=1)
+        x = check_int(responders, "responders", owner, low=0, high=n)
+        p0 = check_real(reference_rate, "reference_rate", owner, low=0, high=1,
+                        low_open=True, high_open=True)
+        check_choice(scale, "scale", owner, ["difference", "risk_ratio", "odds_ratio"])
+        p = x / n
+        if x == 0 or x == n:
+            raise AssuranceInputError(
+                f"The 'responders' parameter of {owner} must be above 0 and below n ({n}) for "
+                f"a standard error from the counts. Got {x!r} instead. Give the estimate and "
+                "its standard error instead.")
+        if scale == "difference":
+            est, var = p - p0, p * (1 - p) / n
+        elif scale == "risk_ratio":
+            est, var = p / p0, (1 - p) / x
+        else:
+            est, var = (p / (1 - p)) / (p0 / (1 - p0)), 1 / x + 1 / (n - x)
+        return cls(float(est), math.sqrt(var),
+                   description=f"{x} of {n} responded (single arm, reference rate {p0:g})",
+                   responses=(x, n, 0, 0))
 
     @classmethod
     def from_events(cls, hazard_ratio: float, events: int, allocation: float = 1.0
@@ -599,6 +655,9 @@ class InterimLook:
         ``p_efficacy``, ``p_success``, ``p_success_no_look``.
     notes
         Plain remarks for the memo (edge cases, approximations).
+    exact
+        For responder counts and a response endpoint: the exact (beta-binomial) predictive
+        probability (:class:`~assurance.program.interim_exact.ExactPrediction`), else None.
     """
 
     design: Any
@@ -622,6 +681,7 @@ class InterimLook:
     operating: tuple[OperatingRow, ...]
     curve: dict[str, np.ndarray] = field(repr=False)
     notes: tuple[str, ...] = ()
+    exact: Any = None
 
     # ---- natural-scale helpers ------------------------------------------------------------
     def natural(self, value: float | None) -> float | None:
@@ -857,6 +917,17 @@ def evaluate_interim(design: Any, data: InterimData, *, planned_total: int | Non
             f"Got estimate={natural!r} instead.")
     d1 = float(ep.to_benefit(natural))
     rule = design.benefit_rule
+    notes: list[str] = []
+    beta_prior = getattr(rule, "analysis_prior", None)
+    if type(beta_prior).__name__ == "BetaRates":
+        # The normal approximation needs a normal analysis prior: the beta priors' mean and
+        # SD on the benefit scale stand in for them (the exact value from responder counts
+        # uses the beta priors themselves).
+        stand_in = Normal(float(beta_prior.mean()), math.sqrt(float(beta_prior.var())))
+        rule = replace(rule, analysis_prior=stand_in)
+        notes.append("The normal approximation replaces the beta analysis prior by a normal "
+                     "prior with its mean and SD on the effect scale; give the responder "
+                     "counts for the exact predictive probability.")
     try:
         c = float(np.asarray(rule.threshold(se_n, rule.critical_z())))
     except AssuranceInputError as exc:
@@ -881,7 +952,6 @@ def evaluate_interim(design: Any, data: InterimData, *, planned_total: int | Non
     pp: Callable[[np.ndarray], np.ndarray] = lambda xs: predictive_probability(  # noqa: E731
         xs, prior=chosen, interim_se=se1, final_se=se_n, threshold=c)
     scale = 10 * se1 + abs(c) + abs(d1)
-    notes: list[str] = []
     f_cut = e_cut = None
     if futility > 0:
         f_cut = _solve_cut(pp, futility, c, scale)
@@ -945,10 +1015,50 @@ def evaluate_interim(design: Any, data: InterimData, *, planned_total: int | Non
     if getattr(ep, "analysis", "z") == "t":
         notes.append("The final analysis is a t test; the interim look uses its normal "
                      "approximation (z critical values).")
+    exact = _exact_from_counts(design, data, planned_total, owner)
+    if exact is not None:
+        notes.append(_exact_note(exact, predictive, futility, efficacy, decision))
     return InterimLook(design=design, data=data, planned_size=size, size_unit=unit,
                        final_se=se_n, interim_se=se1, fraction=t, estimate=d1, threshold=c,
                        predictive=predictive, posterior=posterior, conditional=cp,
                        futility=futility, efficacy=efficacy,
                        prediction_prior=prediction_prior, futility_cut=f_cut,
                        efficacy_cut=e_cut, decision=decision, operating=tuple(rows),
-                       curve=curve, notes=tuple(notes))
+                       curve=curve, notes=tuple(notes), exact=exact)
+
+
+def _exact_from_counts(design: Any, data: InterimData, planned_total: int | None,
+                       owner: str) -> Any:
+    """The exact predictive probability when the data are responder counts, else None."""
+    ep = design.endpoint
+    if data.responses is None or type(ep).__name__ != "BinaryEndpoint" \
+            or planned_total is None:
+        return None
+    from .interim_exact import exact_predictive_probability
+
+    x_t, n_t, x_c, n_c = data.responses
+    single = ep.layout == "single_arm"
+    if single != (n_c == 0):
+        raise AssuranceInputError(
+            f"The 'data' parameter of {owner} holds responder counts for "
+            f"{'one arm' if n_c == 0 else 'two arms'}; the design has "
+            f"{'a single arm' if single else 'two arms'}. Use "
+            f"InterimData.{'from_single_arm_responses' if single else 'from_responses'}.")
+    return exact_predictive_probability(
+        design, treatment_responders=x_t, treatment_n=n_t, planned_total=planned_total,
+        control_responders=None if single else x_c, control_n=None if single else n_c)
+
+
+def _exact_note(exact: Any, predictive: Mapping[str, float], futility: float,
+                efficacy: float, decision: str) -> str:
+    """The memo's sentence on the exact value beside the normal approximation."""
+    p = exact.probability
+    text = (f"The {exact.describe()}; the normal approximation with the analysis prior "
+            f"gives {predictive['analysis']:.4f}.")
+    by_exact = ("stop for futility" if futility > 0 and p < futility else
+                "stop for efficacy" if efficacy < 1 and p > efficacy else "continue")
+    if by_exact != decision:
+        text += (f" By the exact value the boundaries would say '{by_exact}' rather than "
+                 f"'{decision}': weigh the exact value, and ask a statistician to review "
+                 "before acting.")
+    return text

@@ -89,6 +89,14 @@ def _decision(look: Any) -> dict[str, Any]:
         {"label": "Predictive probability, other prior", "key": "predictive_other",
          "value": _p(look.predictive[other]),
          "note": f"under the posterior from the {_prior_word(look, other)}"},
+    ]
+    if look.exact is not None:
+        tiles.append(
+            {"label": "Predictive probability, exact from counts", "key": "predictive_exact",
+             "value": _p(look.exact.probability),
+             "note": f"beta-binomial: {look.exact.remaining[0] + look.exact.remaining[1]} "
+                     f"patients still to come, {look.exact.prior_words}"})
+    tiles += [
         {"label": "Conditional power, assumed effect", "key": "cp_assumed",
          "value": _p(look.conditional["assumed"]),
          "note": f"if the rest of the trial sees {_effect(look, look.design.assumed_effect)}"},
@@ -135,7 +143,7 @@ def _found(look: Any, plan: Any) -> list[tuple[str, str]]:
     rows = [
         ("Interim data", look.data.description),
         ("Interim estimate", f"{_effect(look, look.data.estimate)} (95% interval "
-                             f"{wd.number(a)} to {wd.number(b)}; standard error "
+                             f"{_effect(look, a)} to {_effect(look, b)}; standard error "
                              f"{wd.number(look.interim_se)}"
                              f"{' on the log scale' if ep.ratio_scale else ''})"),
         ("Information fraction", f"{100 * look.fraction:.1f}% of the final analysis's "

@@ -315,7 +315,9 @@ def _beta_rate(arm: Any) -> str:
     from scipy import special  # the Beta quantiles (scipy.stats is slow to import)
 
     lo, hi = special.betaincinv(arm.a, arm.b, [0.025, 0.975])
-    return (f"about {number(arm.a)} responders in {number(arm.a + arm.b)} patients: mean "
+    size = arm.a + arm.b
+    return (f"about {number(arm.a)} responders in {number(size)} "
+            f"patient{'' if size == 1 else 's'}: mean "
             f"{percent(arm.mean, 1)}, 95% between {percent(lo, 1)} and "
             f"{percent(hi, 1)}")
 
