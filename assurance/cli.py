@@ -13,6 +13,7 @@ characters shown escaped.
 from __future__ import annotations
 
 import argparse
+import os
 import shutil
 import signal
 import sys
@@ -410,5 +411,23 @@ def _command_line(args: argparse.Namespace) -> str:
     return " ".join(shlex.quote(_visible(w)) for w in words)
 
 
+def run(argv: list[str] | None = None) -> None:
+    """The console command: :func:`main`, then leave the process at once.
+
+    When :func:`main` returns, every output is written, closed and moved into place, and
+    the figure workers have ended; what remains of a normal exit is the interpreter's
+    teardown of the libraries loaded (matplotlib, xarray, scipy: about 0.3 s of a 3-4 s
+    plan), which changes nothing on disk. Standard output and error are flushed first. An
+    unexpected exception still ends the process the usual way, with its traceback.
+    """
+    status = main(argv)
+    try:
+        sys.stdout.flush()
+        sys.stderr.flush()
+    except (BrokenPipeError, ValueError):  # the reader went away: nothing left to say
+        pass
+    os._exit(status)
+
+
 if __name__ == "__main__":  # pragma: no cover
-    sys.exit(main())
+    run()

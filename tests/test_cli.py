@@ -196,6 +196,27 @@ def test_real_process_exits_2_without_traceback(tmp_path):
     assert "'endpoint.sd'" in proc.stderr
 
 
+def test_console_command_leaves_at_once_with_everything_written(tmp_path):
+    # run() ends the process with os._exit after main returns: the exit status, the whole
+    # text on a pipe and every output file must be there as with a normal exit
+    design = tmp_path / "d.toml"
+    design.write_text(GOOD)
+    out = tmp_path / "out"
+    code = ("import sys\nfrom assurance.cli import run\n"
+            "print('before', flush=False)\nrun(sys.argv[1:])\nprint('never here')\n")
+    proc = subprocess.run([sys.executable, "-c", code, "plan", str(design), "--out",
+                           str(out)], capture_output=True, text=True)
+    assert proc.returncode == 0, proc.stderr
+    assert proc.stdout.startswith("before") and "never here" not in proc.stdout
+    assert f"Written to {out}" in proc.stdout  # the summary, flushed before leaving
+    written = {p.relative_to(out).as_posix() for p in out.rglob("*")}
+    assert {"memo.html", "results.csv", "results.nc", "figures/prior.png"} <= written
+    assert not [p for p in tmp_path.iterdir() if p.name.startswith(".")]  # no leftovers
+    bad = subprocess.run([sys.executable, "-c", code, "check", str(tmp_path / "no.toml")],
+                         capture_output=True, text=True)
+    assert bad.returncode == 2 and "not found" in bad.stderr
+
+
 def test_help_imports_nothing_heavy():
     code = ("import sys, assurance.cli as c\n"
             "try:\n    c.main(['--help'])\nexcept SystemExit:\n    pass\n"
