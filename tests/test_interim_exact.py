@@ -293,3 +293,19 @@ def test_interim_file_forms_must_match_the_layout(tmp_path):
         "= 6", "= 21"), encoding="utf-8")
     with pytest.raises(DesignFileError, match="'interim.treatment_responders' .21. must not"):
         read_interim_file(tmp_path / "c.toml")
+
+
+def test_note_when_the_exact_value_falls_on_the_other_side_of_a_boundary():
+    # The case study's look: exact about 0.50, normal approximation about 0.43 (both checked
+    # above or against scipy); a futility boundary between them must be pointed out.
+    from assurance import read_design
+
+    design = read_design(CASE / "design.toml").design
+    data = InterimData.from_single_arm_responses(6, 20, 0.2)
+    look = evaluate_interim(design, data, planned_total=45, futility=0.46)
+    assert look.predictive["analysis"] < 0.46 < look.exact.probability
+    assert look.decision == "stop for futility"
+    assert any("would say 'continue' rather than 'stop for futility'" in note
+               for note in look.notes)
+    calm = evaluate_interim(design, data, planned_total=45, futility=0.1)
+    assert not any("would say" in note for note in calm.notes)

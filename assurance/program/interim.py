@@ -1054,7 +1054,7 @@ def _exact_note(exact: Any, predictive: Mapping[str, float], futility: float,
     """The memo's sentence on the exact value beside the normal approximation."""
     p = exact.probability
     text = (f"The {exact.describe()}; the normal approximation with the analysis prior "
-            f"gives {predictive['analysis']:.4f}.")
+            f"(flat when the design has none) gives {predictive['analysis']:.4f}.")
     by_exact = ("stop for futility" if futility > 0 and p < futility else
                 "stop for efficacy" if efficacy < 1 and p > efficacy else "continue")
     if by_exact != decision:

@@ -81,13 +81,16 @@ class ExactPrediction:
         """One plain sentence for a memo."""
         def beta(ab: tuple[float, float]) -> str:
             return f"Beta({ab[0]:g}, {ab[1]:g})"
-        priors = beta(self.treatment_prior) + (
-            "" if self.control_prior is None else f" (treatment), {beta(self.control_prior)}"
-                                                  " (control)")
+        if self.prior_source == "uniform":
+            priors = self.prior_words
+        elif self.control_prior is None:
+            priors = f"{self.prior_words}: {beta(self.treatment_prior)}"
+        else:
+            priors = (f"{self.prior_words}: {beta(self.treatment_prior)} on treatment, "
+                      f"{beta(self.control_prior)} on control")
         return (f"exact predictive probability from the responder counts: "
-                f"{self.probability:.4f} ({self.prior_words}, {priors}; beta-binomial "
-                f"prediction of the {self.remaining[0] + self.remaining[1]} patients still "
-                "to come)")
+                f"{self.probability:.4f} ({priors}; beta-binomial prediction of the "
+                f"{self.remaining[0] + self.remaining[1]} patients still to come)")
 
 
 def _beta_pair(value: Any, name: str, owner: str) -> tuple[float, float]:
