@@ -311,9 +311,18 @@ def _effect_axis(ax: Axes, endpoint: dict[str, Any] | Any, lo: float, hi: float,
 _SIZE_LABEL = "Total sample size (patients)"
 
 
+def _whole_size_ticks(ax: Axes) -> None:
+    """Ticks of a size axis at whole numbers of patients only (no 32.5 patients)."""
+    from matplotlib.ticker import MaxNLocator
+
+    ax.xaxis.set_major_locator(MaxNLocator(nbins="auto", steps=[1, 2, 2.5, 5, 10],
+                                           integer=True))
+
+
 def _size_axis(ax: Axes, ds: Any, lo: float, hi: float) -> None:
     """The x axis of a figure over sizes: its label, and expected events on top when known."""
     ax.set_xlim(lo, hi if hi > lo else lo + 1)
+    _whole_size_ticks(ax)
     ax.set_xlabel(_SIZE_LABEL, fontsize=10.5, parse_math=False)
     _events_axis(ax, ds)
 

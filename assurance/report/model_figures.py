@@ -28,6 +28,7 @@ from .figures import (
     _place_legend,
     _style,
     _title,
+    _whole_size_ticks,
 )
 
 if TYPE_CHECKING:  # pragma: no cover
@@ -152,6 +153,7 @@ def plot_model_success(ds: Any, answers: Sequence[Any] = (), planned_n: int | No
                            style={"fontsize": 8.5, "bbox": _TEXT_BOX}, leader_from=1e9))
     ax.set_ylim(0.0, 1.0)
     ax.set_xlim(lo, hi if hi > lo else lo + 1)
+    _whole_size_ticks(ax)
     ax.set_xlabel(_SIZE_LABEL, fontsize=10.5, parse_math=False)
     ax.set_ylabel("Chance of success (probability)", fontsize=10.5, parse_math=False)
     ax.set_title(_title(title, "chance of success by sample size (simulated)"), fontsize=11.5,
@@ -208,6 +210,7 @@ def plot_model_widths(ds: Any, ax: Axes | None = None, *, unit: str | None = Non
     ax.set_ylim(bottom=0.0)
     lo, hi = float(n.min()), float(n.max())
     ax.set_xlim(lo, hi if hi > lo else lo + 1)
+    _whole_size_ticks(ax)
     ax.set_xlabel(_SIZE_LABEL, fontsize=10.5, parse_math=False)
     coverage = float(ds.attrs.get("coverage", 0.95))
     shown = unit or str(ds.attrs.get("effect_scale", "") or "units of the effect")
