@@ -695,10 +695,15 @@ def plot_power_and_assurance(
     n = np.asarray(ds["n"].values, dtype=float)
     power_label = "classical power at the " + _assumed_words(info)
 
-    dot = "o" if n.size < 4 else None  # a line of one or two points needs markers
-    ax.plot(n, ds["power"].values, color=_BLUE, linewidth=2.0, marker=dot, label=power_label)
+    # markers show which sizes were computed where there are few of them (a line of one or
+    # two points needs them; between a dozen sizes the straight segments are only a guide,
+    # and response-rate power is not even monotone in n)
+    dot = "o" if n.size <= 12 else None
+    size = 6.0 if n.size < 4 else 3.5
+    ax.plot(n, ds["power"].values, color=_BLUE, linewidth=2.0, marker=dot, markersize=size,
+            label=power_label)
     ax.plot(n, ds["assurance"].values, color=_VERMILLION, linewidth=2.4, marker=dot,
-            label="assurance (averaged over the design prior)")
+            markersize=size, label="assurance (averaged over the design prior)")
     if "assurance_mcse" in ds:
         _band(ax, n, ds["assurance"].values, ds["assurance_mcse"].values, _VERMILLION,
               "assurance \u00b1 2 Monte Carlo standard errors")
