@@ -246,6 +246,17 @@ def test_input_checks():
         call(object(), treatment_responders=3, treatment_n=20, planned_total=40)
     with pytest.raises(AssuranceInputError, match="'responses'"):
         InterimData(0.1, standard_error=0.1, responses=(5, 4, 0, 0))
+    # a huge planned size: refused with the bound, not a memory error or a long wait
+    with pytest.raises(AssuranceInputError, match=r"'planned_total'.*\[1, 2e\+06\]"):
+        call(single, treatment_responders=3, treatment_n=20, planned_total=10**12)
+
+
+def test_interim_look_beyond_the_exact_bound_uses_the_approximation_with_a_note():
+    design = _single(0.3, (1.0, 1.0))
+    data = InterimData.from_single_arm_responses(300, 1000, 0.3)
+    look = evaluate_interim(design, data, planned_total=10**9)
+    assert look.exact is None
+    assert any("beyond the exact sum" in note for note in look.notes)
 
 
 # ------------------------------------------------------------------------------------------

@@ -1018,6 +1018,11 @@ def evaluate_interim(design: Any, data: InterimData, *, planned_total: int | Non
     exact = _exact_from_counts(design, data, planned_total, owner)
     if exact is not None:
         notes.append(_exact_note(exact, predictive, futility, efficacy, decision))
+    elif data.responses is not None and type(ep).__name__ == "BinaryEndpoint" \
+            and planned_total is not None:
+        notes.append(f"The planned total of {planned_total:,} patients is beyond the exact "
+                     "sum over final counts (at most 2,000,000): the predictive probability "
+                     "is the normal approximation alone.")
     return InterimLook(design=design, data=data, planned_size=size, size_unit=unit,
                        final_se=se_n, interim_se=se1, fraction=t, estimate=d1, threshold=c,
                        predictive=predictive, posterior=posterior, conditional=cp,
@@ -1034,7 +1039,10 @@ def _exact_from_counts(design: Any, data: InterimData, planned_total: int | None
     if data.responses is None or type(ep).__name__ != "BinaryEndpoint" \
             or planned_total is None:
         return None
-    from .interim_exact import exact_predictive_probability
+    from .interim_exact import MAX_EXACT_TOTAL, exact_predictive_probability
+
+    if planned_total > MAX_EXACT_TOTAL:  # the normal approximation alone (noted)
+        return None
 
     x_t, n_t, x_c, n_c = data.responses
     single = ep.layout == "single_arm"

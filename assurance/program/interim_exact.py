@@ -41,7 +41,11 @@ from ..compute.binary_exact import (
 )
 from ..errors import AssuranceInputError
 
-__all__ = ["ExactPrediction", "exact_predictive_probability"]
+__all__ = ["ExactPrediction", "exact_predictive_probability", "MAX_EXACT_TOTAL"]
+
+#: Largest planned total for the exact sum (its work and memory grow with the planned size;
+#: at this size a single arm takes a few seconds, and the normal approximation is close).
+MAX_EXACT_TOTAL = 2_000_000
 
 
 @dataclass(frozen=True)
@@ -171,7 +175,7 @@ def exact_predictive_probability(design: Any, *, treatment_responders: int,
     single = ep.layout == "single_arm"
     n_t = check_int(treatment_n, "treatment_n", owner, low=1)
     x_t = check_int(treatment_responders, "treatment_responders", owner, low=0, high=n_t)
-    total = check_int(planned_total, "planned_total", owner, low=1)
+    total = check_int(planned_total, "planned_total", owner, low=1, high=MAX_EXACT_TOTAL)
     if single:
         if control_responders is not None or control_n is not None or \
                 control_prior is not None:
