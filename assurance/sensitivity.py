@@ -297,6 +297,8 @@ def _beta_with(prior: Any, centre: float, spread: float) -> Any | None:
     beta gives it (the control arm alone is already wider, say)."""
     from scipy import optimize, special
 
+    from .compute.binary_exact import RateArm
+
     cls = type(prior)
     control = prior.control
     arm = prior.treatment_arm
@@ -304,16 +306,25 @@ def _beta_with(prior: Any, centre: float, spread: float) -> Any | None:
         return None
     mu0, size0 = arm.a / (arm.a + arm.b), arm.a + arm.b
 
-    def make(x: np.ndarray) -> Any:
+    def shape(x: np.ndarray) -> tuple[float, float]:
         mu, size = special.expit(x[0]), math.exp(min(max(x[1], -30.0), 30.0))
-        return cls(control, (mu * size, (1 - mu) * size), prior.scale)
+        return mu * size, (1 - mu) * size
+
+    def make(x: np.ndarray) -> Any:
+        return cls(control, shape(x), prior.scale)
+
+    # the root finder's trial points need only the effect's mean and SD: the closed-form
+    # moments of BetaRates, without building (and checking) a prior at each point
+    template = cls(control, (1.0, 1.0), prior.scale)
+    m_c, v_c = template._moments(template.control_arm)
 
     def gap(x: np.ndarray) -> np.ndarray:
-        try:
-            p = make(x)
-        except AssuranceInputError:
+        a, b = shape(x)
+        if not (0.0 < a < math.inf and 0.0 < b < math.inf):  # no such beta: far away
             return np.array([1e3, 1e3])
-        return np.array([(p.mean() - centre) / spread, math.log(p.sd() / spread)])
+        m_t, v_t = template._moments(RateArm.beta(a, b))
+        return np.array([(m_t - m_c - centre) / spread,
+                         math.log(math.sqrt(v_t + v_c) / spread)])
 
     start = np.array([special.logit(mu0), math.log(size0)])
     sol = optimize.root(gap, start, method="hybr", options={"xtol": 1e-12})
