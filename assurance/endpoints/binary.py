@@ -33,8 +33,9 @@ from numbers import Real
 from typing import Any, Literal
 
 import numpy as np
-from scipy import optimize, special
+from scipy import special
 
+from .._roots import brent_root
 from .._validation import check_choice, check_int, check_real
 from ..compute.binary_exact import (
     POSTERIOR_NODES,
@@ -322,8 +323,8 @@ class BetaRates(Prior):
             lo -= 10 * s
         while float(self.cdf(hi)) < q:
             hi += 10 * s
-        return float(optimize.brentq(lambda x: float(self.cdf(x)) - q, lo, hi, xtol=1e-13,
-                                     rtol=4 * np.finfo(float).eps))
+        return brent_root(lambda x: float(self.cdf(x)) - q, lo, hi, xtol=1e-13,
+                          rtol=4 * np.finfo(float).eps)
 
     def to_dict(self) -> dict[str, Any]:
         out: dict[str, Any] = {"family": "beta_rates",
