@@ -172,6 +172,9 @@ def test_interrupt_stops_the_workers(sig, tmp_path):
     script = tmp_path / "run.py"
     script.write_text(
         "import os, signal, sys, threading\n"
+        # Ctrl-C as in a terminal, even when the tests were started from a shell that
+        # ignores it (a background job of a non-interactive shell; children inherit that)
+        "signal.signal(signal.SIGINT, signal.default_int_handler)\n"
         f"sys.path.insert(0, {os.path.dirname(__file__)!r})\n"
         "from assurance.general.distribute import map_chunks\n"
         "from test_general_distribute import Task, sleep_long\n"

@@ -49,8 +49,12 @@ DEADLINE = 180.0  # seconds; only a guard against a hung process, never a speed 
 #: Runs the command line with the sample-size writer made slow: after writing its file it
 #: creates ``argv[1]`` ("I am writing") and waits until ``argv[2]`` exists.
 SLOW_WRITER = """\
-import pathlib, sys, time
+import pathlib, signal, sys, time
 import assurance.report.output_folder as folder
+
+# Ctrl-C as in a terminal, even when the tests were started from a shell that ignores it
+# (a background job of a non-interactive shell does, and children inherit that)
+signal.signal(signal.SIGINT, signal.default_int_handler)
 
 real = folder.write_sample_sizes_csv
 
