@@ -312,6 +312,26 @@ def predictive_probability(estimate: Any, *, prior: Prior | None, interim_se: fl
 # ------------------------------------------------------------------------------------------
 # the interim data
 # ------------------------------------------------------------------------------------------
+def _rate_contrast(p_t: float, p_c: float, scale: str) -> float:
+    """Rates compared on the natural scale: difference, risk ratio or odds ratio."""
+    if scale == "difference":
+        return p_t - p_c
+    if scale == "risk_ratio":
+        return p_t / p_c
+    return (p_t / (1 - p_t)) / (p_c / (1 - p_c))
+
+
+def _wald_variance(x: int, n: int, scale: str) -> float:
+    """One arm's share of the Wald variance (of the log for the ratios): ``p (1 - p) / n``,
+    ``(1 - p) / x`` or ``1/x + 1/(n - x)`` (common practice)."""
+    p = x / n
+    if scale == "difference":
+        return p * (1 - p) / n
+    if scale == "risk_ratio":
+        return (1 - p) / x
+    return 1 / x + 1 / (n - x)
+
+
 @dataclass(frozen=True)
 class InterimData:
     """What the interim analysis found, on the endpoint's natural scale.
@@ -418,10 +438,7 @@ class InterimData:
         x_t = check_int(treatment_responders, "treatment_responders", owner, low=0, high=n_t)
         x_c = check_int(control_responders, "control_responders", owner, low=0, high=n_c)
         check_choice(scale, "scale", owner, ["difference", "risk_ratio", "odds_ratio"])
-        p_t, p_c = x_t / n_t, x_c / n_c
-        if scale == "difference":
-            est, var = p_t - p_c, p_t * (1 - p_t) / n_t + p_c * (1 - p_c) / n_c
-        else:
+        if scale != "difference":
             empty = [name for name, x, n in (("treatment", x_t, n_t), ("control", x_c, n_c))
                      if x == 0 or (scale == "odds_ratio" and x == n)]
             if empty:
@@ -431,12 +448,8 @@ class InterimData:
                     f"the log scale; the {' and '.join(empty)} arm has none (or all). Got "
                     f"{x_t}/{n_t} and {x_c}/{n_c} instead. Give the estimate and its "
                     "standard error instead.")
-            if scale == "risk_ratio":
-                est = p_t / p_c
-                var = (1 - p_t) / x_t + (1 - p_c) / x_c
-            else:
-                est = (p_t / (1 - p_t)) / (p_c / (1 - p_c))
-                var = 1 / x_t + 1 / (n_t - x_t) + 1 / x_c + 1 / (n_c - x_c)
+        est = _rate_contrast(x_t / n_t, x_c / n_c, scale)
+        var = _wald_variance(x_t, n_t, scale) + _wald_variance(x_c, n_c, scale)
         if var <= 0:
             raise AssuranceInputError(
                 f"The responders of {owner} give a standard error of 0 ({x_t}/{n_t} and "
@@ -465,18 +478,12 @@ class InterimData:
         p0 = check_real(reference_rate, "reference_rate", owner, low=0, high=1,
                         low_open=True, high_open=True)
         check_choice(scale, "scale", owner, ["difference", "risk_ratio", "odds_ratio"])
-        p = x / n
         if x == 0 or x == n:
             raise AssuranceInputError(
                 f"The 'responders' parameter of {owner} must be above 0 and below n ({n}) for "
                 f"a standard error from the counts. Got {x!r} instead. Give the estimate and "
                 "its standard error instead.")
-        if scale == "difference":
-            est, var = p - p0, p * (1 - p) / n
-        elif scale == "risk_ratio":
-            est, var = p / p0, (1 - p) / x
-        else:
-            est, var = (p / (1 - p)) / (p0 / (1 - p0)), 1 / x + 1 / (n - x)
+        est, var = _rate_contrast(x / n, p0, scale), _wald_variance(x, n, scale)
         return cls(float(est), math.sqrt(var),
                    description=f"{x} of {n} responded (single arm, reference rate {p0:g})",
                    responses=(x, n, 0, 0))
