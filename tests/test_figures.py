@@ -286,3 +286,36 @@ def test_a_plan_the_early_workers_cannot_take_is_drawn_as_before(monkeypatch):
         monkeypatch.setattr(pf.pickle, "dumps", lambda *a, **k: b"not a pickle")
         drawn = pf.render_figures(p, ("png",))
     assert {k: v["png"] for k, v in drawn.items()} == {k: v["png"] for k, v in serial.items()}
+
+
+@pytest.mark.skipif("fork" not in multiprocessing.get_all_start_methods(),
+                    reason="the drawers are forked processes")
+def test_forked_drawers_return_every_figure_in_order_and_pass_on_a_failure(monkeypatch):
+    # an early worker forks further drawers that share the list of figures: each figure is
+    # drawn once, the bytes come back in the list's order, equal to drawing them here, and
+    # an error in any drawer reaches the caller (who then draws without the early worker)
+    from matplotlib.figure import Figure
+
+    from assurance.report import plan_figures as pf
+
+    def figure(k: int) -> Figure:
+        fig = Figure(figsize=(2, 1.5))
+        fig.add_subplot().plot([0, 1, 2], [k, 0, k])
+        return fig
+
+    names = [f"f{k}" for k in range(5)]
+    makers = {name: (lambda k=k: figure(k)) for k, name in enumerate(names)}
+    monkeypatch.setattr(pf, "_PLAN", None)
+    monkeypatch.setattr(pf, "_MAKERS", lambda plan: makers)
+    jobs = [(name, ("png",)) for name in names]
+    here = [pf._draw(job) for job in jobs]
+    assert pf._draw_in_forks(jobs, 3) == here
+
+    def broken() -> Figure:
+        raise ValueError("drawing failed on purpose")
+
+    for k in (0, 3):  # the first is drawn here, the fourth (likely) in a forked drawer
+        makers[names[k]] = broken
+        with pytest.raises(ValueError, match="on purpose"):
+            pf._draw_in_forks(jobs, 3)
+        makers[names[k]] = lambda k=k: figure(k)

@@ -635,7 +635,7 @@ def _inputs_of(plan: Any) -> list[Path]:
 
 def _write_files(tmp: Path, plan: Plan, formats: Sequence[str]) -> None:
     from .memo import write_plan_memo
-    from .plan_figures import render_figures
+    from .plan_figures import start_rendering
 
     if hasattr(plan, "write_into"):  # programs, interim looks, portfolios write their own files
         plan.write_into(tmp, tuple(formats))
@@ -644,6 +644,8 @@ def _write_files(tmp: Path, plan: Plan, formats: Sequence[str]) -> None:
         _write_model_files(tmp, plan, formats)
         return
     ds, answers = plan.results, plan.sample_sizes
+    formats_drawn = tuple(dict.fromkeys(("png", *formats)))
+    finish_figures = start_rendering(plan, formats_drawn)  # drawn while the tables are written
     write_results_csv(ds, tmp / "results.csv")
     write_sample_sizes_csv(answers, tmp / "sample_sizes.csv")
     if "sensitivity_assurance" in ds:
@@ -672,7 +674,7 @@ def _write_files(tmp: Path, plan: Plan, formats: Sequence[str]) -> None:
         (tmp / "design_as_given.toml").write_bytes(plan.source.content)
     figures = tmp / "figures"
     figures.mkdir()
-    images = render_figures(plan, tuple(dict.fromkeys(("png", *formats))))
+    images = finish_figures()
     rendered = {}
     for name, by_format in images.items():
         rendered[name] = by_format["png"]  # the memo embeds the PNG in any case

@@ -6,8 +6,10 @@ figures. Drawing is the slowest part of writing a plan's folder (each figure is 
 its labels placed and rendered), and the figures are independent, so :func:`render_figures`
 draws them in forked worker processes where the platform forks (each worker reads the plan
 it inherited; only the finished image bytes come back), and one after another elsewhere.
-The command line starts its workers before computing (:func:`figure_workers_started_early`),
-so that they load matplotlib on the other cores meanwhile, and sends them the finished plan.
+The command line starts one worker before computing (:func:`figure_workers_started_early`),
+so that it loads matplotlib on another core meanwhile, and sends it the finished plan
+(:func:`start_rendering`); that worker forks the further drawers from its warm state, and
+the command writes its tables while the figures are drawn.
 
 Examples
 --------
@@ -35,7 +37,7 @@ from typing import TYPE_CHECKING, Any
 if TYPE_CHECKING:  # pragma: no cover
     from matplotlib.figure import Figure
 
-__all__ = ["figure_makers", "figure_workers_started_early", "render_figures"]
+__all__ = ["figure_makers", "figure_workers_started_early", "render_figures", "start_rendering"]
 
 
 def figure_makers(plan: Any) -> dict[str, Callable[[], Figure]]:
@@ -122,29 +124,120 @@ def _prepare_early_worker() -> None:
     _warm_up()
 
 
-def _draw_sent(job: tuple[Any, bytes, tuple[str, tuple[str, ...]]]) -> dict[str, bytes]:
-    """Draw one figure of a plan sent as pickled bytes (unpickled once per worker)."""
+def _die_with_parent() -> None:
+    """Linux: end this process when its parent ends (a drawer forked by an early worker
+    that is itself ended mid-drawing leaves nothing running). Elsewhere, nothing."""
+    try:
+        import ctypes
+
+        ctypes.CDLL(None, use_errno=True).prctl(1, 9)  # PR_SET_PDEATHSIG, SIGKILL
+    except Exception:  # noqa: BLE001 - no prctl: the drawer ends when its share is drawn
+        pass
+
+
+def _take_jobs(jobs: Sequence[tuple[str, tuple[str, ...]]], lock: Any, taken: Any,
+               ) -> list[tuple[int, dict[str, bytes]]]:
+    """Draw figures from the shared list until none is left: (index, bytes per format)."""
+    out = []
+    while True:
+        with lock:
+            i = taken.value
+            taken.value = i + 1
+        if i >= len(jobs):
+            return out
+        out.append((i, _draw(jobs[i])))
+
+
+def _read_all(fd: int) -> bytes:
+    chunks = []
+    while chunk := os.read(fd, 1 << 20):
+        chunks.append(chunk)
+    return b"".join(chunks)
+
+
+def _draw_in_forks(jobs: Sequence[tuple[str, tuple[str, ...]]], drawers: int,
+                   ) -> list[dict[str, bytes]]:
+    """Draw ``jobs`` here and in ``drawers - 1`` processes forked from here.
+
+    Called in an early worker, which has matplotlib loaded and warmed up: a fork of it
+    draws at once, where a fresh worker would first spend about as long as one figure
+    takes loading matplotlib. Each process takes the next undrawn figure until none is
+    left; the forked ones send theirs back through a pipe."""
+    if drawers <= 1 or len(jobs) <= 1:
+        return [_draw(job) for job in jobs]
+    ctx = multiprocessing.get_context("fork")
+    lock, taken = ctx.Lock(), ctx.RawValue("i", 0)
+    children = []
+    for _ in range(min(drawers, len(jobs)) - 1):
+        read_end, write_end = os.pipe()
+        pid = os.fork()
+        if pid == 0:  # pragma: no cover - runs in the forked drawer (coverage sees no exit)
+            os.close(read_end)
+            try:
+                _die_with_parent()
+                message = pickle.dumps(("drawn", _take_jobs(jobs, lock, taken)))
+            except BaseException as exc:  # noqa: BLE001 - reported to the parent
+                try:
+                    message = pickle.dumps(("failed", exc))
+                except Exception:  # noqa: BLE001 - an exception that does not pickle
+                    message = pickle.dumps(("failed", RuntimeError(repr(exc))))
+            try:
+                with os.fdopen(write_end, "wb") as pipe:
+                    pipe.write(message)
+            finally:
+                os._exit(0)
+        os.close(write_end)
+        children.append((pid, read_end))
+    failure: BaseException | None = None
+    try:
+        drawn = dict(_take_jobs(jobs, lock, taken))
+    except Exception as exc:  # noqa: BLE001 - raised once the drawers are collected
+        drawn, failure = {}, exc
+    for pid, read_end in children:
+        try:
+            message = _read_all(read_end)
+        finally:
+            os.close(read_end)
+            os.waitpid(pid, 0)
+        if not message:
+            failure = failure or RuntimeError("a figure drawer ended without its figures")
+            continue
+        kind, value = pickle.loads(message)
+        if kind == "failed":
+            failure = failure or value
+        else:
+            drawn.update(value)
+    if failure is not None:
+        raise failure
+    return [drawn[i] for i in range(len(jobs))]
+
+
+def _draw_sent(job: tuple[Any, bytes, list[tuple[str, tuple[str, ...]]], int],
+               ) -> list[dict[str, bytes]]:
+    """Draw every figure of a plan sent as pickled bytes, in ``drawers`` processes."""
     global _SENT, _PLAN, _MAKERS
 
-    token, payload, named = job
+    token, payload, jobs, drawers = job
     if _SENT[0] != token:
         plan, makers = pickle.loads(payload)
         _SENT = (token, plan, makers)
     _PLAN, _MAKERS = _SENT[1], _SENT[2]
-    return _draw(named)
+    return _draw_in_forks(jobs, drawers)
 
 
 @contextlib.contextmanager
 def figure_workers_started_early() -> Iterator[None]:
-    """Start the figure workers now, so they load matplotlib while the plan is computed.
+    """Start a figure worker now, so it loads matplotlib while the plan is computed.
 
     Loading matplotlib and its fonts takes about as long as computing a closed-form plan;
-    workers forked at the start of a command do it on the other cores meanwhile, and
-    :func:`render_figures` then sends them the finished plan (pickled) instead of forking
-    new workers from a process that would first have to load matplotlib itself. Within the
-    block, :func:`render_figures` with ``workers=None`` uses these workers; on leaving it
-    they are ended. Where the platform cannot fork, or with one core, nothing is started
-    and figures are drawn as without it. The bytes of every figure are the same either way.
+    one worker forked at the start of a command does it on another core meanwhile. When
+    the plan is finished, :func:`start_rendering` sends it (pickled) to that worker, which
+    forks one drawer per further core from its warm state, so no process loads matplotlib
+    twice and none competes with the computation for the cores. Within the block,
+    :func:`render_figures` and :func:`start_rendering` with ``workers=None`` use this
+    worker; on leaving it, it is ended. Where the platform cannot fork, or with one core,
+    nothing is started and figures are drawn as without it. The bytes of every figure are
+    the same either way.
 
     Examples
     --------
@@ -153,11 +246,10 @@ def figure_workers_started_early() -> Iterator[None]:
     """
     global _EARLY_POOL
 
-    count = _workers(4)
-    if count == 1 or _EARLY_POOL is not None:
+    if _workers(4) == 1 or _EARLY_POOL is not None:
         yield
         return
-    pool = multiprocessing.get_context("fork").Pool(count, initializer=_prepare_early_worker)
+    pool = multiprocessing.get_context("fork").Pool(1, initializer=_prepare_early_worker)
     _EARLY_POOL = pool
     try:
         yield
@@ -200,8 +292,29 @@ def render_figures(plan: Any, formats: Sequence[str], *, workers: int | None = N
     dict
         In the order of :func:`figure_makers`.
     """
-    global _PLAN, _MAKERS
+    return start_rendering(plan, formats, workers=workers, makers=makers)()
 
+
+def start_rendering(plan: Any, formats: Sequence[str], *, workers: int | None = None,
+                    makers: Callable[[Any], dict[str, Callable[[], Figure]]] | None = None,
+                    ) -> Callable[[], dict[str, dict[str, bytes]]]:
+    """Start drawing the figures of ``plan``; the returned function waits for the bytes.
+
+    With a worker started by :func:`figure_workers_started_early` (and ``workers=None``),
+    the figures are drawn there while the caller goes on (writing the tables, say);
+    otherwise they are drawn when the returned function is called. Parameters and result
+    as :func:`render_figures`.
+
+    Examples
+    --------
+    >>> import assurance as asr
+    >>> design = asr.TrialDesign(asr.ContinuousEndpoint(sigma=10.0, analysis="z"),
+    ...                          asr.Normal(4.0, 2.0))
+    >>> p = asr.plan(design, sizes=[100, 200], sensitivity=False)
+    >>> finish = start_rendering(p, ("png",))
+    >>> sorted(finish())
+    ['power_and_assurance', 'prior']
+    """
     from . import figures  # noqa: F401 - imported once here, inherited by the workers
 
     makers = figure_makers if makers is None else makers
@@ -214,13 +327,27 @@ def render_figures(plan: Any, formats: Sequence[str], *, workers: int | None = N
             payload = None
         if payload is not None:
             token = (os.getpid(), next(_TOKENS))
-            try:
-                drawn = _EARLY_POOL.map(_draw_sent, [(token, payload, job) for job in jobs],
-                                        chunksize=1)
-            except Exception:  # noqa: BLE001 - e.g. a worker that cannot unpickle the plan:
-                pass           # draw as without early workers (an error there is the user's)
-            else:
+            pending = _EARLY_POOL.apply_async(_draw_sent,
+                                              ((token, payload, jobs, _workers(len(jobs))),))
+
+            def finish() -> dict[str, dict[str, bytes]]:
+                try:
+                    drawn = pending.get()
+                except Exception:  # noqa: BLE001 - e.g. a worker that cannot unpickle the
+                    # plan: draw as without the early worker (an error there is the user's)
+                    return _render_here(plan, makers, names, jobs, None)
                 return dict(zip(names, drawn, strict=True))
+
+            return finish
+    return lambda: _render_here(plan, makers, names, jobs, workers)
+
+
+def _render_here(plan: Any, makers: Any, names: list[str],
+                 jobs: list[tuple[str, tuple[str, ...]]], workers: int | None,
+                 ) -> dict[str, dict[str, bytes]]:
+    """Draw in this process, or in workers forked from it."""
+    global _PLAN, _MAKERS
+
     count = _workers(len(jobs)) if workers is None else max(1, min(workers, len(jobs)))
     _PLAN, _MAKERS = plan, makers
     try:
