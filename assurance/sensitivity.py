@@ -295,8 +295,6 @@ def _beta_with(prior: Any, centre: float, spread: float) -> Any | None:
     """A BetaRates prior with the same control arm whose effect has this mean and SD, found
     by changing the treatment rate's beta (its mean and its size ``a + b``); None when no
     beta gives it (the control arm alone is already wider, say)."""
-    from scipy import optimize, special
-
     from .compute.binary_exact import RateArm
 
     cls = type(prior)
@@ -304,6 +302,10 @@ def _beta_with(prior: Any, centre: float, spread: float) -> Any | None:
     arm = prior.treatment_arm
     if arm.fixed:
         return None
+    if prior.scale == "difference":
+        return _beta_with_difference(prior, centre, spread)
+    from scipy import optimize, special
+
     mu0, size0 = arm.a / (arm.a + arm.b), arm.a + arm.b
 
     def shape(x: np.ndarray) -> tuple[float, float]:
@@ -332,6 +334,25 @@ def _beta_with(prior: Any, centre: float, spread: float) -> Any | None:
         return None
     try:
         return make(sol.x)
+    except AssuranceInputError:
+        return None
+
+
+def _beta_with_difference(prior: Any, centre: float, spread: float) -> Any | None:
+    """:func:`_beta_with` on the difference scale, where it has a closed form: the effect's
+    mean and variance are the treatment beta's minus (plus) the control's, and a beta with
+    mean ``m`` and variance ``v`` has ``a + b = m (1 - m) / v - 1``."""
+    cls = type(prior)
+    template = cls(prior.control, (1.0, 1.0), prior.scale)
+    m_c, v_c = template._moments(template.control_arm)
+    m_t, v_t = m_c + centre, spread**2 - v_c
+    if not (0.0 < m_t < 1.0 and v_t > 0.0):
+        return None
+    size = m_t * (1.0 - m_t) / v_t - 1.0
+    if not 0.0 < size < math.inf:
+        return None
+    try:
+        return cls(prior.control, (m_t * size, (1.0 - m_t) * size), prior.scale)
     except AssuranceInputError:
         return None
 

@@ -68,3 +68,19 @@ def test_the_command_line_writes_a_plan_without_loading_dask(tmp_path):
     # nor scipy.stats (two t quantiles) or scipy.optimize (one root in the sensitivity
     # analysis): together about a second of importing for a closed-form plan
     assert out == "0 False False False"
+
+
+@pytest.mark.parametrize("case", ["event_driven", "weekly_injection", "response_rate"])
+def test_closed_form_and_exact_plans_of_other_endpoints_load_neither_scipy_stats_nor_optimize(
+        case):
+    # a time-to-event plan (normal quantiles, one event-time root), a plan with an uncertain
+    # SD (the inverse gamma's functions) and an exact binary plan (the beta that gives the
+    # sensitivity map's mean and SD, closed form on the difference scale)
+    out = _run(f"""
+        import sys
+        from assurance.design_file import read_design_file
+        from assurance.planner import Plan
+        Plan.from_spec(read_design_file({str(CASE.parents[1] / case / "design.toml")!r}))
+        print("scipy.stats" in sys.modules, "scipy.optimize" in sys.modules)
+    """)
+    assert out == "False False"

@@ -482,3 +482,29 @@ def test_mixture_weights_in_float32_are_accepted_and_normalised():
 def test_a_uniform_of_overflowing_width_is_refused():
     with pytest.raises(AssuranceInputError, match="'upper' parameter of Uniform .* finite width"):
         Uniform(-1e308, 1e308)
+
+
+# ------------------------------------------------------------------------------------------
+# the SD prior's inverse gamma, written out (no scipy.stats at run time)
+# ------------------------------------------------------------------------------------------
+@pytest.mark.parametrize(("df", "scale"), [(0.7, 2.0), (3.0, 8.0), (30.0, 8.0), (400.0, 0.05)])
+def test_sd_prior_functions_equal_scipy_invgamma(df, scale):
+    # sigma^2 ~ df * scale^2 / chi2_df = InvGamma(df / 2, scale = df * scale^2 / 2):
+    # reference scipy.stats.invgamma (general-purpose library), to a few units in the last
+
+    from scipy import stats
+
+    prior = ScaledInvChiSquare(df, scale)
+    var = stats.invgamma(df / 2, scale=df * scale**2 / 2)
+    x = scale * np.array([0.05, 0.3, 0.8, 1.0, 1.2, 2.5, 10.0])
+    np.testing.assert_allclose(prior.cdf(x), var.cdf(x**2), rtol=1e-13, atol=1e-300)
+    np.testing.assert_allclose(prior.pdf(x), var.pdf(x**2) * 2 * x, rtol=1e-12, atol=1e-300)
+    for q in (1e-9, 0.025, 0.5, 0.975, 1 - 1e-9):
+        assert prior.ppf(q) == pytest.approx(math.sqrt(var.ppf(q)), rel=1e-13)
+    np.testing.assert_allclose(prior.sample(500, seed=11),
+                               np.sqrt(var.rvs(size=500, random_state=np.random.default_rng(11))),
+                               rtol=1e-13)
+    assert prior.pdf(np.array([-1.0, 0.0])).tolist() == [0.0, 0.0]
+    assert prior.cdf(np.array([-1.0, 0.0])).tolist() == [0.0, 0.0]
+    if df > 2:
+        assert prior.var() == pytest.approx(var.mean() - prior.mean() ** 2, rel=1e-12)

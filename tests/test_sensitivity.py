@@ -214,6 +214,45 @@ def test_beta_rates_move_the_treatment_beta():
     assert rows["spread_x0.5"].control == prior.control
 
 
+@pytest.mark.parametrize("scale", ["difference", "risk_ratio", "odds_ratio"])
+def test_beta_rates_map_points_have_the_mean_and_sd_asked_for(scale):
+    # the treatment beta is found in closed form on the difference scale (mean and variance
+    # of a beta: common practice) and by a root finder on the log scales; either way the
+    # prior built has the effect mean and SD asked for, by its own moments
+    from assurance.endpoints.binary import BetaRates
+    from assurance.sensitivity import _beta_with
+
+    prior = BetaRates((36.0, 84.0), (9.0, 11.0), scale)
+    m, s = prior.mean(), prior.sd()
+    found = 0
+    for shift in (-1.0, 0.0, 0.5, 2.0):
+        for factor in (0.3, 0.6, 1.0, 1.5, 3.0):
+            moved = _beta_with(prior, m + shift * s, factor * s)
+            if moved is None:
+                continue
+            found += 1
+            assert moved.control == prior.control
+            assert moved.mean() == pytest.approx(m + shift * s, abs=1e-9 * s)
+            assert moved.sd() == pytest.approx(factor * s, rel=1e-9)
+    assert found >= 12
+
+
+def test_beta_rates_wide_map_points_exist_when_a_beta_gives_them():
+    # difference scale: a treatment beta with mean 0.45 and variance 0.098 - 0.0017 exists
+    # (a + b = 0.45 * 0.55 / 0.0962 - 1 = 1.57); the map must not leave the point empty
+    from assurance.endpoints.binary import BetaRates
+    from assurance.sensitivity import _beta_with
+
+    prior = BetaRates((36.0, 84.0), (9.0, 11.0), "difference")
+    moved = _beta_with(prior, 0.15, 0.313005)
+    assert moved is not None
+    arm = moved.treatment_arm
+    assert arm.a + arm.b == pytest.approx(0.45 * 0.55 / (0.313005**2 - 0.3 * 0.7 / 121) - 1,
+                                          rel=1e-12)
+    # no beta has a variance at or above mean * (1 - mean): None, not an error
+    assert _beta_with(prior, 0.15, 0.6) is None
+
+
 def test_other_families_move_by_an_affine_map():
     for prior in (asr.StudentT(5, 2.0, 1.0), asr.Uniform(0.0, 4.0),
                   asr.TruncatedNormal(2.0, 1.5, lower=-1.0),

@@ -26,8 +26,9 @@ from dataclasses import dataclass
 from typing import Any, Literal
 
 import numpy as np
-from scipy import optimize, special, stats
+from scipy import special
 
+from .._roots import brent_root
 from .._validation import check_choice, check_int, check_real, check_real_array
 from ..errors import AssuranceInputError
 from ..priors.families import Normal, PointMass, Prior
@@ -97,7 +98,7 @@ def events_needed(hazard_ratio: float, *, alpha: float = 0.025, power: float = 0
     power = check_real(power, "power", owner, low=0, high=1, low_open=True, high_open=True)
     r = check_real(allocation, "allocation", owner, low=0, low_open=True)
     p = r / (1.0 + r)
-    z = stats.norm.isf(alpha) + stats.norm.isf(1.0 - power)
+    z = -special.ndtri(alpha) - special.ndtri(1.0 - power)  # scipy.stats.norm.isf's arithmetic
     return float(z * z / (p * (1.0 - p) * math.log(hr) ** 2))
 
 
@@ -600,8 +601,7 @@ class SurvivalEndpoint(Endpoint):
         high = max(self.accrual_time, 1.0)
         while expected(high) < target:
             high *= 2.0
-        return float(optimize.brentq(lambda t: expected(t) - target, 1e-12, high,
-                                     xtol=1e-10, rtol=1e-12))
+        return brent_root(lambda t: expected(t) - target, 1e-12, high, xtol=1e-10, rtol=1e-12)
 
     def _eventual_events(self, n_t: int, n_c: int, hr: float) -> float:
         long = np.array([np.inf])
