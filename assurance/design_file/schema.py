@@ -66,7 +66,7 @@ class Table(BaseModel):
     """A table of a design file: known keys only, strict types, finite numbers."""
 
     model_config = ConfigDict(extra="forbid", strict=True, allow_inf_nan=False,
-                              populate_by_name=True, frozen=True)
+                              populate_by_name=True, frozen=True, defer_build=True)
 
 
 def key(default: Any = ..., help: str = "", *, scale: str | None = None,
