@@ -161,6 +161,19 @@ def test_a_label_that_fits_nowhere_becomes_a_footnote():
     assert any("[1] crowded out" in t.get_text() for t in ax.texts)
 
 
+def test_a_footnoted_label_of_several_sizes_keeps_them_apart():
+    # a label naming two sizes, footnoted, reads "n = 280 (...); n = 288 (...)", not one
+    # run-on line
+    ax = _simple_axes()
+    xs = np.linspace(*ax.get_xlim(), 60)
+    for y in np.linspace(0.02, 0.98, 60):
+        ax.plot(xs, np.full_like(xs, y), marker="s", markersize=9, linestyle="none")
+    text = "n = 280 (classical power 0.9)\nn = 288 (conditional assurance 0.9)"
+    place_labels(ax, [Label(text, (200, 0.5), around(), note=text.replace("\n", "; "))])
+    assert any("[1] n = 280 (classical power 0.9); n = 288 (conditional assurance 0.9)"
+               in t.get_text() for t in ax.texts)
+
+
 # ------------------------------------------------------------------------------------------
 # the new figures on synthetic datasets (names as the sensitivity and zone results use)
 # ------------------------------------------------------------------------------------------

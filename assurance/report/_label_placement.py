@@ -50,7 +50,8 @@ class Label:
     example a blend of axes fraction and data for a label at the end of a horizontal line).
     ``candidates`` are tried in order; ``style`` goes to ``Axes.annotate`` (font size,
     colour, box). ``leader`` draws a thin line from the text to the anchor for offsets
-    farther than ``leader_from`` points.
+    farther than ``leader_from`` points. ``note`` is the text of its footnote when it fits
+    nowhere (by default the text on one line).
     """
 
     text: str
@@ -60,6 +61,7 @@ class Label:
     style: dict[str, Any] = field(default_factory=dict)
     leader_from: float = 30.0
     footnote: bool = True
+    note: str | None = None
     artist: Annotation | None = None
     placed: bool = False
 
@@ -433,7 +435,7 @@ def _footnote_tag(ax: Axes, label: Label, number: int, renderer: Any,
 
 def _footnote_text(ax: Axes, labels: Sequence[Label]) -> Any:
     """The footnoted labels' texts, numbered, under the axes' x label."""
-    lines = [f"[{number}] " + " ".join(label.text.split())
+    lines = [f"[{number}] " + (label.note or " ".join(label.text.split()))
              for number, label in enumerate(labels, start=1)]
     return ax.annotate("\n".join(lines), (0.0, 0.0),
                        xycoords=("axes fraction", ax.xaxis.label), xytext=(0, -4),

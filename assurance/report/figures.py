@@ -774,7 +774,10 @@ def plot_power_and_assurance(
             text = text.replace(" (", "\n(", 1)
         first = group[0]
         labels.append(Label(text, (first.n_total, first.achieved), around(),
-                            style={"fontsize": 8.5, "bbox": _TEXT_BOX}))
+                            style={"fontsize": 8.5, "bbox": _TEXT_BOX},
+                            note="; ".join(" ".join(line.split())
+                                           for line in text.split("\n")) if len(group) > 1
+                            else None))
 
     ax.set_ylim(0.0, 1.0)
     _size_axis(ax, ds, lo, hi)
