@@ -12,6 +12,7 @@ pass).
 from __future__ import annotations
 
 import math
+import warnings
 
 import numpy as np
 import pytest
@@ -506,5 +507,10 @@ def test_sd_prior_functions_equal_scipy_invgamma(df, scale):
                                rtol=1e-13)
     assert prior.pdf(np.array([-1.0, 0.0])).tolist() == [0.0, 0.0]
     assert prior.cdf(np.array([-1.0, 0.0])).tolist() == [0.0, 0.0]
+    # squares beyond the range of doubles: density 0, cdf 0 and 1, no warning
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        assert prior.pdf(np.array([1e-200, 1e200])).tolist() == [0.0, 0.0]
+        assert prior.cdf(np.array([1e-200, 1e200])).tolist() == [0.0, 1.0]
     if df > 2:
         assert prior.var() == pytest.approx(var.mean() - prior.mean() ** 2, rel=1e-12)

@@ -889,7 +889,8 @@ class ScaledInvChiSquare(_Continuous):
 
     def _var_cdf(self, v: np.ndarray) -> np.ndarray:
         a, b = self._ab
-        return special.gammaincc(a, 1.0 / (v / b))
+        with np.errstate(divide="ignore", over="ignore"):  # v / b of 0 or inf: cdf 0 or 1
+            return special.gammaincc(a, 1.0 / (v / b))
 
     def _var_ppf(self, q: Any) -> Any:
         a, b = self._ab
@@ -899,13 +900,16 @@ class ScaledInvChiSquare(_Continuous):
         x = np.asarray(x, dtype=float)
         safe = np.where(x > 0, x, 1.0)
         a, b = self._ab
-        u = safe**2 / b
-        var_pdf = np.exp(-(a + 1) * np.log(u) - special.gammaln(a) - 1.0 / u) / b
-        return np.where(x > 0, var_pdf * 2 * safe, 0.0)
+        with np.errstate(divide="ignore", over="ignore", under="ignore", invalid="ignore"):
+            u = safe**2 / b
+            var_pdf = np.exp(-(a + 1) * np.log(u) - special.gammaln(a) - 1.0 / u) / b
+        # where the square leaves the range of doubles the density is 0 (as scipy's)
+        return np.where((x > 0) & (u > 0) & (u < math.inf), var_pdf * 2 * safe, 0.0)
 
     def cdf(self, x: Any) -> np.ndarray:
         x = np.asarray(x, dtype=float)
-        return np.where(x > 0, self._var_cdf(np.where(x > 0, x, 1.0) ** 2), 0.0)
+        with np.errstate(over="ignore", under="ignore"):  # a square beyond doubles: 1 or 0
+            return np.where(x > 0, self._var_cdf(np.where(x > 0, x, 1.0) ** 2), 0.0)
 
     def sf(self, x: Any) -> np.ndarray:
         return 1.0 - self.cdf(x)
