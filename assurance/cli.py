@@ -341,10 +341,13 @@ def _other(args: argparse.Namespace) -> int:
     module, name = _OTHER_CLASSES[args.command]
 
     from .report.output_folder import claim_output_folder, write_outputs
+    from .report.plan_figures import figure_workers_started_early
 
     claim = None
     try:
-        with claim_output_folder(out, overwrite=args.overwrite, keep=[path]) as claim:
+        # as for a plan: a figure worker loads matplotlib while the results are computed
+        with claim_output_folder(out, overwrite=args.overwrite, keep=[path]) as claim, \
+                figure_workers_started_early():
             progress(f"reading {path}")
             kind = getattr(importlib.import_module(f"assurance.{module}"), name)
             options = {}

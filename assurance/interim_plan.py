@@ -150,11 +150,14 @@ class InterimPlan:
 
     def write_into(self, tmp: Path, formats: tuple[str, ...]) -> None:
         """Write this look's files into the staging folder ``tmp`` (see :meth:`write`)."""
-        from .report.figures import figure_bytes
-        from .report.interim_figures import interim_figure_makers
+        from .report.interim_figures import interim_plan_figure_makers
         from .report.interim_memo import write_interim_memo
+        from .report.plan_figures import start_rendering
 
         tmp = Path(tmp)
+        # drawn (on other cores where it can) while the tables are written
+        finish_figures = start_rendering(self, tuple(dict.fromkeys(("png", *formats))),
+                                         makers=interim_plan_figure_makers)
         self._write_results(tmp / "interim_results.csv")
         self._write_operating(tmp / "operating_characteristics.csv")
         self._write_curve(tmp / "operating_by_effect.csv")
@@ -165,14 +168,10 @@ class InterimPlan:
         figures = tmp / "figures"
         figures.mkdir()
         rendered = {}
-        for name, draw in interim_figure_makers().items():
-            ax = draw(self.look)
-            for fmt in dict.fromkeys(("png", *formats)):
-                data = figure_bytes(ax.figure, fmt)
-                if fmt == "png":
-                    rendered[name] = data
-                if fmt in formats:
-                    (figures / f"{name}.{fmt}").write_bytes(data)
+        for name, by_format in finish_figures().items():
+            rendered[name] = by_format["png"]
+            for fmt in formats:
+                (figures / f"{name}.{fmt}").write_bytes(by_format[fmt])
         write_interim_memo(self, tmp / "memo.html", rendered=rendered)
 
     def results_rows(self) -> list[tuple[str, Any, str]]:

@@ -244,3 +244,16 @@ def test_a_deep_file_path_wraps_instead_of_widening_the_page(tmp_path):
     opened = open_memo(interim_memo_html(plan, date="2026-01-05", versions="test"),
                        tmp_path)
     assert opened.overflow <= 0
+
+
+def test_written_figures_are_the_look_drawn_directly(written):
+    # the folder's figures are drawn in worker processes where the platform forks; they
+    # must be the bytes of drawing the look's figures here
+    from assurance.report.figures import figure_bytes
+    from assurance.report.interim_figures import interim_figure_makers
+
+    plan, out = written
+    for name, draw in interim_figure_makers().items():
+        fig = draw(plan.look).figure
+        assert (out / "figures" / f"{name}.png").read_bytes() == figure_bytes(fig, "png")
+        assert (out / "figures" / f"{name}.svg").read_bytes() == figure_bytes(fig, "svg")

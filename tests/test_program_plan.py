@@ -403,3 +403,11 @@ def test_memo_says_which_nuisance_priors_are_held_at_planning_values():
     text = " ".join(" ".join(_parse(plan.memo_html(figures=False, versions="-")).text).split())
     assert "priors on the control rate (phase 2), the control median (phase 3) are not " \
            "averaged over" in text
+
+
+def test_written_figures_are_the_plan_figures_drawn_directly(case, written):
+    # drawn in worker processes where the platform forks: the same bytes as here
+    from assurance.report.figures import figure_bytes
+
+    for name, fig in case.figures().items():
+        assert (written / "figures" / f"{name}.png").read_bytes() == figure_bytes(fig, "png")

@@ -27,7 +27,8 @@ from .figures import (
 if TYPE_CHECKING:  # pragma: no cover
     from matplotlib.axes import Axes
 
-__all__ = ["plot_interim_predictive", "plot_interim_operating", "interim_figure_makers"]
+__all__ = ["plot_interim_predictive", "plot_interim_operating", "interim_figure_makers",
+           "interim_plan_figure_makers"]
 
 _PRIOR_WORDS = {"analysis": "analysis prior", "design": "design prior"}
 
@@ -162,3 +163,10 @@ def interim_figure_makers() -> dict[str, Any]:
     """Figure name -> drawing function of a look, in the memo's order."""
     return {"interim_predictive": plot_interim_predictive,
             "interim_operating": plot_interim_operating}
+
+
+def interim_plan_figure_makers(plan: Any) -> dict[str, Any]:
+    """Figure name -> a function drawing that figure of an interim plan's look (the list
+    :func:`~assurance.report.plan_figures.start_rendering` draws from)."""
+    return {name: (lambda draw=draw: draw(plan.look).figure)
+            for name, draw in interim_figure_makers().items()}
