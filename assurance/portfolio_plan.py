@@ -311,11 +311,13 @@ class PortfolioPlan:
     def write_into(self, tmp: Path, formats: tuple[str, ...]) -> None:
         """Write every file of the output folder into the staging folder ``tmp`` (called by
         :func:`assurance.report.output_folder.write_outputs`)."""
-        from .report.plan_figures import render_figures
+        from .report.plan_figures import start_rendering
         from .report.portfolio_figures import portfolio_figure_makers
         from .report.portfolio_memo import write_portfolio_memo
 
         tmp = Path(tmp)
+        finish_figures = start_rendering(self, tuple(dict.fromkeys(("png", *formats))),
+                                         makers=portfolio_figure_makers)  # while tables go
         _write_tables(self, tmp)
         self.results.to_netcdf(tmp / "results.nc", engine="scipy")
         if self.source is not None:
@@ -328,8 +330,7 @@ class PortfolioPlan:
                 (copies / f"{i:02d}{part}-{Path(path).name}").write_bytes(content)
         figures = tmp / "figures"
         figures.mkdir()
-        images = render_figures(self, tuple(dict.fromkeys(("png", *formats))),
-                                makers=portfolio_figure_makers)
+        images = finish_figures()
         rendered = {}
         for name, by_format in images.items():
             rendered[name] = by_format["png"]

@@ -687,8 +687,10 @@ def _write_model_files(tmp: Path, plan: Any, formats: Sequence[str]) -> None:
     """The folder of a model plan: the same files, from the simulated results."""
     from .model_figures import model_figure_makers
     from .model_memo import write_model_memo
-    from .plan_figures import render_figures
+    from .plan_figures import start_rendering
 
+    finish_figures = start_rendering(plan, tuple(dict.fromkeys(("png", *formats))),
+                                     makers=model_figure_makers)  # while the tables are written
     ds = plan.results
     per_n = [name for name, var in ds.data_vars.items() if var.dims == ("n",)]
     with open(tmp / "results.csv", "w", newline="", encoding="utf-8") as fh:
@@ -714,8 +716,7 @@ def _write_model_files(tmp: Path, plan: Any, formats: Sequence[str]) -> None:
         (tmp / "design_as_given.toml").write_bytes(plan.source.content)
     figures = tmp / "figures"
     figures.mkdir()
-    images = render_figures(plan, tuple(dict.fromkeys(("png", *formats))),
-                            makers=model_figure_makers)
+    images = finish_figures()
     rendered = {}
     for name, by_format in images.items():
         rendered[name] = by_format["png"]
