@@ -384,7 +384,7 @@ def test_normal_draws_are_scipys_draws_for_the_same_seed():
         np.testing.assert_array_equal(got, want)
 
 
-def test_a_normal_design_prior_never_imports_scipy_stats():
+def test_normal_student_t_and_sd_priors_never_import_scipy_stats():
     import subprocess
     import sys
 
@@ -395,12 +395,19 @@ def test_a_normal_design_prior_never_imports_scipy_stats():
             "from assurance.design_file.reader import prior_from_table\n"
             "prior_from_table({'family': 'normal', 'mean': 1.0, 'sd': 2.0}, 'design_prior')\n"
             "print('scipy.stats' in sys.modules)\n"
-            "from assurance.priors import StudentT\n"
-            "StudentT(3.0).cdf(0.0)\n"
+            "from assurance.priors import ScaledInvChiSquare, StudentT, TruncatedNormal\n"
+            "t = StudentT(3.0, 1.0, 2.0)\n"
+            "t.cdf(0.0); t.sf(0.0); t.pdf(0.0); t.ppf(0.3); t.sample(5, 1); t.var()\n"
+            "s = ScaledInvChiSquare(10.0, 2.0)\n"
+            "s.cdf(2.0); s.pdf(2.0); s.ppf(0.3); s.sample(5, 1); s.var()\n"
+            "print('scipy.stats' in sys.modules)\n"
+            "TruncatedNormal(0.0, 1.0, 0.0).cdf(1.0)\n"
             "print('scipy.stats' in sys.modules)\n")
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
                          check=True).stdout.split()
-    assert out == ["False", "True"]  # built on first use by a family that needs it
+    # the normal, Student t and SD priors are written out; a family that needs scipy.stats
+    # builds its frozen distribution on first use
+    assert out == ["False", "False", "True"]
 
 
 @pytest.mark.parametrize(("dist", "words"), [
@@ -514,3 +521,37 @@ def test_sd_prior_functions_equal_scipy_invgamma(df, scale):
         assert prior.cdf(np.array([1e-200, 1e200])).tolist() == [0.0, 1.0]
     if df > 2:
         assert prior.var() == pytest.approx(var.mean() - prior.mean() ** 2, rel=1e-12)
+
+
+@pytest.mark.parametrize(("df", "loc", "scale"), [(0.3, 1.0, 1.0), (1.0, 0.0, 1.0),
+                                                  (2.5, -3.0, 0.2), (5.0, 4.0, 3.0),
+                                                  (300.0, 1.0, 10.0)])
+def test_student_t_functions_equal_scipy_t(df, loc, scale):
+    # written out with scipy.stats.t's arithmetic (reference: scipy.stats.t, a
+    # general-purpose library), so equal to rounding; the draws are the same stream
+    prior, ref = StudentT(df, loc, scale), stats.t(df, loc, scale)
+    x = loc + scale * np.array([-1e6, -30.0, -3.0, -0.5, 0.0, 0.1, 2.0, 40.0, 1e8])
+    np.testing.assert_allclose(prior.pdf(x), ref.pdf(x), rtol=1e-14, atol=0)
+    np.testing.assert_allclose(prior.cdf(x), ref.cdf(x), rtol=1e-14, atol=1e-300)
+    np.testing.assert_allclose(prior.sf(x), ref.sf(x), rtol=1e-14, atol=1e-300)
+    for q in (1e-12, 0.01, 0.5, 0.9, 1 - 1e-12):
+        assert prior.ppf(q) == pytest.approx(float(ref.ppf(q)), rel=1e-14, abs=1e-300)
+    np.testing.assert_allclose(prior.sample(200, seed=5),
+                               ref.rvs(size=200, random_state=np.random.default_rng(5)),
+                               rtol=1e-15)
+    assert prior.support() == (-math.inf, math.inf)
+    if df > 2:
+        assert prior.var() == pytest.approx(float(ref.var()), rel=1e-14)
+
+
+@pytest.mark.parametrize("prior", [
+    Normal(1.0, 2.0), StudentT(5, 4.0, 3.0), Uniform(-1.0, 3.0), TruncatedNormal(1.0, 2.0, 0.0),
+    FromScipy(stats.logistic(1.0, 0.5)), FromScipy(stats.gamma(2.0, scale=0.5)).negated(),
+    ScaledInvChiSquare(12.0, 8.0), Mixture([Normal(0.0, 1.0), StudentT(3, 2.0, 1.0)],
+                                           [0.3, 0.7])],
+    ids=lambda p: type(p).__name__)
+def test_quantiles_at_many_levels_equal_one_by_one(prior):
+    # the vectorised quantiles the fixed quadrature rule reads are the scalar ones
+    levels = np.array([1e-15, 1e-9, 1e-3, 0.1, 0.5, 0.9, 0.999, 1 - 1e-9])
+    np.testing.assert_array_equal(prior._ppf_at(levels),
+                                  [prior.ppf(float(q)) for q in levels])

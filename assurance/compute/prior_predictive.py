@@ -339,7 +339,8 @@ def _prior_edges(part: Prior) -> np.ndarray:
         return _EDGES[part]
     except (KeyError, TypeError):
         pass
-    values = [part.ppf(float(p)) for p in _LEVELS]
+    at = getattr(part, "_ppf_at", None)  # one vectorised call where the family has one
+    values = list(at(_LEVELS)) if at is not None else [part.ppf(float(p)) for p in _LEVELS]
     values.extend(part.support())
     edges = np.unique(np.array([v for v in values if math.isfinite(v)], dtype=float))
     try:
