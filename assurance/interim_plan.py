@@ -152,12 +152,12 @@ class InterimPlan:
         """Write this look's files into the staging folder ``tmp`` (see :meth:`write`)."""
         from .report.interim_figures import interim_plan_figure_makers
         from .report.interim_memo import write_interim_memo
-        from .report.plan_figures import start_rendering
+        from .report.plan_figures import start_figure_files
 
         tmp = Path(tmp)
         # drawn (on other cores where it can) while the tables are written
-        finish_figures = start_rendering(self, tuple(dict.fromkeys(("png", *formats))),
-                                         makers=interim_plan_figure_makers)
+        finish_figures = start_figure_files(self, tmp, formats,
+                                            makers=interim_plan_figure_makers)
         self._write_results(tmp / "interim_results.csv")
         self._write_operating(tmp / "operating_characteristics.csv")
         self._write_curve(tmp / "operating_by_effect.csv")
@@ -165,14 +165,7 @@ class InterimPlan:
             (tmp / "interim_as_given.toml").write_bytes(self.source.content)
         if self.design_source is not None:
             (tmp / "design_as_given.toml").write_bytes(self.design_source.content)
-        figures = tmp / "figures"
-        figures.mkdir()
-        rendered = {}
-        for name, by_format in finish_figures().items():
-            rendered[name] = by_format["png"]
-            for fmt in formats:
-                (figures / f"{name}.{fmt}").write_bytes(by_format[fmt])
-        write_interim_memo(self, tmp / "memo.html", rendered=rendered)
+        write_interim_memo(self, tmp / "memo.html", rendered=finish_figures())
 
     def results_rows(self) -> list[tuple[str, Any, str]]:
         """(quantity, value, note) rows of ``interim_results.csv``."""

@@ -311,13 +311,13 @@ class PortfolioPlan:
     def write_into(self, tmp: Path, formats: tuple[str, ...]) -> None:
         """Write every file of the output folder into the staging folder ``tmp`` (called by
         :func:`assurance.report.output_folder.write_outputs`)."""
-        from .report.plan_figures import start_rendering
+        from .report.plan_figures import start_figure_files
         from .report.portfolio_figures import portfolio_figure_makers
         from .report.portfolio_memo import write_portfolio_memo
 
         tmp = Path(tmp)
-        finish_figures = start_rendering(self, tuple(dict.fromkeys(("png", *formats))),
-                                         makers=portfolio_figure_makers)  # while tables go
+        # drawn (on other cores where it can) while the tables are written
+        finish_figures = start_figure_files(self, tmp, formats, makers=portfolio_figure_makers)
         _write_tables(self, tmp)
         self.results.to_netcdf(tmp / "results.nc", engine="scipy")
         if self.source is not None:
@@ -328,15 +328,7 @@ class PortfolioPlan:
                 copies.mkdir(exist_ok=True)
                 part = "" if j == 0 else f"-{j}"
                 (copies / f"{i:02d}{part}-{Path(path).name}").write_bytes(content)
-        figures = tmp / "figures"
-        figures.mkdir()
-        images = finish_figures()
-        rendered = {}
-        for name, by_format in images.items():
-            rendered[name] = by_format["png"]
-            for fmt in formats:
-                (figures / f"{name}.{fmt}").write_bytes(by_format[fmt])
-        write_portfolio_memo(self, tmp / "memo.html", rendered=rendered)
+        write_portfolio_memo(self, tmp / "memo.html", rendered=finish_figures())
 
     def write_memo(self, path: str | os.PathLike[str], *, overwrite: bool = False) -> Path:
         """Write the portfolio memo alone (one self-contained HTML file)."""

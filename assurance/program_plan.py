@@ -270,24 +270,16 @@ class ProgramPlan:
     def write_into(self, tmp: Path, formats: tuple[str, ...]) -> None:
         """Write every output file into the staging folder ``tmp`` (called by
         :func:`~assurance.report.output_folder.write_outputs`)."""
-        from .report.plan_figures import start_rendering
+        from .report.plan_figures import start_figure_files
         from .report.program_figures import program_figure_makers
         from .report.program_memo import write_program_memo
 
         tmp = Path(tmp)
         # drawn (on other cores where it can) while the tables are written
-        finish_figures = start_rendering(self, tuple(dict.fromkeys(("png", *formats))),
-                                         makers=program_figure_makers)
+        finish_figures = start_figure_files(self, tmp, formats, makers=program_figure_makers)
         self._write_csvs(tmp)
         self.results().to_netcdf(tmp / "results.nc", engine="scipy")
-        figures = tmp / "figures"
-        figures.mkdir()
-        rendered = {}
-        for name, by_format in finish_figures().items():
-            rendered[name] = by_format["png"]
-            for fmt in formats:
-                (figures / f"{name}.{fmt}").write_bytes(by_format[fmt])
-        write_program_memo(self, tmp / "memo.html", rendered=rendered)
+        write_program_memo(self, tmp / "memo.html", rendered=finish_figures())
         inputs = tmp / "inputs"
         inputs.mkdir()
         used: set[str] = set()

@@ -295,8 +295,6 @@ def _beta_with(prior: Any, centre: float, spread: float) -> Any | None:
     """A BetaRates prior with the same control arm whose effect has this mean and SD, found
     by changing the treatment rate's beta (its mean and its size ``a + b``); None when no
     beta gives it (the control arm alone is already wider, say)."""
-    from .compute.binary_exact import RateArm
-
     cls = type(prior)
     control = prior.control
     arm = prior.treatment_arm
@@ -305,6 +303,8 @@ def _beta_with(prior: Any, centre: float, spread: float) -> Any | None:
     if prior.scale == "difference":
         return _beta_with_difference(prior, centre, spread)
     from scipy import optimize, special
+
+    from .compute.binary_exact import RateArm
 
     mu0, size0 = arm.a / (arm.a + arm.b), arm.a + arm.b
 
@@ -317,14 +317,13 @@ def _beta_with(prior: Any, centre: float, spread: float) -> Any | None:
 
     # the root finder's trial points need only the effect's mean and SD: the closed-form
     # moments of BetaRates, without building (and checking) a prior at each point
-    template = cls(control, (1.0, 1.0), prior.scale)
-    m_c, v_c = template._moments(template.control_arm)
+    m_c, v_c = prior._moments(prior.control_arm)
 
     def gap(x: np.ndarray) -> np.ndarray:
         a, b = shape(x)
         if not (0.0 < a < math.inf and 0.0 < b < math.inf):  # no such beta: far away
             return np.array([1e3, 1e3])
-        m_t, v_t = template._moments(RateArm.beta(a, b))
+        m_t, v_t = prior._moments(RateArm.beta(a, b))
         return np.array([(m_t - m_c - centre) / spread,
                          math.log(math.sqrt(v_t + v_c) / spread)])
 
@@ -343,8 +342,7 @@ def _beta_with_difference(prior: Any, centre: float, spread: float) -> Any | Non
     mean and variance are the treatment beta's minus (plus) the control's, and a beta with
     mean ``m`` and variance ``v`` has ``a + b = m (1 - m) / v - 1``."""
     cls = type(prior)
-    template = cls(prior.control, (1.0, 1.0), prior.scale)
-    m_c, v_c = template._moments(template.control_arm)
+    m_c, v_c = prior._moments(prior.control_arm)
     m_t, v_t = m_c + centre, spread**2 - v_c
     if not (0.0 < m_t < 1.0 and v_t > 0.0):
         return None

@@ -635,7 +635,7 @@ def _inputs_of(plan: Any) -> list[Path]:
 
 def _write_files(tmp: Path, plan: Plan, formats: Sequence[str]) -> None:
     from .memo import write_plan_memo
-    from .plan_figures import start_rendering
+    from .plan_figures import start_figure_files
 
     if hasattr(plan, "write_into"):  # programs, interim looks, portfolios write their own files
         plan.write_into(tmp, tuple(formats))
@@ -644,8 +644,7 @@ def _write_files(tmp: Path, plan: Plan, formats: Sequence[str]) -> None:
         _write_model_files(tmp, plan, formats)
         return
     ds, answers = plan.results, plan.sample_sizes
-    formats_drawn = tuple(dict.fromkeys(("png", *formats)))
-    finish_figures = start_rendering(plan, formats_drawn)  # drawn while the tables are written
+    finish_figures = start_figure_files(plan, tmp, formats)  # drawn while tables are written
     write_results_csv(ds, tmp / "results.csv")
     write_sample_sizes_csv(answers, tmp / "sample_sizes.csv")
     if "sensitivity_assurance" in ds:
@@ -672,25 +671,17 @@ def _write_files(tmp: Path, plan: Plan, formats: Sequence[str]) -> None:
         (tmp / "design.toml").write_text(record, encoding="utf-8")
     if plan.source is not None:
         (tmp / "design_as_given.toml").write_bytes(plan.source.content)
-    figures = tmp / "figures"
-    figures.mkdir()
-    images = finish_figures()
-    rendered = {}
-    for name, by_format in images.items():
-        rendered[name] = by_format["png"]  # the memo embeds the PNG in any case
-        for fmt in formats:
-            (figures / f"{name}.{fmt}").write_bytes(by_format[fmt])
-    write_plan_memo(plan, tmp / "memo.html", rendered=rendered, design_record=record)
+    write_plan_memo(plan, tmp / "memo.html", rendered=finish_figures(), design_record=record)
 
 
 def _write_model_files(tmp: Path, plan: Any, formats: Sequence[str]) -> None:
     """The folder of a model plan: the same files, from the simulated results."""
     from .model_figures import model_figure_makers
     from .model_memo import write_model_memo
-    from .plan_figures import start_rendering
+    from .plan_figures import start_figure_files
 
-    finish_figures = start_rendering(plan, tuple(dict.fromkeys(("png", *formats))),
-                                     makers=model_figure_makers)  # while the tables are written
+    finish_figures = start_figure_files(plan, tmp, formats,
+                                        makers=model_figure_makers)  # while tables are written
     ds = plan.results
     per_n = [name for name, var in ds.data_vars.items() if var.dims == ("n",)]
     with open(tmp / "results.csv", "w", newline="", encoding="utf-8") as fh:
@@ -714,15 +705,7 @@ def _write_model_files(tmp: Path, plan: Any, formats: Sequence[str]) -> None:
     saved.to_netcdf(tmp / "results.nc", engine="scipy")
     if plan.source is not None:
         (tmp / "design_as_given.toml").write_bytes(plan.source.content)
-    figures = tmp / "figures"
-    figures.mkdir()
-    images = finish_figures()
-    rendered = {}
-    for name, by_format in images.items():
-        rendered[name] = by_format["png"]
-        for fmt in formats:
-            (figures / f"{name}.{fmt}").write_bytes(by_format[fmt])
-    write_model_memo(plan, tmp / "memo.html", rendered=rendered)
+    write_model_memo(plan, tmp / "memo.html", rendered=finish_figures())
     if plan.store is not None and Path(plan.store).is_dir():  # for a later run to resume from
         shutil.copytree(plan.store, tmp / "finished_sizes")
 

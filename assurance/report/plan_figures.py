@@ -32,12 +32,14 @@ import multiprocessing
 import os
 import pickle
 from collections.abc import Callable, Iterator, Sequence
+from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
 if TYPE_CHECKING:  # pragma: no cover
     from matplotlib.figure import Figure
 
-__all__ = ["figure_makers", "figure_workers_started_early", "render_figures", "start_rendering"]
+__all__ = ["figure_makers", "figure_workers_started_early", "render_figures", "start_figure_files",
+           "start_rendering"]
 
 
 def figure_makers(plan: Any) -> dict[str, Callable[[], Figure]]:
@@ -340,6 +342,44 @@ def start_rendering(plan: Any, formats: Sequence[str], *, workers: int | None = 
 
             return finish
     return lambda: _render_here(plan, makers, names, jobs, workers)
+
+
+def start_figure_files(plan: Any, folder: Path, formats: Sequence[str], *,
+                       makers: Callable[[Any], dict[str, Callable[[], Figure]]] | None = None,
+                       ) -> Callable[[], dict[str, bytes]]:
+    """Start drawing the figures of an output folder; the returned function writes them.
+
+    The figures are drawn as by :func:`start_rendering` (while the caller writes its
+    tables), in ``formats`` and PNG; the returned function waits for them, writes
+    ``folder/figures/<name>.<format>`` for each of ``formats`` and returns name -> PNG
+    bytes (the memo embeds the PNG in any case).
+
+    Examples
+    --------
+    >>> import tempfile, pathlib, assurance as asr
+    >>> design = asr.TrialDesign(asr.ContinuousEndpoint(sigma=10.0, analysis="z"),
+    ...                          asr.Normal(4.0, 2.0))
+    >>> p = asr.plan(design, sizes=[100, 200], sensitivity=False)
+    >>> with tempfile.TemporaryDirectory() as folder:
+    ...     finish = start_figure_files(p, pathlib.Path(folder), ("svg",))
+    ...     pngs = finish()
+    ...     written = sorted(f.name for f in (pathlib.Path(folder) / "figures").iterdir())
+    >>> sorted(pngs), written
+    (['power_and_assurance', 'prior'], ['power_and_assurance.svg', 'prior.svg'])
+    """
+    finish = start_rendering(plan, tuple(dict.fromkeys(("png", *formats))), makers=makers)
+
+    def write() -> dict[str, bytes]:
+        figures = folder / "figures"
+        figures.mkdir()
+        rendered = {}
+        for name, by_format in finish().items():
+            rendered[name] = by_format["png"]
+            for fmt in formats:
+                (figures / f"{name}.{fmt}").write_bytes(by_format[fmt])
+        return rendered
+
+    return write
 
 
 def _render_here(plan: Any, makers: Any, names: list[str],
